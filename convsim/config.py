@@ -1,0 +1,422 @@
+"""Run configuration: TOML text -> frozen dataclasses, one per table.
+
+Every key is declared once, in the dataclasses below, with its meaning, units,
+default and allowed values.  The loader rejects unknown tables and keys (with
+a suggestion for a misspelt one), wrong types and out-of-range values; each
+message names the key, the value and what is allowed.  The README's config
+reference is generated from these declarations (``reference_markdown``).
+
+Only the standard library and ``convsim.errors`` are imported here.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .errors import ConfigError
+
+__all__ = [
+    "Config", "Domain", "Physics", "Boundaries", "Viscosity", "Start", "Numerics", "Stop",
+    "Output", "Body", "load_config", "parse_config", "apply_overrides", "to_toml",
+    "reference_markdown",
+]
+
+
+def _key(doc, units="-", *, ge=None, gt=None, le=None, lt=None, choices=None, default=None,
+         default_factory=None, optional=False):
+    """A config key: its doc line, units and allowed values travel in the field metadata."""
+    meta = dict(doc=doc, units=units, ge=ge, gt=gt, le=le, lt=lt, choices=choices,
+                optional=optional)
+    if default_factory is not None:
+        return field(default_factory=default_factory, metadata=meta)
+    return field(default=default, metadata=meta)
+
+
+@dataclass(frozen=True)
+class Domain:
+    """Box geometry and grid: 0 <= x <= aspect, 0 <= z <= 1, z up (length unit: layer depth)."""
+
+    aspect: float = _key("width of the box divided by its depth", "layer depth",
+                         default=1.0, gt=0.0, le=64.0)
+    nx: int = _key("number of cells across the box (x)", "cells", default=64, ge=4, le=4096)
+    nz: int = _key("number of cells through the depth (z)", "cells", default=64, ge=4, le=4096)
+
+
+@dataclass(frozen=True)
+class Physics:
+    """Nondimensional numbers of the layer."""
+
+    rayleigh: float = _key("thermal Rayleigh number, with the reference viscosity of [viscosity]",
+                           default=1.0e4, gt=0.0, le=1.0e13)
+    internal_heating: float = _key(
+        "internal heat production H in dT/dt + u.grad T = lap T + H", "dT/(d^2/kappa)",
+        default=0.0, ge=-1.0e6, le=1.0e6)
+
+
+@dataclass(frozen=True)
+class Boundaries:
+    """Mechanical and thermal conditions on the four sides."""
+
+    top_flow: str = _key("mechanical condition at z = 1", default="free-slip",
+                         choices=("free-slip", "no-slip"))
+    bottom_flow: str = _key("mechanical condition at z = 0", default="free-slip",
+                            choices=("free-slip", "no-slip"))
+    sides: str = _key("side walls: reflecting (free-slip and insulating) or periodic",
+                      default="reflecting", choices=("reflecting", "periodic"))
+    top_heat: str = _key("thermal condition at z = 1: fixed temperature or fixed heat flux",
+                         default="temperature", choices=("temperature", "flux"))
+    top_value: float = _key("temperature at z = 1, or upward heat flux -dT/dz there",
+                            "dT or dT/d", default=0.0, ge=-1.0e6, le=1.0e6)
+    bottom_heat: str = _key("thermal condition at z = 0: fixed temperature or fixed heat flux",
+                            default="temperature", choices=("temperature", "flux"))
+    bottom_value: float = _key("temperature at z = 0, or upward heat flux -dT/dz there",
+                               "dT or dT/d", default=1.0, ge=-1.0e6, le=1.0e6)
+
+
+@dataclass(frozen=True)
+class Viscosity:
+    """Viscosity law eta(T, z), nondimensional, equal to 1 at T = 0, z = 1 (the reference of Ra)."""
+
+    law: str = _key("viscosity law", default="constant",
+                    choices=("constant", "frank-kamenetskii", "arrhenius"))
+    thermal_contrast: float = _key(
+        "frank-kamenetskii: eta(T=0)/eta(T=1) = exp(b); eta = exp(-b T + c (1 - z))",
+        default=1.0, ge=1.0, le=1.0e30)
+    depth_contrast: float = _key(
+        "frank-kamenetskii: eta(z=0)/eta(z=1) = exp(c) at fixed T", default=1.0,
+        ge=1.0e-30, le=1.0e30)
+    activation_energy: float = _key(
+        "arrhenius: E in eta = exp((E + V (1 - z))/(T + T0) - E/T0)", "dT", default=0.0,
+        ge=0.0, le=1.0e4)
+    activation_volume: float = _key("arrhenius: V (depth term, see activation_energy)", "dT",
+                                    default=0.0, ge=0.0, le=1.0e4)
+    temperature_offset: float = _key(
+        "arrhenius: T0, the surface temperature on the absolute scale", "dT", default=1.0,
+        gt=0.0, le=1.0e4)
+    minimum: float = _key("lower cut-off of the viscosity", default=0.0, ge=0.0, le=1.0e30)
+    maximum: float = _key("upper cut-off of the viscosity (0: none)", default=0.0, ge=0.0,
+                          le=1.0e30)
+
+
+@dataclass(frozen=True)
+class Start:
+    """Initial temperature field."""
+
+    kind: str = _key("conductive profile, one-cell guess, or a snapshot of another run",
+                     default="conductive", choices=("conductive", "one-cell", "snapshot"))
+    perturbation: str = _key("added to a conductive start: a single mode, seeded noise, none",
+                             default="mode", choices=("mode", "noise", "none"))
+    amplitude: float = _key("amplitude of the perturbation", "dT", default=0.01, ge=0.0, le=1.0)
+    mode: int = _key("horizontal mode n of cos(n pi x / aspect) sin(pi z)", default=1, ge=1,
+                     le=1024)
+    seed: int = _key("random seed of the noise perturbation", default=0, ge=0, le=2**32 - 1)
+    file: str = _key("run file to start from (kind = snapshot); interpolated to this grid",
+                     "path", default="")
+    continuation: tuple = _key(
+        "Rayleigh numbers run to steady state, in order, before the target one", default_factory=tuple)
+
+
+@dataclass(frozen=True)
+class Numerics:
+    """Discretisation and solver choices."""
+
+    advection: str = _key("advection scheme: TVD (second order, limited) or first-order upwind",
+                          default="tvd", choices=("tvd", "upwind"))
+    limiter: str = _key("flux limiter of the TVD scheme", default="van-leer",
+                        choices=("van-leer", "minmod", "superbee", "mc"))
+    time_scheme: str = _key("IMEX integrator: sbdf2 (second order) or euler (first order)",
+                            default="sbdf2", choices=("sbdf2", "euler"))
+    cfl: float = _key("Courant number of the adaptive time step", default=0.4, gt=0.0, le=2.0)
+    max_dt: float = _key("largest allowed time step", "d^2/kappa", default=1.0e-2, gt=0.0, le=10.0)
+    stokes_solver: str = _key(
+        "Stokes back end; auto picks the fastest that handles the problem", default="auto",
+        choices=("auto", "transform", "cholmod", "superlu"))
+    factor_reuse: str = _key(
+        "variable viscosity: refactor every step (always) or reuse the factor as a CG "
+        "preconditioner while it pays (adaptive)", default="adaptive",
+        choices=("adaptive", "always"))
+
+
+@dataclass(frozen=True)
+class Stop:
+    """When a run ends: the first of end time, step limit, or steady state."""
+
+    end_time: float = _key("nondimensional end time (0: none)", "d^2/kappa", default=0.0, ge=0.0,
+                           le=1.0e6)
+    max_steps: int = _key("step limit", "steps", default=200000, ge=1, le=10**9)
+    steady: bool = _key("stop at steady state", default=True)
+    steady_tolerance: float = _key(
+        "steady when max|dT/dt| / Nu and the relative drift of Nu and vrms stay below this",
+        default=1.0e-6, gt=0.0, le=1.0)
+
+
+@dataclass(frozen=True)
+class Output:
+    """What the run file records and when."""
+
+    snapshot_interval: float = _key("time between snapshots (0: only the last state)",
+                                    "d^2/kappa", default=0.0, ge=0.0, le=1.0e6)
+    snapshot_steps: int = _key("steps between snapshots (0: none by count)", "steps",
+                               default=0, ge=0, le=10**9)
+    series_every: int = _key("record the diagnostic time series every this many steps", "steps",
+                             default=1, ge=1, le=10**6)
+
+
+@dataclass(frozen=True)
+class Body:
+    """Optional physical properties of the layer; when given, Ra is computed from them."""
+
+    depth: float = _key("layer thickness d", "m", default=0.0, ge=0.0, le=1.0e8)
+    temperature_contrast: float = _key("temperature difference across the layer", "K",
+                                       default=0.0, ge=0.0, le=1.0e5)
+    surface_temperature: float = _key("temperature at the top", "K", default=0.0, ge=0.0,
+                                      le=1.0e5)
+    gravity: float = _key("gravitational acceleration g", "m s^-2", default=0.0, ge=0.0, le=1.0e3)
+    density: float = _key("reference density rho", "kg m^-3", default=0.0, ge=0.0, le=1.0e5)
+    thermal_expansivity: float = _key("thermal expansivity alpha", "K^-1", default=0.0, ge=0.0,
+                                      le=1.0)
+    thermal_diffusivity: float = _key("thermal diffusivity kappa", "m^2 s^-1", default=0.0,
+                                      ge=0.0, le=1.0)
+    conductivity: float = _key("thermal conductivity k", "W m^-1 K^-1", default=0.0, ge=0.0,
+                               le=1.0e4)
+    reference_viscosity: float = _key("viscosity at the reference state (T = top, z = top)",
+                                      "Pa s", default=0.0, ge=0.0, le=1.0e40)
+    heat_production: float = _key("internal heat production per unit mass", "W kg^-1",
+                                  default=0.0, ge=0.0, le=1.0)
+
+
+@dataclass(frozen=True)
+class Config:
+    """A whole run configuration, one attribute per TOML table."""
+
+    domain: Domain = field(default_factory=Domain)
+    physics: Physics = field(default_factory=Physics)
+    boundaries: Boundaries = field(default_factory=Boundaries)
+    viscosity: Viscosity = field(default_factory=Viscosity)
+    start: Start = field(default_factory=Start)
+    numerics: Numerics = field(default_factory=Numerics)
+    stop: Stop = field(default_factory=Stop)
+    output: Output = field(default_factory=Output)
+    body: Body | None = None
+    title: str = ""
+
+    def replace(self, **tables) -> "Config":
+        """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``)."""
+        changes = {}
+        for name, value in tables.items():
+            if "__" in name:
+                section, key = name.split("__", 1)
+                current = changes.get(section, getattr(self, section))
+                changes[section] = dataclasses.replace(current, **{key: value})
+            else:
+                changes[name] = value
+        new = dataclasses.replace(self, **changes)
+        _check_consistency(new)
+        return new
+
+
+TABLES = {f.name: f.default_factory for f in dataclasses.fields(Config)
+          if f.default_factory is not dataclasses.MISSING}
+TABLES["body"] = Body
+TOP_LEVEL_KEYS = ("title",)
+
+
+def _allowed(meta) -> str:
+    if meta["choices"]:
+        return "one of " + ", ".join(repr(c) for c in meta["choices"])
+    parts = []
+    if meta["gt"] is not None:
+        parts.append(f"> {meta['gt']:g}")
+    if meta["ge"] is not None:
+        parts.append(f">= {meta['ge']:g}")
+    if meta["lt"] is not None:
+        parts.append(f"< {meta['lt']:g}")
+    if meta["le"] is not None:
+        parts.append(f"<= {meta['le']:g}")
+    return " and ".join(parts) if parts else "any"
+
+
+def _suggest(word, candidates) -> str:
+    close = difflib.get_close_matches(word, list(candidates), n=1, cutoff=0.6)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _coerce(section: str, f: dataclasses.Field, value: Any):
+    """Check one value against its declaration and return it in the declared type."""
+    where = f"{section}.{f.name}"
+    meta = f.metadata
+    tp = f.type
+    if tp == "bool":
+        if not isinstance(value, bool):
+            raise ConfigError(f"{where} = {value!r}: expected true or false")
+        return value
+    if tp == "tuple":
+        if not isinstance(value, (list, tuple)) or not all(
+                isinstance(v, (int, float)) and not isinstance(v, bool) for v in value):
+            raise ConfigError(f"{where} = {value!r}: expected a list of numbers")
+        values = tuple(float(v) for v in value)
+        if not all(math.isfinite(v) and v > 0 for v in values):
+            raise ConfigError(f"{where} = {value!r}: expected positive finite numbers")
+        return values
+    if tp == "str":
+        if not isinstance(value, str):
+            raise ConfigError(f"{where} = {value!r}: expected a string, {_allowed(meta)}")
+        if meta["choices"] and value not in meta["choices"]:
+            raise ConfigError(f"{where} = {value!r}: expected {_allowed(meta)}"
+                              f"{_suggest(value, meta['choices'])}")
+        return value
+    if tp == "int":
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                raise ConfigError(f"{where} = {value!r}: expected a whole number, {_allowed(meta)}")
+    elif tp == "float":
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise ConfigError(f"{where} = {value!r}: expected a number, {_allowed(meta)}")
+        value = float(value)
+        if not math.isfinite(value):
+            raise ConfigError(f"{where} = {value!r}: expected a finite number, {_allowed(meta)}")
+    bad = ((meta["gt"] is not None and not value > meta["gt"])
+           or (meta["ge"] is not None and not value >= meta["ge"])
+           or (meta["lt"] is not None and not value < meta["lt"])
+           or (meta["le"] is not None and not value <= meta["le"]))
+    if bad:
+        raise ConfigError(f"{where} = {value!r}: out of range, allowed {_allowed(meta)}")
+    return value
+
+
+def _build_table(section: str, cls, raw) -> Any:
+    if not isinstance(raw, dict):
+        raise ConfigError(f"[{section}] must be a table, got {raw!r}")
+    fields = {f.name: f for f in dataclasses.fields(cls)}
+    values = {}
+    for key, value in raw.items():
+        if key not in fields:
+            raise ConfigError(f"{section}.{key}: unknown key{_suggest(key, fields)}; "
+                              f"allowed keys: {', '.join(fields)}")
+        values[key] = _coerce(section, fields[key], value)
+    return cls(**values)
+
+
+def _check_consistency(cfg: Config) -> None:
+    """Rules that involve more than one key."""
+    v = cfg.viscosity
+    if v.maximum and v.minimum and v.maximum < v.minimum:
+        raise ConfigError(f"viscosity.maximum = {v.maximum!r}: must be >= viscosity.minimum "
+                          f"= {v.minimum!r}")
+    b = cfg.boundaries
+    if b.top_heat == "flux" and b.bottom_heat == "flux":
+        raise ConfigError("boundaries.top_heat = 'flux': with bottom_heat = 'flux' too the "
+                          "temperature is undetermined; allowed: at least one 'temperature'")
+    if cfg.start.kind == "snapshot" and not cfg.start.file:
+        raise ConfigError("start.file = '': start.kind = 'snapshot' needs the path of a run file")
+    if cfg.stop.end_time == 0.0 and not cfg.stop.steady and cfg.stop.max_steps >= 10**9:
+        raise ConfigError("stop: with end_time = 0 and steady = false, max_steps must be < 1e9")
+
+
+def parse_config(data: dict, *, source: str = "config") -> Config:
+    """Build a ``Config`` from a TOML-like mapping, checking every table and key."""
+    if not isinstance(data, dict):
+        raise ConfigError(f"{source}: expected a TOML table at the top level")
+    tables = {}
+    title = ""
+    for name, raw in data.items():
+        if name == "title":
+            if not isinstance(raw, str):
+                raise ConfigError(f"title = {raw!r}: expected a string")
+            title = raw
+            continue
+        if name not in TABLES:
+            raise ConfigError(f"[{name}]: unknown table{_suggest(name, TABLES)}; allowed tables: "
+                              f"{', '.join(TABLES)}")
+        tables[name] = _build_table(name, TABLES[name], raw)
+    cfg = Config(title=title, **tables)
+    _check_consistency(cfg)
+    return cfg
+
+
+def load_config(path: str | Path, overrides: list[str] | tuple[str, ...] = ()) -> Config:
+    """Read a TOML config file, apply ``section.key=value`` overrides and validate it."""
+    path = Path(path)
+    if not path.is_file():
+        raise ConfigError(f"config file {str(path)!r}: not found")
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"config file {str(path)!r}: not valid TOML ({exc})") from None
+    except UnicodeDecodeError:
+        raise ConfigError(f"config file {str(path)!r}: not UTF-8 text") from None
+    apply_overrides(data, overrides)
+    return parse_config(data, source=str(path))
+
+
+def apply_overrides(data: dict, overrides) -> dict:
+    """Apply ``section.key=value`` strings to a raw mapping in place; values are TOML literals."""
+    for item in overrides:
+        if "=" not in item or "." not in item.split("=", 1)[0]:
+            raise ConfigError(f"--set {item!r}: expected section.key=value")
+        dotted, text = item.split("=", 1)
+        section, key = dotted.strip().split(".", 1)
+        try:
+            value = tomllib.loads(f"v = {text.strip()}")["v"]
+        except tomllib.TOMLDecodeError:
+            value = text.strip()
+        table = data.setdefault(section, {})
+        if not isinstance(table, dict):
+            raise ConfigError(f"--set {item!r}: {section} is not a table")
+        table[key] = value
+    return data
+
+
+def _toml_value(value) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(value, (tuple, list)):
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    if isinstance(value, float):
+        return repr(value) if math.isfinite(value) else ("inf" if value > 0 else "-inf")
+    return str(value)
+
+
+def to_toml(cfg: Config) -> str:
+    """The full config, every key written out, as TOML text that ``parse_config`` reads back."""
+    lines = []
+    if cfg.title:
+        lines.append(f"title = {_toml_value(cfg.title)}")
+    for name in TABLES:
+        table = getattr(cfg, name)
+        if table is None:
+            continue
+        lines.append(f"\n[{name}]")
+        for f in dataclasses.fields(table):
+            lines.append(f"{f.name} = {_toml_value(getattr(table, f.name))}")
+    return "\n".join(lines).lstrip() + "\n"
+
+
+def to_dict(cfg: Config) -> dict:
+    """The config as a plain nested dict (for JSON)."""
+    return tomllib.loads(to_toml(cfg))
+
+
+def reference_markdown() -> str:
+    """The config reference: one table per TOML table, every key with units, default and range."""
+    out = []
+    for name, cls in TABLES.items():
+        out.append(f"### [{name}]\n\n{cls.__doc__}\n")
+        out.append("| key | meaning | units | default | allowed |")
+        out.append("|---|---|---|---|---|")
+        for f in dataclasses.fields(cls):
+            default = f.default if f.default is not dataclasses.MISSING else f.default_factory()
+            out.append(f"| `{f.name}` | {f.metadata['doc']} | {f.metadata['units']} | "
+                       f"`{_toml_value(default)}` | {_allowed(f.metadata)} |")
+        out.append("")
+    return "\n".join(out)
