@@ -107,3 +107,20 @@ class Grid:
         out[0] = (1.5 * across[0] - 0.5 * across[1]) if bottom is None else bottom
         out[-1] = (1.5 * across[-1] - 0.5 * across[-2]) if top is None else top
         return out
+
+
+def interpolate_cells(x: np.ndarray, z: np.ndarray, field: np.ndarray, grid: Grid) -> np.ndarray:
+    """Interpolate a cell field given on centres (x, z) onto the cell centres of ``grid``.
+
+    Bilinear inside, nearest value beyond the outermost centres (within half a
+    cell of the walls).  The source box may have another aspect ratio; it is
+    stretched to this one.
+    """
+    from scipy.interpolate import RegularGridInterpolator
+
+    xs = np.asarray(x) * (grid.aspect / (x[-1] + 0.5 * (x[1] - x[0])))
+    zs = np.asarray(z)
+    interp = RegularGridInterpolator((zs, xs), field, bounds_error=False, fill_value=None)
+    Z, X = np.meshgrid(np.clip(grid.z_cell, zs[0], zs[-1]), np.clip(grid.x_cell, xs[0], xs[-1]),
+                       indexing="ij")
+    return interp(np.stack([Z.ravel(), X.ravel()], axis=1)).reshape(grid.cell_shape)

@@ -1,0 +1,69 @@
+"""Python entry points for notebooks and scripts: ``load_config`` and ``run``.
+
+This is an edge module: it wires the config, the start file, the simulation and
+the run-file writer together.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .config import Config, load_config
+from .errors import ConfigError
+from .grid import Grid, interpolate_cells
+from .simulation import ResumePoint, RunResult, Simulation, build_model
+from .snapshot import RunFileObserver, RunFileWriter, read_run
+
+__all__ = ["load_config", "run", "start_temperature"]
+
+
+def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
+    """The initial temperature read from ``start.file`` (interpolated to ``grid``), or None."""
+    if config.start.kind != "snapshot":
+        return None
+    try:
+        source = read_run(config.start.file)
+    except Exception as exc:
+        raise ConfigError(f"start.file = {config.start.file!r}: {exc}") from None
+    return interpolate_cells(source.x, source.z, source.fields["temperature"], grid)
+
+
+def run(config: Config, output: str | Path | None = None, *, overwrite: bool = False,
+        restart: str | Path | None = None, observers=(), grid: Grid | None = None) -> RunResult:
+    """Run a config to its stop rule.
+
+    Parameters
+    ----------
+    config : Config
+    output : path, optional
+        Run file to write (HDF5).  None keeps everything in memory.
+    overwrite : bool
+        Replace an existing output file.
+    restart : path, optional
+        Continue the run recorded in this file from its last snapshot, appending to it.
+    observers : extra ``simulation.Observer`` objects (a progress bar, say).
+    grid : Grid, optional
+        Override the config's grid (convergence studies).
+
+    Returns
+    -------
+    RunResult
+    """
+    observers = list(observers)
+    resume = None
+    if restart is not None:
+        saved = read_run(restart, restart=True)
+        if not saved.restart:
+            raise ConfigError(f"--restart {str(restart)!r}: the file holds no restart state")
+        resume = ResumePoint(saved.restart)
+        observers.insert(0, RunFileObserver(RunFileWriter(restart, append=True)))
+        output = restart
+    elif output is not None:
+        observers.insert(0, RunFileObserver(RunFileWriter(output, overwrite=overwrite)))
+    model = build_model(config, grid)
+    sim = Simulation(config, model, start_temperature(config, model.grid), observers)
+    result = sim.run(resume)
+    result.output = None if output is None else str(output)
+    return result
