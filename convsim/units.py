@@ -364,7 +364,7 @@ class Scales:
         return {p.name: getattr(self, p.name) for p in PROPERTIES}
 
 
-def scales_from_body(body=None, overrides=None) -> Scales:
+def scales_from_body(body=None, overrides=None, *, options=None) -> Scales:
     """Scales from a ``[body]`` table and/or explicit values; an explicit value wins.
 
     Parameters
@@ -376,6 +376,9 @@ def scales_from_body(body=None, overrides=None) -> Scales:
     overrides : mapping, optional
         ``{Scales field name: SI number}`` (already parsed, e.g. from the command
         line); these win over ``body``.
+    options : mapping, optional
+        ``{Scales field name: command-line option}``, named beside the ``[body]``
+        key when a required property is missing.
 
     Raises
     ------
@@ -401,12 +404,13 @@ def scales_from_body(body=None, overrides=None) -> Scales:
             value = parse_quantity(key, raw, prop.units,
                                    absolute=prop.name == "surface_temperature")
         if prop.required and value == 0.0:
-            missing.append(key)
+            option = (options or {}).get(prop.name)
+            missing.append(f"{key} or {option}" if option else key)
             continue
         values[prop.name] = _check(key, value, prop.units, required=prop.required, shown=raw)
     if missing:
-        raise ConfigError(f"{', '.join(missing)}: not given; expected a positive value for each "
-                          f"(in the [body] table or on the command line)")
+        raise ConfigError(f"not given: {'; '.join(missing)}; expected a positive value for each "
+                          f"(SI number or quantity with units)")
     return Scales(**values)
 
 
