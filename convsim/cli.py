@@ -11,7 +11,7 @@ import logging
 import sys
 
 from . import __version__
-from .errors import ConfigError, ConvsimError
+from .errors import ConvsimError
 
 COMMANDS = {}
 
@@ -81,6 +81,7 @@ def _add_rayleigh(p):
 
 
 def _rayleigh_boundaries(text, cfg):
+    from .errors import ConfigError
     from .units import FLOW_CONDITIONS
     if text is None:
         if cfg is None:

@@ -40,6 +40,7 @@ are plain arithmetic on numbers or numpy arrays.
 from __future__ import annotations
 
 import math
+import numbers
 import re
 from dataclasses import dataclass
 
@@ -129,9 +130,9 @@ def parse_quantity(key: str, value, expected_units: str, *, absolute: bool = Fal
     target = UREG.Unit(expected_units)
     dim = _dimension(target)
     want = f"{dim} (a number in {expected_units}, or a number with units of {dim})"
-    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+    if isinstance(value, bool) or not isinstance(value, (numbers.Real, str)):
         raise ConfigError(f"{key} = {value!r}: expected {want}")
-    if isinstance(value, (int, float)):
+    if isinstance(value, numbers.Real):
         number = float(value)
     else:
         quantity, offset = _parse_text(key, value, want)
@@ -206,7 +207,7 @@ def parse_property(name: str, value, key: str | None = None) -> float:
 def _check(key: str, value: float, units: str, *, required: bool, shown=None) -> float:
     """``value`` as a float; > 0 when required, >= 0 otherwise; finite."""
     shown = value if shown is None else shown
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
         raise ConfigError(f"{key} = {shown!r}: expected a number in {units}")
     value = float(value)
     if required and not (math.isfinite(value) and value > 0.0):
