@@ -167,3 +167,46 @@ class DiffusionSolver:
         if self.grid.periodic:
             return sfft.irfft(rh, n=self.grid.nx, axis=1)
         return sfft.idct(rh, type=2, axis=1, norm="ortho")
+
+
+def diffusion_matrix(grid: Grid, bc: ThermalBoundaries):
+    """Sparse K with lap T = K T + g on the raveled (nz, nx) cell array (row-major, x fastest)."""
+    import scipy.sparse as sp
+    nx = grid.nx
+    kx = sp.diags([np.ones(nx - 1), -2.0 * np.ones(nx), np.ones(nx - 1)], [-1, 0, 1], format="lil")
+    if grid.periodic:
+        kx[0, nx - 1] = kx[nx - 1, 0] = 1.0
+    else:
+        kx[0, 0] = kx[nx - 1, nx - 1] = -1.0
+    kx = sp.csr_matrix(kx) / grid.dx ** 2
+    kz = sp.csr_matrix(DiffusionSolver(grid, bc)._kz)
+    return (sp.kron(sp.identity(grid.nz), kx) + sp.kron(kz, sp.identity(nx))).tocsc()
+
+
+def upwind_matrix(grid: Grid, u: np.ndarray, w: np.ndarray):
+    """Sparse C with C T = div(u T) by first-order upwind fluxes, for frozen face velocities.
+
+    The flux through a face is u+ T_upwind with u+ = max(u, 0) from the left or
+    lower cell and min(u, 0) from the right or upper one; walls carry no flux.
+    """
+    import scipy.sparse as sp
+    nz, nx = grid.cell_shape
+    idx = np.arange(nz * nx).reshape(nz, nx)
+    rows, cols, vals = [], [], []
+
+    def add(r, c, v):
+        rows.append(r.ravel())
+        cols.append(c.ravel())
+        vals.append(v.ravel())
+
+    # x faces: face i between cells i-1 and i (periodic: face 0 joins nx-1 and 0)
+    faces = np.arange(nx) if grid.periodic else np.arange(1, nx)
+    left, right = idx[:, (faces - 1) % nx], idx[:, faces]
+    up, um = np.maximum(u[:, faces], 0.0) / grid.dx, np.minimum(u[:, faces], 0.0) / grid.dx
+    add(left, left, up), add(left, right, um), add(right, left, -up), add(right, right, -um)
+    below, above = idx[:-1, :], idx[1:, :]
+    wp, wm = np.maximum(w[1:-1], 0.0) / grid.dz, np.minimum(w[1:-1], 0.0) / grid.dz
+    add(below, below, wp), add(below, above, wm), add(above, below, -wp), add(above, above, -wm)
+    n = nz * nx
+    return sp.csc_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                         shape=(n, n))
