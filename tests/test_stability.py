@@ -31,7 +31,8 @@ import pytest
 from convsim import cli
 from convsim.errors import ConfigError
 from convsim.stability import (Layer, StabilityProblem, analyse_onset, box_wavenumbers,
-                               conductive_gradient, conductive_profile, default_points,
+                               conductive_gradient, conductive_profile, cutoff_breaks,
+                               default_points,
                                growth_rates, neutral_rayleigh, viscosity_law)
 
 from naive_stability import neutral_rayleigh_fd_extrapolated
@@ -210,6 +211,48 @@ def test_variable_viscosity_against_finite_differences(name):
                                           layer.bottom_flow, layer.top_flow,
                                           layer.bottom_heat, layer.top_heat)
     assert spectral == pytest.approx(fd, rel=2e-5)
+
+
+CUTOFF_CASES = {
+    # law parameters, the kink height worked out by hand, eta(z) written out, k
+    "FK thermal 1e6, minimum 1e-3, free-free": (
+        dict(thermal_contrast=1e6, minimum=1e-3), dict(), 0.5,        # 1 - z = 3/6
+        lambda z: np.maximum(np.exp(-math.log(1e6) * (1.0 - z)), 1e-3), 4.0),
+    "FK depth 1e4, maximum 10, rigid-rigid": (
+        dict(depth_contrast=1e4, maximum=10.0), dict(top_flow=RIGID, bottom_flow=RIGID),
+        0.75, lambda z: np.minimum(np.exp(math.log(1e4) * (1.0 - z)), 10.0), 3.0),  # 1 - z = 1/4
+}
+
+
+@pytest.mark.parametrize("name", list(CUTOFF_CASES))
+def test_viscosity_cutoff_against_finite_differences(name):
+    """A cut-off puts a kink in eta(z): the collocation splits there ([FD] for the value)."""
+    params, flows, kink, eta, k = CUTOFF_CASES[name]
+    cut = {key: params.pop(key) for key in ("minimum", "maximum") if key in params}
+    uncut = viscosity_law("frank-kamenetskii", **params)
+    breaks = cutoff_breaks(uncut, Layer(**flows), **cut)
+    assert breaks == pytest.approx((kink,), abs=1e-12)
+    layer = Layer(viscosity=viscosity_law("frank-kamenetskii", **params, **cut), breaks=breaks,
+                  **flows)
+    spectral = StabilityProblem(layer, 40).neutral_rayleigh(k)
+    fd = neutral_rayleigh_fd_extrapolated(k, eta, lambda z: -np.ones_like(z),
+                                          layer.bottom_flow, layer.top_flow)
+    assert spectral == pytest.approx(fd, rel=2e-5)
+    # and the front door finds the kink itself
+    result = analyse_onset(viscosity="frank-kamenetskii", viscosity_parameters={**params, **cut},
+                           wavenumbers=[k], **flows)
+    assert result.breaks == pytest.approx((kink,), abs=1e-12)
+    assert result.neutral_rayleigh[0] == pytest.approx(fd, rel=2e-5)
+    assert result.resolution_error < 1e-6
+
+
+def test_artificial_break_changes_nothing():
+    """Splitting a smooth problem at an interface must leave Ra(k) unchanged."""
+    law = viscosity_law("frank-kamenetskii", thermal_contrast=1e3)
+    whole = StabilityProblem(Layer(top_flow=RIGID, viscosity=law), 40).neutral_rayleigh(3.0)
+    split = StabilityProblem(Layer(top_flow=RIGID, viscosity=law, breaks=(0.3, 0.55)),
+                             64).neutral_rayleigh(3.0)
+    assert split == pytest.approx(whole, rel=1e-8)
 
 
 def test_fd_twin_reproduces_chandrasekhar():
