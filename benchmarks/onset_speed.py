@@ -21,7 +21,7 @@ from convsim.stability import analyse_onset  # noqa: E402
 CASES = {
     "free-free, constant": dict(),
     "rigid-rigid, constant": dict(top_flow="no-slip", bottom_flow="no-slip"),
-    "rigid top, free bottom, heated within, insulating bottom": dict(
+    "rigid top, heated within, insulating bottom": dict(
         top_flow="no-slip", bottom_heat="flux", bottom_value=0.0, internal_heating=1.0),
     "free-free, Frank-Kamenetskii 1e6": dict(
         viscosity="frank-kamenetskii", viscosity_parameters={"thermal_contrast": 1e6}),
@@ -31,6 +31,9 @@ CASES = {
     "free-free, Arrhenius E=20 V=5": dict(
         viscosity="arrhenius",
         viscosity_parameters={"activation_energy": 20.0, "activation_volume": 5.0}),
+    "free-free, Frank-Kamenetskii 1e6, minimum 1e-3": dict(
+        viscosity="frank-kamenetskii",
+        viscosity_parameters={"thermal_contrast": 1e6, "minimum": 1e-3}),
 }
 
 
@@ -49,7 +52,7 @@ def main():
             result = analyse_onset(1e5, aspect=2.0, curve_points=100, **kwargs)
             best = min(best, time.perf_counter() - t0)
         worst = max(worst, best)
-        print(f"  {name:<44s} {best:7.3f} s  N={result.points:<3d} "
+        print(f"  {name:<48s} {best:7.3f} s  N={result.points:<3d} "
               f"Ra_c={result.critical_rayleigh:.6g}  k_c={result.critical_wavenumber:.4f}")
     print(f"slowest case {worst:.3f} s: {'meets' if worst < 2.0 else 'MISSES'} the 2 s goal")
 

@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
 __all__ = ["plot_neutral_curve"]
 
@@ -47,9 +48,14 @@ def plot_neutral_curve(result, path: str | Path) -> Path:
         if result.rayleigh is not None:
             top = max(top, 1.1 * result.rayleigh)
         ax.set_ylim(0.9 * finite.min(), top)
-    if k.size > 1 and k[-1] / k[0] > 10.0:
+    if k.size > 1 and k[-1] / k[0] > 50.0:
         ax.set_xscale("log")
     ax.set_yscale("log")
+    ax.yaxis.set_major_locator(LogLocator(base=10.0, subs=(1.0, 2.0, 5.0)))
+    plain = FuncFormatter(lambda value, _: f"{value:g}")
+    for axis in (ax.xaxis, ax.yaxis):
+        axis.set_major_formatter(plain)
+        axis.set_minor_formatter(NullFormatter())
     ax.set_xlabel("horizontal wavenumber k (1/depth)")
     ax.set_ylabel("Rayleigh number")
     ax.set_title("Onset of convection: conductive state")

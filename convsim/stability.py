@@ -303,7 +303,11 @@ class OnsetResult:
 
 
 def _box_minimum(problem: StabilityProblem, k_c: float, aspect: float, sides: str):
-    """(Ra, n, k_n) of the box's least stable admissible mode."""
+    """(Ra, n, k_n) of the box's least stable admissible mode.
+
+    Only the modes next to k_c (n within one of k_c / k_1) are evaluated, which finds the
+    minimum when Ra(k) has a single minimum, as for every layer tested here.
+    """
     spacing = box_wavenumbers(aspect, sides, [1])[0]
     if math.isfinite(k_c):
         centre = k_c / spacing
