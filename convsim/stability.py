@@ -44,7 +44,7 @@ from __future__ import annotations
 
 import logging
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
@@ -254,6 +254,8 @@ class OnsetResult:
         |Ra(k_c) at 1.5 x points - Ra_c| / Ra_c: an estimate of the discretisation error.
     breaks : tuple of float
         Heights where a viscosity cut-off switches on (collocation split there).
+    layer : Layer
+        The layer analysed (for further queries, e.g. growth rates at the box mode).
     """
 
     critical_rayleigh: float
@@ -273,6 +275,7 @@ class OnsetResult:
     points: int
     resolution_error: float
     breaks: tuple = ()
+    layer: Layer | None = field(default=None, repr=False, compare=False)
 
     def to_dict(self) -> dict:
         """Plain JSON-ready mapping; non-finite numbers become None."""
@@ -434,4 +437,4 @@ def analyse_onset(rayleigh: float | None = None, *, aspect: float = 1.0,
                        rayleigh=None if rayleigh is None else float(rayleigh),
                        supercriticality=supercrit, aspect=float(aspect), sides=sides,
                        points=problem.points, resolution_error=resolution,
-                       breaks=layer.breaks)
+                       breaks=layer.breaks, layer=layer)
