@@ -198,8 +198,9 @@ def critical_from_rates(rayleigh, rates) -> tuple[float, str]:
 # --------------------------------------------------------------------------------------
 
 def default_grid(aspect: float, nz: int = 24) -> tuple[int, int]:
-    """A coarse grid of near-square cells for the bracket runs: (round(nz aspect), nz), nx >= 8."""
-    return max(8, int(round(nz * aspect))), nz
+    """A coarse grid of near-square cells for the bracket runs: (nx, nz), nx = nz aspect rounded
+    to an even number >= 8 (even, so that a Richardson pair can halve it)."""
+    return max(8, 2 * int(round(0.5 * nz * aspect))), nz
 
 
 def bracket_configs(config: Config, rayleigh_values, mode: int, *, grid: tuple[int, int],
@@ -417,6 +418,8 @@ def run_bracket(config: Config, onset, *, factors=DEFAULT_FACTORS, grid=None,
     if grid is None:
         grid = default_grid(config.domain.aspect)
     nx, nz = (int(g) for g in grid)
+    if not (4 <= nx <= 4096 and 4 <= nz <= 4096):
+        raise ConfigError(f"grid = {grid!r}: expected (nx, nz) with 4 <= nx, nz <= 4096")
     if jobs is None:
         jobs = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") \
             else (os.cpu_count() or 1)
