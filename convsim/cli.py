@@ -332,9 +332,15 @@ def _onset_run_options(args):
         return None
     if args.jobs is not None and args.jobs < 1:
         raise ConfigError(f"--jobs {args.jobs}: expected a whole number >= 1")
-    grid = _parse_grid(args.runs_grid) if args.runs_grid else None
-    if grid is not None and not all(4 <= g <= 4096 for g in grid):
-        raise ConfigError(f"--runs-grid {args.runs_grid!r}: expected 4 <= NX, NZ <= 4096")
+    grid = None
+    if args.runs_grid:
+        allowed = "expected NXxNZ with 4 <= NX, NZ <= 4096, e.g. 34x24"
+        try:
+            grid = tuple(int(v) for v in args.runs_grid.lower().split("x"))
+        except ValueError:
+            raise ConfigError(f"--runs-grid {args.runs_grid!r}: {allowed}") from None
+        if len(grid) != 2 or not all(4 <= g <= 4096 for g in grid):
+            raise ConfigError(f"--runs-grid {args.runs_grid!r}: {allowed}")
     return dict(grid=grid, richardson=args.richardson, jobs=args.jobs)
 
 
