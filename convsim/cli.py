@@ -235,8 +235,9 @@ def _run_rayleigh(args) -> int:
         notes.append("Ra_c assumes fixed temperatures; the config fixes a heat flux")
     onset = {"top_flow": top, "bottom_flow": bottom, "critical_rayleigh": ra_c,
              "ratio": ra / ra_c, "above_onset": ra > ra_c,
-             "source": "classical table, Chandrasekhar (1961) ch. II; fixed temperatures, "
-                       "heated from below, constant viscosity", "notes": notes}
+             "source": "linear stability of the conductive state (convsim onset for the "
+                       "config's own heating and rheology); fixed temperatures, heated from "
+                       "below, constant viscosity", "notes": notes}
     result = {
         "rayleigh": ra, "internal_heating_number": h_nd, "internal_heating_rayleigh": ra_h,
         "properties": {p.name: {"value": getattr(scales, p.name), "units": p.units,
