@@ -308,18 +308,8 @@ def _parse_wavenumbers(text: str):
 
 def _onset_from_config(cfg, wavenumbers, points):
     """Unpack a Config into ``analyse_onset``'s plain arguments."""
-    from .stability import analyse_onset
-    b, v = cfg.boundaries, cfg.viscosity
-    return analyse_onset(
-        cfg.physics.rayleigh, aspect=cfg.domain.aspect, sides=b.sides,
-        top_flow=b.top_flow, bottom_flow=b.bottom_flow, top_heat=b.top_heat,
-        top_value=b.top_value, bottom_heat=b.bottom_heat, bottom_value=b.bottom_value,
-        internal_heating=cfg.physics.internal_heating, viscosity=v.law,
-        viscosity_parameters=dict(
-            thermal_contrast=v.thermal_contrast, depth_contrast=v.depth_contrast,
-            activation_energy=v.activation_energy, activation_volume=v.activation_volume,
-            temperature_offset=v.temperature_offset, minimum=v.minimum, maximum=v.maximum),
-        wavenumbers=wavenumbers, points=points)
+    from .onset_runs import onset_from_config
+    return onset_from_config(cfg, wavenumbers, points)
 
 
 def _onset_run_options(args):

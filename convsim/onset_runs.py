@@ -28,11 +28,11 @@ from __future__ import annotations
 
 import logging
 import math
+import multiprocessing
 import os
 import time
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
-import multiprocessing
 
 import numpy as np
 from scipy.optimize import brentq
@@ -41,7 +41,8 @@ from .config import Config
 from .errors import ConfigError
 
 __all__ = ["RateFit", "RunBracket", "DEFAULT_FACTORS", "fit_growth_rate",
-           "critical_from_rates", "bracket_configs", "default_grid", "run_bracket"]
+           "critical_from_rates", "bracket_configs", "default_grid", "onset_from_config",
+           "run_bracket"]
 
 log = logging.getLogger(__name__)
 
@@ -360,7 +361,28 @@ def _check_positive(key, value):
         raise ConfigError(f"{key} = {value!r}: expected a finite number > 0")
 
 
-def run_bracket(config: Config, onset, *, factors=DEFAULT_FACTORS, grid=None,
+def onset_from_config(config: Config, wavenumbers=None, points: int | None = None):
+    """``stability.analyse_onset`` for the layer and box a config describes.
+
+    Unpacks the config's aspect, sides, mechanical and thermal conditions, internal
+    heating, viscosity law and Rayleigh number into the plain arguments of
+    ``analyse_onset`` (which never sees a Config).
+    """
+    from .stability import analyse_onset
+    b, v = config.boundaries, config.viscosity
+    return analyse_onset(
+        config.physics.rayleigh, aspect=config.domain.aspect, sides=b.sides,
+        top_flow=b.top_flow, bottom_flow=b.bottom_flow, top_heat=b.top_heat,
+        top_value=b.top_value, bottom_heat=b.bottom_heat, bottom_value=b.bottom_value,
+        internal_heating=config.physics.internal_heating, viscosity=v.law,
+        viscosity_parameters=dict(
+            thermal_contrast=v.thermal_contrast, depth_contrast=v.depth_contrast,
+            activation_energy=v.activation_energy, activation_volume=v.activation_volume,
+            temperature_offset=v.temperature_offset, minimum=v.minimum, maximum=v.maximum),
+        wavenumbers=wavenumbers, points=points)
+
+
+def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=None,
                 amplitude: float = 1.0e-5, end_time: float | None = None,
                 max_dt: float | None = None, growth_limit: float = 1.0e3,
                 richardson: bool = False, jobs: int | None = None) -> RunBracket:
@@ -371,9 +393,9 @@ def run_bracket(config: Config, onset, *, factors=DEFAULT_FACTORS, grid=None,
     config : Config
         The layer and box (boundaries, heating, viscosity, aspect); its start, stop,
         grid and Ra are replaced for the runs.
-    onset : convsim.stability.OnsetResult
+    onset : convsim.stability.OnsetResult, optional
         The eigen-solver's answer for this config (gives the box Ra_c, its mode n and
-        the layer for the theoretical growth rates).
+        the layer for the theoretical growth rates); default ``onset_from_config(config)``.
     factors : sequence of float
         Ra of the runs as multiples of the box Ra_c (at least two).
     grid : (int, int), optional
@@ -401,6 +423,8 @@ def run_bracket(config: Config, onset, *, factors=DEFAULT_FACTORS, grid=None,
     """
     from .stability import StabilityProblem
 
+    if onset is None:
+        onset = onset_from_config(config)
     box_ra, mode, k = onset.box_critical_rayleigh, onset.box_mode, onset.box_wavenumber
     if mode is None or not math.isfinite(box_ra):
         raise ConfigError("onset: the eigen-solver finds no instability in this box, so there "

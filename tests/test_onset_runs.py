@@ -43,9 +43,8 @@ def free_free_rate(ra, k):
 
 @pytest.fixture(scope="module")
 def bracket():
-    cfg = Config().replace(domain__aspect=BOX_WIDTH)
-    onset = analyse_onset(aspect=BOX_WIDTH)
-    return run_bracket(cfg, onset, factors=FACTORS, richardson=True, jobs=2)
+    cfg = Config().replace(domain__aspect=BOX_WIDTH)       # the onset from the config itself
+    return run_bracket(cfg, factors=FACTORS, richardson=True, jobs=2)
 
 
 def test_reference_box_is_the_critical_one(bracket):
