@@ -119,6 +119,10 @@ def fit_growth_rate(t, vrms, *, growth_limit: float = 1.0e3, rate_scale: float =
     if t.size:                                # strictly increasing times only
         later_than_all = np.concatenate([[True], t[1:] > np.maximum.accumulate(t)[:-1]])
         t, v = t[later_than_all], v[later_than_all]
+    if t.size > 2:                            # drop slivers (a last step cut to the end time)
+        gaps = np.diff(t)
+        wide = np.concatenate([[True], gaps >= 1e-3 * np.median(gaps)])
+        t, v = t[wide], v[wide]
     if t.size < 3:
         return RateFit(math.nan, math.nan, math.nan, math.nan, int(t.size), "no-data")
     above = np.nonzero(v > growth_limit * v[0])[0]
