@@ -154,6 +154,12 @@ class Stop:
     steady_tolerance: float = _key(
         "steady when max|dT/dt| / Nu and the relative drift of Nu and vrms stay below this",
         default=1.0e-6, gt=0.0, le=1.0)
+    newton: bool = _key("when the run has nearly settled, solve the steady equations by "
+                        "Newton-Krylov iteration instead of waiting for the transient to decay",
+                        default=True)
+    newton_threshold: float = _key(
+        "try Newton once max|dT/dt| / Nu falls below this (retried later if it fails)",
+        default=0.1, gt=0.0, le=1.0e9)
 
 
 @dataclass(frozen=True)

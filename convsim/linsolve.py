@@ -171,7 +171,8 @@ class LaggedFactorSolver:
 
     def refactor(self, A: sp.spmatrix, weights: np.ndarray | None = None) -> float:
         t0 = time.perf_counter()
-        self.factorizer.factor(A)
+        self.factored_weights = None
+        self.factorizer.factor(A)       # may raise ArithmeticError (not positive definite)
         self.factored_weights = None if weights is None else weights.copy()
         return time.perf_counter() - t0
 

@@ -33,6 +33,7 @@ from .config import Config, to_toml
 from .energy import ThermalBoundaries
 from .grid import Grid
 from .rheology import ViscosityLaw
+from .steady import newton_steady
 from .timestepping import Model, ModelState, StepFailed, StepReport
 
 __all__ = ["Simulation", "RunResult", "SnapshotData", "Observer", "ResumePoint",
@@ -41,6 +42,7 @@ __all__ = ["Simulation", "RunResult", "SnapshotData", "Observer", "ResumePoint",
 log = logging.getLogger(__name__)
 
 SETTLE_STEPS = 20
+NEWTON_FIRST_WAIT = 50      # steps before the first Newton attempt; doubled after a failure
 SERIES_COLUMNS = ("series_time", "series_step", "dt", "rayleigh", "nusselt_top", "nusselt_bottom",
                   "vrms", "surface_vrms", "mean_temperature", "energy_residual", "tendency_max",
                   "stokes_iterations")
@@ -186,6 +188,7 @@ class Simulation:
         self.temperature0 = temperature
         self.observers = list(observers)
         self.config_text = to_toml(config)
+        self.newton_reports: list = []
 
     @classmethod
     def from_config(cls, config: Config, temperature: np.ndarray | None = None, observers=(),
@@ -231,6 +234,8 @@ class Simulation:
         all_rows: list = []
         window: list = []
         settled = 0
+        newton_wait, newton_next = NEWTON_FIRST_WAIT, NEWTON_FIRST_WAIT
+        newton_done = False
         if resume is None:
             stage = 0
             model = self.model.with_rayleigh(stages[0])
@@ -249,6 +254,8 @@ class Simulation:
             model.restore_factor(state.factor_weights)
             next_snapshot = float(r["next_snapshot"])
             settled = int(r["settled"])
+            newton_wait, newton_next = int(r["newton_wait"]), int(r["newton_next"])
+            newton_done = bool(r["newton_done"])
             window = [tuple(v) for v in np.asarray(r.get("window", np.zeros((0, 2))))]
         self._emit("on_start", self, resume is not None)
         status, message = "", ""
@@ -257,6 +264,8 @@ class Simulation:
 
         def snapshot(st, status_now):
             extra = dict(stage=stage, next_snapshot=next_snapshot, settled=settled,
+                         newton_wait=newton_wait, newton_next=newton_next,
+                         newton_done=int(newton_done),
                          window=np.array(window, dtype=float).reshape(-1, 2))
             cols = {c: np.array([row[i] for row in series_rows]) for i, c in enumerate(SERIES_COLUMNS)}
             data = SnapshotData(time=st.time, step=st.step, fields=self._fields(st), series=cols,
@@ -322,7 +331,27 @@ class Simulation:
                                        psi=model.solve_flow(state.temperature, state.psi)[0],
                                        factor_weights=model.factor_weights)
                     settled, window = 0, []
+                    newton_wait, newton_next = NEWTON_FIRST_WAIT, state.step + NEWTON_FIRST_WAIT
+                    newton_done = False
                     continue
+                if (stop.steady and stop.newton and not newton_done and state.step >= newton_next
+                        and report.tendency_max <= stop.newton_threshold * nu_scale):
+                    T_n, psi_n, nrep = newton_steady(model, state.temperature, state.psi,
+                                                     0.1 * tol * nu_scale)
+                    self.newton_reports.append((state.step, nrep))
+                    if nrep.converged:
+                        log.info("newton: steady equations solved at step %d in %d iterations "
+                                 "(%d residual evaluations)", state.step, nrep.iterations,
+                                 nrep.residual_evaluations)
+                        state = ModelState(time=state.time, step=state.step, temperature=T_n,
+                                           psi=psi_n, factor_weights=model.factor_weights)
+                        newton_done = True
+                        settled, window = 0, []
+                    else:
+                        newton_wait *= 2
+                        newton_next = state.step + newton_wait
+                        log.info("newton: no convergence at step %d; next try at step %d",
+                                 state.step, newton_next)
                 if steady_now:
                     status = "steady"
                     message = f"steady at step {state.step} (tolerance {tol:g})"

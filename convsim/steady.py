@@ -25,6 +25,7 @@ import logging
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.sparse as sp
 import scipy.sparse.linalg as sla
 
 from .energy import diffusion_matrix, upwind_matrix
@@ -33,6 +34,10 @@ from .stokes import face_velocities
 __all__ = ["NewtonReport", "newton_steady", "steady_residual"]
 
 log = logging.getLogger(__name__)
+
+ACCEPT_GROWTH = 10.0     # a pseudo-time step may raise ||F|| at most this much
+MIN_GROWTH = 1.5         # delta grows at least this much after a step that lowered ||F||
+FIRST_DELTA_STEPS = 50   # the first delta, in Courant time steps
 
 
 @dataclass
@@ -45,14 +50,27 @@ class NewtonReport:
 
 
 def steady_residual(model, T: np.ndarray, psi_guess=None):
-    """F(T) of equation (1), shape (nz, nx), and the streamfunction of T."""
-    psi, _ = model.solve_flow(T, psi_guess)
+    """F(T) of equation (1), shape (nz, nx), and the streamfunction of T (NaN where T is unusable)."""
+    if not np.all(np.isfinite(T)):
+        return np.full_like(T, np.nan), psi_guess
+    try:
+        psi, _ = model.solve_flow(T, psi_guess)
+    except ArithmeticError:
+        return np.full_like(T, np.nan), psi_guess
     return model.tendency(T, psi) + model.diffusion.apply(T), psi
 
 
 def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
-                  max_iterations: int = 12, gmres_restart: int = 40) -> tuple[np.ndarray, np.ndarray, NewtonReport]:
-    """Newton-Krylov solve of F(T) = 0 from T0.
+                  max_iterations: int = 60, delta0: float | None = None,
+                  gmres_restart: int = 40) -> tuple[np.ndarray, np.ndarray, NewtonReport]:
+    """Pseudo-transient Newton-Krylov solve of F(T) = 0 from T0.
+
+    Each iteration solves (I / delta - J) d = F(T) and sets T <- T + d: an implicit
+    Euler step of pseudo-time size delta with the full Jacobian, buoyancy
+    coupling included.  delta grows as the residual falls (switched evolution
+    relaxation: delta_{k+1} = delta_k ||F_k|| / ||F_{k+1}||), so the iteration
+    turns into Newton's method near the solution; a step that makes the residual
+    non-finite or ten times larger is retried with a quarter of delta.
 
     Parameters
     ----------
@@ -61,57 +79,79 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
     tolerance : float
         Converged when max |F| <= tolerance.
     max_iterations : int
-        Newton steps at most.
+        Pseudo-time steps at most.
+    delta0 : float, optional
+        First pseudo-time step (default: FIRST_DELTA_STEPS Courant steps of the starting flow).
 
     Returns
     -------
     T, psi, NewtonReport
     """
     K = diffusion_matrix(model.grid, model.thermal)
+    identity = sp.identity(K.shape[0], format="csc")
     shape = T0.shape
     T, psi = T0.copy(), psi0
-    F, psi = steady_residual(model, T, psi)
-    evaluations = 1
-    history = []
-    fmax = float(np.abs(F).max())
-    for it in range(1, max_iterations + 1):
-        if fmax <= tolerance:
-            return T, psi, NewtonReport(True, it - 1, evaluations, fmax, history)
-        u, w = face_velocities(model.grid, psi)
-        lu = sla.splu((K - upwind_matrix(model.grid, u, w)).tocsc())
-        f = F.ravel()
-        fnorm = np.linalg.norm(f)
-        scale = 1.0 + np.linalg.norm(T)
-
-        def jv(v, T=T, f=f, psi=psi):
-            nonlocal evaluations
-            vn = np.linalg.norm(v)
-            if vn == 0.0:
-                return np.zeros_like(v)
-            eps = 1e-7 * scale / vn
-            Fp, _ = steady_residual(model, T + eps * v.reshape(shape), psi)
-            evaluations += 1
-            return (Fp.ravel() - f) / eps
-
-        n = f.size
-        J = sla.LinearOperator((n, n), matvec=jv)
-        M = sla.LinearOperator((n, n), matvec=lu.solve)
-        forcing = min(1e-2, max(1e-6, fnorm / (1.0 + np.linalg.norm(T)) ))
-        d, info = sla.gmres(J, -f, rtol=forcing, atol=0.0, restart=gmres_restart, maxiter=3, M=M)
-        step = 1.0
-        for _ in range(8):
-            T_try = T + step * d.reshape(shape)
-            F_try, psi_try = steady_residual(model, T_try, psi)
-            evaluations += 1
-            if np.all(np.isfinite(F_try)) and np.linalg.norm(F_try) < (1.0 - 1e-4 * step) * fnorm:
-                break
-            step *= 0.5
-        else:
-            log.info("newton: no decrease along the step at iteration %d", it)
-            return T, psi, NewtonReport(False, it, evaluations, fmax, history)
-        T, F, psi = T_try, F_try, psi_try
+    if True:
+        F, psi = steady_residual(model, T, psi)
+        evaluations = 1
+        history = []
         fmax = float(np.abs(F).max())
-        history.append(fmax)
-        log.info("newton %d: max|F| = %.3e (step %.3g, gmres info %d)", it, fmax, step, info)
-    converged = fmax <= tolerance
-    return T, psi, NewtonReport(converged, max_iterations, evaluations, fmax, history)
+        fnorm = float(np.linalg.norm(F))
+        delta = delta0 if delta0 is not None else FIRST_DELTA_STEPS * model.courant_dt(psi)
+        for it in range(1, max_iterations + 1):
+            if fmax <= tolerance:
+                return T, psi, NewtonReport(True, it - 1, evaluations, fmax, history)
+            if not np.isfinite(fmax):
+                break
+            psi, dflow = model.linearised_flow(T)
+            base = model.tendency(T, psi)
+            F = base + model.diffusion.apply(T)
+            u, w = face_velocities(model.grid, psi)
+            local = (K - upwind_matrix(model.grid, u, w)).tocsc()
+            f = F.ravel()
+            fnorm = float(np.linalg.norm(f))
+
+            def jv(v, T=T, psi=psi, base=base):
+                nonlocal evaluations
+                vv = v.reshape(shape)
+                vn = float(np.abs(vv).max())
+                if vn == 0.0:
+                    return np.zeros_like(v)
+                eps = 1e-7 * (1.0 + float(np.abs(T).max())) / vn
+                moved = model.tendency(T + eps * vv, psi + eps * dflow(vv))
+                evaluations += 1
+                return ((moved - base) / eps).ravel() + K @ v
+
+            n = f.size
+            for _attempt in range(6):
+                lu = sla.splu((identity / delta - local).tocsc())
+                A = sla.LinearOperator((n, n), matvec=lambda v, d=delta: v / d - jv(v))
+                M = sla.LinearOperator((n, n), matvec=lu.solve)
+                d, info = sla.gmres(A, f, rtol=1e-3, atol=0.0, restart=gmres_restart,
+                                    maxiter=2, M=M)
+                T_try = T + d.reshape(shape)
+                F_try, psi_try = steady_residual(model, T_try, psi)
+                evaluations += 1
+                norm_try = float(np.linalg.norm(F_try))
+                if not norm_try <= fnorm:       # also try half the step; keep the better one
+                    T_half = T + 0.5 * d.reshape(shape)
+                    F_half, psi_half = steady_residual(model, T_half, psi)
+                    evaluations += 1
+                    norm_half = float(np.linalg.norm(F_half))
+                    if norm_half < norm_try:
+                        T_try, F_try, psi_try, norm_try = T_half, F_half, psi_half, norm_half
+                if np.isfinite(norm_try) and norm_try <= ACCEPT_GROWTH * fnorm:
+                    break
+                delta *= 0.25
+            else:
+                log.info("newton: no acceptable pseudo-time step at iteration %d", it)
+                break
+            ratio = fnorm / max(norm_try, 1e-300)
+            delta = min(delta * (max(ratio, MIN_GROWTH) if ratio > 1.0 else ratio), 1e12)
+            T, F, psi, fnorm = T_try, F_try, psi_try, norm_try
+            fmax = float(np.abs(F).max())
+            history.append(fmax)
+            log.info("newton %d: max|F| = %.3e, next pseudo-time step %.3g (gmres info %d)",
+                     it, fmax, delta, info)
+        converged = bool(fmax <= tolerance)
+        return T, psi, NewtonReport(converged, len(history), evaluations, fmax, history)
