@@ -1,0 +1,647 @@
+"""Figures of a run file: fields, profiles, time series, a summary sheet, an animation.
+
+Every ``*_figure`` function takes a :class:`convsim.snapshot.RunFile` (from
+``read_run``) and returns a :class:`matplotlib.figure.Figure` on an Agg canvas
+(no pyplot, no global state), drawn in the house style of
+:mod:`convsim.style`; :func:`save_figures` writes it in the formats asked
+for.  Tests read the plotted data back from the artists.
+
+What is drawn
+-------------
+- temperature field T(x, z) (cell centres, ``pcolormesh`` over the cell
+  corners) with streamlines: in 2D the streamlines of an incompressible flow
+  are the contours of the streamfunction psi (u = dpsi/dz, w = -dpsi/dx), so
+  they are contours of psi on the corner grid, at levels +-k m / (n + 1),
+  k = 1..n, m = max |psi|, dashed where psi < 0 (the sense of rotation);
+  or, on request, velocity arrows (face velocities averaged to cell centres);
+- viscosity field eta(x, z) on a log colour scale when it varies;
+- horizontally averaged temperature and viscosity profiles against height;
+- time series of the Nusselt number at the top and the bottom and of vrms;
+- a one-page summary sheet with all of these and the run's key parameters.
+
+Units
+-----
+Nondimensional by default (lengths in d, time in d^2/kappa, velocities in
+kappa/d, temperature in dT above the top, viscosity in eta_ref).  When the
+run's config has a ``[body]`` table the figures use physical units through
+:mod:`convsim.units`: km, Myr, cm/yr, K, Pa s, and heat flux in mW m^-2 in
+place of the Nusselt number (q_dim = Nu k dT / d).
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from matplotlib import colors as mcolors
+from matplotlib import patheffects, ticker
+
+from . import style
+from .errors import ConfigError
+from .snapshot import RunFile, check_writable, iter_fields, read_run
+
+__all__ = ["Presentation", "presentation_for", "select_snapshot", "temperature_figure",
+           "viscosity_figure", "profiles_figure", "series_figure", "summary_figure",
+           "viscosity_varies", "save_figures", "plot_run", "animate_run", "animation_writer"]
+
+log = logging.getLogger(__name__)
+
+#: Number of streamline levels on each side of zero.
+STREAMLINE_LEVELS = 6
+#: Arrows across the box in the arrow plot (at most).
+ARROWS_ACROSS = 14
+#: Viscosity counts as varying when max/min exceeds this.
+VARIES = 1.0 + 1.0e-9
+
+_HALO = [patheffects.withStroke(linewidth=1.3, foreground="white")]
+
+
+# -- units of presentation --------------------------------------------------------------------
+@dataclass(frozen=True)
+class Presentation:
+    """How numbers are shown: nondimensional, or physical through ``convsim.units.Scales``.
+
+    Each ``*_values`` method maps nondimensional numbers or arrays to the shown
+    ones; each ``*_label`` attribute is the matching axis label with units.
+    """
+
+    scales: object = None  # convsim.units.Scales or None
+
+    @property
+    def physical(self) -> bool:
+        return self.scales is not None
+
+    def length(self, x):
+        return self.scales.length_to_km(x) if self.physical else x
+
+    def time(self, t):
+        return self.scales.time_to_myr(t) if self.physical else t
+
+    def temperature(self, T):
+        return self.scales.temperature_to_kelvin(T) if self.physical else T
+
+    def viscosity(self, eta):
+        return self.scales.viscosity_to_pa_s(eta) if self.physical else eta
+
+    def heat_flux(self, nu):
+        return self.scales.heat_flux_to_mw_m2(nu) if self.physical else nu
+
+    def velocity(self, u):
+        return self.scales.velocity_to_cm_per_yr(u) if self.physical else u
+
+    @property
+    def x_label(self):
+        return "horizontal position $x$ (km)" if self.physical else "$x\\,/\\,d$"
+
+    @property
+    def z_label(self):
+        return "height $z$ (km)" if self.physical else "$z\\,/\\,d$"
+
+    @property
+    def time_label(self):
+        return "time (Myr)" if self.physical else "time $t\\,/\\,(d^2/\\kappa)$"
+
+    @property
+    def temperature_label(self):
+        return "temperature $T$ (K)" if self.physical else "temperature $T\\,/\\,\\Delta T$"
+
+    @property
+    def viscosity_label(self):
+        return ("viscosity $\\eta$ (Pa s)" if self.physical
+                else "viscosity $\\eta\\,/\\,\\eta_\\mathrm{ref}$")
+
+    @property
+    def heat_flux_label(self):
+        return "heat flux $q$ (mW m$^{-2}$)" if self.physical else "Nusselt number $Nu$"
+
+    @property
+    def velocity_label(self):
+        return ("$v_\\mathrm{rms}$ (cm yr$^{-1}$)" if self.physical
+                else "$v_\\mathrm{rms}\\,/\\,(\\kappa/d)$")
+
+    def time_text(self, t) -> str:
+        return f"t = {self.time(t):.4g} Myr" if self.physical else f"t = {t:.4g}"
+
+
+def run_config(run: RunFile):
+    """The run's config (``convsim.config.Config``) from the TOML text stored in the file."""
+    from .config import parse_config
+    try:
+        return parse_config(tomllib.loads(run.config_text), source=f"{run.path} (attribute config)")
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"run file {str(run.path)!r}: its config attribute is not valid TOML "
+                          f"({exc})") from None
+
+
+def presentation_for(run: RunFile, units: str = "auto", config=None) -> Presentation:
+    """Nondimensional or physical presentation of a run.
+
+    Parameters
+    ----------
+    units : {"auto", "physical", "nondimensional"}
+        ``auto``: physical when the config has a ``[body]`` table.
+    """
+    if units not in ("auto", "physical", "nondimensional"):
+        raise ConfigError(f"--units = {units!r}: expected auto, physical or nondimensional")
+    if units == "nondimensional":
+        return Presentation()
+    cfg = run_config(run) if config is None else config
+    if cfg.body is None:
+        if units == "physical":
+            raise ConfigError(f"--units = 'physical': the run's config has no [body] table "
+                              f"(file {str(run.path)!r})")
+        return Presentation()
+    from .units import scales_from_body
+    return Presentation(scales_from_body(cfg.body))
+
+
+def select_snapshot(run_times, snapshot: int | None = None, time: str | float | None = None,
+                    presentation: Presentation | None = None) -> int:
+    """Index of the snapshot asked for: by number, by nearest time, or the last.
+
+    Parameters
+    ----------
+    run_times : array
+        Snapshot times (nondimensional).
+    snapshot : int, optional
+        Index; negative counts from the end.
+    time : float or str, optional
+        A nondimensional time, or (when the run has physical scales) a quantity
+        such as ``"12 Myr"``; the nearest snapshot is taken.
+    """
+    count = len(run_times)
+    if snapshot is not None and time is not None:
+        raise ConfigError("--snapshot and --time: give one of them, not both")
+    if snapshot is not None:
+        index = snapshot if snapshot >= 0 else count + snapshot
+        if not 0 <= index < count:
+            raise ConfigError(f"--snapshot = {snapshot}: out of range, the file holds {count} "
+                              f"snapshots (0 to {count - 1})")
+        return index
+    if time is None:
+        return count - 1
+    try:
+        t = float(time)
+    except (TypeError, ValueError):
+        if presentation is None or not presentation.physical:
+            raise ConfigError(f"--time = {time!r}: expected a nondimensional number (the run has "
+                              f"no [body] table for times with units)") from None
+        from .units import parse_quantity
+        t = presentation.scales.time_from_seconds(parse_quantity("--time", time, "s"))
+    if not math.isfinite(t):
+        raise ConfigError(f"--time = {time!r}: expected a finite number")
+    return int(np.argmin(np.abs(np.asarray(run_times) - t)))
+
+
+def viscosity_varies(eta) -> bool:
+    """Whether a viscosity field varies (max / min > 1 + 1e-9)."""
+    eta = np.asarray(eta, dtype=float)
+    lo, hi = float(np.nanmin(eta)), float(np.nanmax(eta))
+    return lo > 0.0 and hi / lo > VARIES
+
+
+# -- drawing on given axes ----------------------------------------------------------------------
+def _field_axes(ax, run: RunFile, pres: Presentation):
+    ax.set_aspect("equal")
+    ax.set_xlim(pres.length(run.x_node[0]), pres.length(run.x_node[-1]))
+    ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
+    ax.set_xlabel(pres.x_label)
+    ax.set_ylabel(pres.z_label)
+
+
+def streamline_levels(psi, n: int = STREAMLINE_LEVELS) -> np.ndarray:
+    """Contour levels of psi: +-k m/(n+1), k = 1..n, m = max|psi| (empty for psi = 0)."""
+    m = float(np.max(np.abs(psi))) if np.size(psi) else 0.0
+    if not (m > 0.0 and math.isfinite(m)):
+        return np.array([])
+    k = np.arange(1, n + 1) / (n + 1)
+    return np.concatenate([-m * k[::-1], m * k])
+
+
+def draw_streamlines(ax, run: RunFile, pres: Presentation, psi=None):
+    """Contours of the streamfunction on the corner grid; returns the ContourSet or None."""
+    psi = run.fields["streamfunction"] if psi is None else psi
+    levels = streamline_levels(psi)
+    if levels.size == 0:
+        return None
+    cs = ax.contour(pres.length(run.x_node), pres.length(run.z_node), psi, levels=levels,
+                    colors="black", linewidths=0.6, negative_linestyles="dashed")
+    cs.set_path_effects(_HALO)
+    return cs
+
+
+def cell_velocities(run: RunFile):
+    """Face velocities averaged to the cell centres: (u, w), each (nz, nx), in kappa/d."""
+    ux, wz = run.fields["velocity_x"], run.fields["velocity_z"]
+    return 0.5 * (ux[:, 1:] + ux[:, :-1]), 0.5 * (wz[1:, :] + wz[:-1, :])
+
+
+def draw_arrows(ax, run: RunFile, pres: Presentation):
+    """Velocity arrows at (a subset of) the cell centres; returns the Quiver."""
+    u, w = cell_velocities(run)
+    nz, nx = u.shape
+    stride = max(1, math.ceil(max(nx, nz) / ARROWS_ACROSS))
+    j0, i0 = (nz % stride) // 2 + stride // 2, (nx % stride) // 2 + stride // 2
+    sl = (slice(j0, None, stride), slice(i0, None, stride))
+    x, z = np.meshgrid(pres.length(run.x), pres.length(run.z))
+    q = ax.quiver(x[sl], z[sl], pres.velocity(u[sl]), pres.velocity(w[sl]), color="white",
+                  edgecolor="black", linewidth=0.3, pivot="mid", width=0.006,
+                  angles="xy", scale_units=None)
+    speed = float(np.max(np.hypot(u, w)))
+    if speed > 0:
+        ref = float(f"{pres.velocity(speed) / 2:.1g}")
+        unit = "cm/yr" if pres.physical else "$\\kappa/d$"
+        ax.quiverkey(q, 0.98, 1.03, ref, f"{ref:g} {unit}", labelpos="W", coordinates="axes",
+                     fontproperties={"size": 7}, color="black")
+    return q
+
+
+def draw_temperature(ax, run: RunFile, pres: Presentation, *, arrows=False, colorbar=True):
+    """Temperature field with streamlines (or arrows) on ``ax``; returns the QuadMesh."""
+    T = pres.temperature(run.fields["temperature"])
+    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), T,
+                         cmap=style.TEMPERATURE_CMAP, shading="flat", rasterized=True,
+                         vmin=float(np.min(T)), vmax=float(np.max(T)))
+    mesh.set_label("temperature")
+    if arrows:
+        draw_arrows(ax, run, pres)
+    else:
+        draw_streamlines(ax, run, pres)
+    _field_axes(ax, run, pres)
+    ax.set_title(pres.time_text(run.times[run.snapshot]) + f"  (snapshot {run.snapshot})",
+                 loc="left")
+    if colorbar:
+        _colorbar(ax, mesh, pres.temperature_label)
+    return mesh
+
+
+def _colorbar(ax, mesh, label):
+    """A colour bar exactly as tall as the (equal-aspect) field axes, just right of it."""
+    cax = ax.inset_axes([1.04, 0.0, 0.05, 1.0])
+    return ax.figure.colorbar(mesh, cax=cax, label=label)
+
+
+def _log_colorbar(cbar):
+    lo, hi = cbar.mappable.norm.vmin, cbar.mappable.norm.vmax
+    if hi / lo < 20.0:  # less than about a decade: label the 1-2-5 steps too
+        cbar.ax.yaxis.set_major_locator(ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+        cbar.ax.yaxis.set_major_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False))
+
+
+def draw_viscosity(ax, run: RunFile, pres: Presentation, *, colorbar=True):
+    """Viscosity field on ``ax``, log colour scale when it varies; returns the QuadMesh."""
+    eta = pres.viscosity(run.fields["viscosity"])
+    lo, hi = float(np.min(eta)), float(np.max(eta))
+    norm = (mcolors.LogNorm(vmin=lo, vmax=hi) if viscosity_varies(eta)
+            else mcolors.Normalize(vmin=lo * 0.5, vmax=hi * 1.5))
+    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), eta,
+                         cmap=style.VISCOSITY_CMAP, norm=norm, shading="flat", rasterized=True)
+    mesh.set_label("viscosity")
+    _field_axes(ax, run, pres)
+    ax.set_title(pres.time_text(run.times[run.snapshot]), loc="left")
+    if colorbar:
+        cbar = _colorbar(ax, mesh, pres.viscosity_label)
+        if isinstance(norm, mcolors.LogNorm):
+            _log_colorbar(cbar)
+    return mesh
+
+
+def draw_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation):
+    """Horizontally averaged T(z) and eta(z); returns the two Line2D."""
+    z = pres.length(run.z)
+    (lt,) = ax_t.plot(pres.temperature(run.fields["temperature_profile"]), z,
+                      color=style.LINE_COLORS[1], label="temperature")
+    ax_t.set_xlabel(pres.temperature_label)
+    ax_t.set_ylabel(pres.z_label)
+    eta = pres.viscosity(run.fields["viscosity_profile"])
+    (le,) = ax_eta.plot(eta, z, color=style.LINE_COLORS[0], label="viscosity")
+    if viscosity_varies(eta):
+        ax_eta.set_xscale("log")
+    else:
+        ax_eta.set_xlim(float(eta.min()) * 0.5, float(eta.max()) * 1.5)
+    ax_eta.set_xlabel(pres.viscosity_label)
+    for ax in (ax_t, ax_eta):
+        ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
+        ax.grid(True, linewidth=0.3, color="0.85")
+    ax_eta.tick_params(labelleft=False)
+    return lt, le
+
+
+def draw_series(ax_nu, ax_v, run: RunFile, pres: Presentation):
+    """Nu top and bottom (or heat flux) and vrms against time; returns the three Line2D."""
+    s = run.series
+    t = pres.time(s["series_time"])
+    (top,) = ax_nu.plot(t, pres.heat_flux(s["nusselt_top"]), color=style.LINE_COLORS[1],
+                        label="top")
+    (bottom,) = ax_nu.plot(t, pres.heat_flux(s["nusselt_bottom"]), color=style.LINE_COLORS[0],
+                           linestyle="--", label="bottom")
+    ax_nu.set_ylabel(pres.heat_flux_label)
+    ax_nu.legend(loc="best")
+    (vrms,) = ax_v.plot(t, pres.velocity(s["vrms"]), color=style.LINE_COLORS[2], label="vrms")
+    ax_v.set_ylabel(pres.velocity_label)
+    ax_v.set_xlabel(pres.time_label)
+    shown = pres.time(run.times[run.snapshot])
+    for ax in (ax_nu, ax_v):
+        ax.grid(True, linewidth=0.3, color="0.85")
+        if len(t):
+            start = min(float(t[0]), float(pres.time(run.times[0])))
+            ax.set_xlim(start, float(t[-1]) if t[-1] > start else start + 1.0)
+            ax.axvline(shown, color="0.5", linewidth=0.6, linestyle=":", zorder=0)
+    ax_nu.tick_params(labelbottom=False)
+    return top, bottom, vrms
+
+
+# -- figures ----------------------------------------------------------------------------------
+def _field_size(run: RunFile, width=style.COLUMN_WIDTH):
+    aspect = float(run.x_node[-1] - run.x_node[0]) / float(run.z_node[-1] - run.z_node[0])
+    height = min(width * 1.3, max(1.6, (width - 1.25) / aspect + 0.7))
+    return width, height
+
+
+def temperature_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None):
+    """Temperature field with streamlines (or velocity arrows), one column wide."""
+    pres = presentation_for(run) if pres is None else pres
+    with style.context():
+        fig = style.new_figure(*_field_size(run))
+        draw_temperature(fig.add_subplot(), run, pres, arrows=arrows)
+    return fig
+
+
+def viscosity_figure(run: RunFile, *, pres: Presentation | None = None):
+    """Viscosity field (log colour scale when it varies), one column wide."""
+    pres = presentation_for(run) if pres is None else pres
+    with style.context():
+        fig = style.new_figure(*_field_size(run))
+        draw_viscosity(fig.add_subplot(), run, pres)
+    return fig
+
+
+def profiles_figure(run: RunFile, *, pres: Presentation | None = None):
+    """Horizontally averaged temperature and viscosity against height, side by side."""
+    pres = presentation_for(run) if pres is None else pres
+    with style.context():
+        fig = style.new_figure(style.COLUMN_WIDTH, 2.6)
+        ax_t, ax_eta = fig.subplots(1, 2, sharey=True)
+        draw_profiles(ax_t, ax_eta, run, pres)
+    return fig
+
+
+def series_figure(run: RunFile, *, pres: Presentation | None = None):
+    """Nusselt numbers (top, bottom) and vrms against time, stacked."""
+    pres = presentation_for(run) if pres is None else pres
+    with style.context():
+        fig = style.new_figure(style.COLUMN_WIDTH, 3.2)
+        ax_nu, ax_v = fig.subplots(2, 1, sharex=True)
+        draw_series(ax_nu, ax_v, run, pres)
+    return fig
+
+
+def _final(run: RunFile, key: str):
+    """A final diagnostic: the ``final_`` attribute, else the last series row."""
+    value = run.attrs.get(f"final_{key}")
+    if value is None and key in run.series and len(run.series[key]):
+        value = run.series[key][-1]
+    return value
+
+
+def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple[str, str]]:
+    """The run's key parameters as (name, value) text pairs for the summary sheet."""
+    cfg = run_config(run) if config is None else config
+    ra_series = run.series.get("rayleigh", ())
+    ra = float(ra_series[-1]) if len(ra_series) else cfg.physics.rayleigh
+    b, v = cfg.boundaries, cfg.viscosity
+    law = v.law
+    if law == "frank-kamenetskii":
+        law += f", contrast exp(b) = {v.thermal_contrast:g}"
+        if v.depth_contrast != 1.0:
+            law += f", depth exp(c) = {v.depth_contrast:g}"
+    elif law == "arrhenius":
+        law += (f", E = {v.activation_energy:g}, V = {v.activation_volume:g}, "
+                f"T0 = {v.temperature_offset:g}")
+    if v.minimum or v.maximum:
+        law += f", cut-offs [{v.minimum:g}, {v.maximum or math.inf:g}]"
+
+    def heat(kind, value):
+        return f"T = {value:g}" if kind == "temperature" else f"flux {value:g}"
+
+    def num(x, fmt=".6g"):
+        return "n/a" if x is None else format(float(x), fmt)
+
+    nz, nx = run.fields["temperature"].shape
+    nu_top, nu_bottom, vrms = (_final(run, k) for k in ("nusselt_top", "nusselt_bottom", "vrms"))
+    t_end = _final(run, "time")
+    if t_end is None and len(run.series.get("series_time", ())):
+        t_end = run.series["series_time"][-1]
+    lines = [
+        ("status", f"{run.attrs.get('status', '?')}"
+                   + (f" ({run.attrs['final_message']})" if run.attrs.get("final_message") else "")),
+        ("Rayleigh number", f"{ra:.6g}"
+         + (f", internal heating H = {cfg.physics.internal_heating:g}"
+            if cfg.physics.internal_heating else "")),
+        ("grid", f"{nx} x {nz} cells, aspect {float(run.x_node[-1] - run.x_node[0]):g}, "
+                 f"sides {b.sides}"),
+        ("top", f"{b.top_flow}, {heat(b.top_heat, b.top_value)}"),
+        ("bottom", f"{b.bottom_flow}, {heat(b.bottom_heat, b.bottom_value)}"),
+        ("viscosity law", law),
+        ("final Nu top / bottom", f"{num(nu_top)} / {num(nu_bottom)}"
+         + (f" ({pres.heat_flux(nu_top):.4g} / {pres.heat_flux(nu_bottom):.4g} mW/m2)"
+            if pres.physical and None not in (nu_top, nu_bottom) else "")),
+        ("final vrms", num(vrms) + (f" ({pres.velocity(vrms):.4g} cm/yr)"
+                                    if pres.physical and vrms is not None else "")),
+        ("steps, time", f"{num(_final(run, 'steps'), 'g')}, t = {num(t_end)}"
+         + (f" ({pres.time(t_end):.4g} Myr)" if pres.physical and t_end is not None else "")),
+        ("snapshot shown", f"{run.snapshot} of {len(run.times)}, "
+                           f"{pres.time_text(run.times[run.snapshot])}"
+                          ),
+    ]
+    if pres.physical:
+        sc = pres.scales
+        lines += [
+            ("layer", f"d = {sc.depth / 1e3:g} km, dT = {sc.temperature_contrast:g} K, "
+                      f"eta_ref = {sc.reference_viscosity:.3g} Pa s"),
+            ("scales", f"time {sc.time_to_myr(1.0):.4g} Myr, velocity "
+                       f"{sc.velocity_to_cm_per_yr(1.0):.3g} cm/yr, heat flux "
+                       f"{sc.heat_flux_to_mw_m2(1.0):.3g} mW/m2"),
+        ]
+        ra_body = sc.rayleigh()
+        if abs(ra_body - ra) > 1e-3 * ra:
+            lines.append(("note", f"Ra from [body] = {ra_body:.4g} differs from the run's Ra"))
+    lines.append(("convsim", f"{run.attrs.get('convsim_version', '?')}, file {run.path.name}"))
+    return lines
+
+
+def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None):
+    """One page: fields, profiles, time series and the key parameters of the run."""
+    cfg = run_config(run)
+    pres = presentation_for(run, config=cfg) if pres is None else pres
+    with style.context():
+        fig = style.new_figure(style.PAGE_WIDTH, 9.4)
+        title = run.attrs.get("title") or cfg.title or run.path.stem
+        fig.suptitle(title, fontsize=10, x=0.02, horizontalalignment="left")
+        top, middle, bottom, text = fig.subfigures(4, 1, height_ratios=[3.3, 2.2, 2.3, 1.6])
+        ax_t, ax_eta = top.subplots(1, 2)
+        draw_temperature(ax_t, run, pres, arrows=arrows)
+        draw_viscosity(ax_eta, run, pres)
+        ax_pt, ax_pe = middle.subplots(1, 2, sharey=True)
+        draw_profiles(ax_pt, ax_pe, run, pres)
+        ax_nu, ax_v = bottom.subplots(1, 2)
+        draw_series(ax_nu, ax_v, run, pres)
+        ax_nu.tick_params(labelbottom=True)
+        ax_nu.set_xlabel(pres.time_label)
+        lines = parameter_lines(run, pres, cfg)
+        half = (len(lines) + 1) // 2
+        for col, chunk in enumerate((lines[:half], lines[half:])):
+            body = "\n".join(f"{k}: {v}" for k, v in chunk)
+            text.text(0.02 + 0.5 * col, 0.95, body, va="top", ha="left", fontsize=7,
+                      linespacing=1.5, wrap=True)
+    return fig
+
+
+# -- writing ----------------------------------------------------------------------------------
+def _formats(formats) -> tuple[str, ...]:
+    if isinstance(formats, str):
+        formats = [f.strip().lower() for f in formats.split(",") if f.strip()]
+    formats = tuple(dict.fromkeys(formats))
+    bad = [f for f in formats if f not in style.FORMATS]
+    if bad or not formats:
+        raise ConfigError(f"--format = {','.join(formats)!r}: expected a comma-separated list of "
+                          f"{', '.join(style.FORMATS)}")
+    return formats
+
+
+def save_figures(figures: dict, out_dir: str | Path, formats=style.FORMATS, *,
+                 overwrite: bool = False, title: str = "") -> list[Path]:
+    """Write ``{stem: Figure}`` into ``out_dir`` as ``stem.<fmt>``; refuse any existing file.
+
+    Every target is checked before the first is written, so a refused call
+    writes nothing.
+    """
+    from . import __version__
+    formats = _formats(formats)
+    out_dir = Path(out_dir)
+    targets = [out_dir / f"{stem}.{fmt}" for stem in figures for fmt in formats]
+    for path in targets:
+        check_writable(path, overwrite)
+    written = []
+    for stem, fig in figures.items():
+        written += style.save(fig, out_dir / stem, formats, title=f"{title} {stem}".strip(),
+                              creator=f"convsim {__version__}")
+    return written
+
+
+def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_dir=None,
+             formats=style.FORMATS, arrows: bool = False, overwrite: bool = False,
+             units: str = "auto") -> list[Path]:
+    """All figures of one run file (the ``convsim plot`` command); returns the paths written.
+
+    Files are ``<stem>_temperature``, ``_viscosity`` (only when the viscosity
+    varies), ``_profiles``, ``_series`` and ``_summary`` in ``out_dir`` (default:
+    beside the run file); when a snapshot or time is chosen the snapshot
+    figures carry ``_sNNNN``.
+    """
+    path = Path(path)
+    formats = _formats(formats)
+    first = read_run(path)
+    cfg = run_config(first)
+    pres = presentation_for(first, units, cfg)
+    index = select_snapshot(first.times, snapshot, time, pres)
+    run = first if index == first.snapshot else read_run(path, index)
+    tag = "" if snapshot is None and time is None else f"_s{index:04d}"
+    stem = path.stem
+    figures = {f"{stem}_temperature{tag}": temperature_figure(run, arrows=arrows, pres=pres)}
+    if viscosity_varies(run.fields["viscosity"]):
+        figures[f"{stem}_viscosity{tag}"] = viscosity_figure(run, pres=pres)
+    else:
+        log.info("viscosity uniform (%g): no viscosity field figure", run.fields["viscosity"].flat[0])
+    figures[f"{stem}_profiles{tag}"] = profiles_figure(run, pres=pres)
+    figures[f"{stem}_series"] = series_figure(run, pres=pres)
+    figures[f"{stem}_summary{tag}"] = summary_figure(run, arrows=arrows, pres=pres)
+    out_dir = path.parent if out_dir is None else Path(out_dir)
+    return save_figures(figures, out_dir, formats, overwrite=overwrite,
+                        title=first.attrs.get("title", ""))
+
+
+# -- animation --------------------------------------------------------------------------------
+def animation_writer(output: Path, fps: int):
+    """The matplotlib writer for ``output``: FFMpegWriter for .mp4, PillowWriter for .gif."""
+    import shutil
+    from matplotlib import animation
+    suffix = output.suffix.lower()
+    if suffix == ".mp4":
+        if shutil.which("ffmpeg") is None:
+            raise ConfigError(f"--out = {str(output)!r}: MP4 needs ffmpeg, which is not on the "
+                              f"PATH; name a .gif file instead")
+        return animation.FFMpegWriter(fps=fps, codec="libx264", bitrate=-1,
+                                      extra_args=["-pix_fmt", "yuv420p"],
+                                      metadata={"title": output.stem, "comment": "convsim"})
+    if suffix == ".gif":
+        return animation.PillowWriter(fps=fps)
+    raise ConfigError(f"--out = {str(output)!r}: expected a .mp4 or .gif file name")
+
+
+def default_animation_path(path: Path) -> Path:
+    """``<stem>_temperature.mp4`` beside the run file when ffmpeg is there, else ``.gif``."""
+    import shutil
+    suffix = ".mp4" if shutil.which("ffmpeg") else ".gif"
+    return path.with_name(f"{path.stem}_temperature{suffix}")
+
+
+def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int = 10,
+                overwrite: bool = False, units: str = "auto", dpi: int = 150,
+                progress=None) -> Path:
+    """Animation of the temperature field with streamlines over the snapshots of a run.
+
+    Parameters
+    ----------
+    output : path, optional
+        ``.mp4`` (through ffmpeg) or ``.gif`` (through pillow); default
+        :func:`default_animation_path`.
+    fps : int
+        Frames (snapshots) per second, 1 to 120.
+    progress : callable, optional
+        ``progress(iterable, total) -> iterable``, e.g. a tqdm bar.
+
+    Colour limits are the extremes over all snapshots, so colours mean the same
+    in every frame; the streamline levels follow each frame's own max |psi|.
+    """
+    path = Path(path)
+    if not (isinstance(fps, int) and 1 <= fps <= 120):
+        raise ConfigError(f"--fps = {fps!r}: expected a whole number from 1 to 120")
+    output = default_animation_path(path) if output is None else Path(output)
+    writer = animation_writer(output, fps)
+    check_writable(output, overwrite)
+    run = read_run(path, 0)
+    pres = presentation_for(run, units)
+    lo, hi = math.inf, -math.inf
+    for _, _, f in iter_fields(path, ("temperature",)):
+        lo, hi = min(lo, float(f["temperature"].min())), max(hi, float(f["temperature"].max()))
+    count = len(run.times)
+    with style.context():
+        width, height = _field_size(run)
+        # whole, even pixel counts (yuv420p video needs even sizes)
+        width, height = (2 * round(v * dpi / 2) / dpi for v in (width, height))
+        fig = style.new_figure(width, height)
+        ax = fig.add_subplot()
+        mesh = draw_temperature(ax, run, pres)
+        mesh.set_clim(pres.temperature(lo), pres.temperature(hi))
+        fig.canvas.draw()
+        fig.set_layout_engine("none")  # fix the layout: no jitter as the title changes
+        frames = iter_fields(path, ("temperature", "streamfunction"))
+        if progress is not None:
+            frames = progress(frames, count)
+        part = output.with_name(output.name + ".part" + output.suffix)
+        with writer.saving(fig, str(part), dpi):
+            for index, t, f in frames:
+                mesh.set_array(pres.temperature(f["temperature"]))
+                for artist in list(ax.collections):
+                    if artist is not mesh:
+                        artist.remove()
+                draw_streamlines(ax, run, pres, psi=f["streamfunction"])
+                ax.set_title(pres.time_text(t) + f"  (snapshot {index})", loc="left")
+                writer.grab_frame()
+    part.replace(output)
+    return output
