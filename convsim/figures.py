@@ -368,7 +368,7 @@ def temperature_figure(run: RunFile, *, arrows: bool = False, pres: Presentation
     with style.context():
         fig = style.new_figure(*_field_size(run))
         draw_temperature(fig.add_subplot(), run, pres, arrows=arrows)
-    return fig
+    return style.freeze_layout(fig)
 
 
 def viscosity_figure(run: RunFile, *, pres: Presentation | None = None):
@@ -377,7 +377,7 @@ def viscosity_figure(run: RunFile, *, pres: Presentation | None = None):
     with style.context():
         fig = style.new_figure(*_field_size(run))
         draw_viscosity(fig.add_subplot(), run, pres)
-    return fig
+    return style.freeze_layout(fig)
 
 
 def profiles_figure(run: RunFile, *, pres: Presentation | None = None):
@@ -387,7 +387,7 @@ def profiles_figure(run: RunFile, *, pres: Presentation | None = None):
         fig = style.new_figure(style.COLUMN_WIDTH, 2.6)
         ax_t, ax_eta = fig.subplots(1, 2, sharey=True)
         draw_profiles(ax_t, ax_eta, run, pres)
-    return fig
+    return style.freeze_layout(fig)
 
 
 def series_figure(run: RunFile, *, pres: Presentation | None = None):
@@ -397,7 +397,7 @@ def series_figure(run: RunFile, *, pres: Presentation | None = None):
         fig = style.new_figure(style.COLUMN_WIDTH, 3.2)
         ax_nu, ax_v = fig.subplots(2, 1, sharex=True)
         draw_series(ax_nu, ax_v, run, pres)
-    return fig
+    return style.freeze_layout(fig)
 
 
 def _final(run: RunFile, key: str):
@@ -498,7 +498,7 @@ def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | N
             body = "\n".join(f"{k}: {v}" for k, v in chunk)
             text.text(0.02 + 0.5 * col, 0.95, body, va="top", ha="left", fontsize=7,
                       linespacing=1.5, wrap=True)
-    return fig
+    return style.freeze_layout(fig)
 
 
 # -- writing ----------------------------------------------------------------------------------
@@ -552,17 +552,24 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
     run = first if index == first.snapshot else read_run(path, index)
     tag = "" if snapshot is None and time is None else f"_s{index:04d}"
     stem = path.stem
-    figures = {f"{stem}_temperature{tag}": temperature_figure(run, arrows=arrows, pres=pres)}
+    makers = {f"{stem}_temperature{tag}": lambda: temperature_figure(run, arrows=arrows, pres=pres)}
     if viscosity_varies(run.fields["viscosity"]):
-        figures[f"{stem}_viscosity{tag}"] = viscosity_figure(run, pres=pres)
+        makers[f"{stem}_viscosity{tag}"] = lambda: viscosity_figure(run, pres=pres)
     else:
-        log.info("viscosity uniform (%g): no viscosity field figure", run.fields["viscosity"].flat[0])
-    figures[f"{stem}_profiles{tag}"] = profiles_figure(run, pres=pres)
-    figures[f"{stem}_series"] = series_figure(run, pres=pres)
-    figures[f"{stem}_summary{tag}"] = summary_figure(run, arrows=arrows, pres=pres)
+        log.info("viscosity uniform (%g): no viscosity field figure",
+                 run.fields["viscosity"].flat[0])
+    makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres)
+    makers[f"{stem}_series"] = lambda: series_figure(run, pres=pres)
+    makers[f"{stem}_summary{tag}"] = lambda: summary_figure(run, arrows=arrows, pres=pres)
     out_dir = path.parent if out_dir is None else Path(out_dir)
-    return save_figures(figures, out_dir, formats, overwrite=overwrite,
-                        title=first.attrs.get("title", ""))
+    for name in makers:  # refuse before drawing anything
+        for fmt in formats:
+            check_writable(out_dir / f"{name}.{fmt}", overwrite)
+    written = []
+    for name, make in makers.items():  # one figure in memory at a time
+        written += save_figures({name: make()}, out_dir, formats, overwrite=True,
+                                title=first.attrs.get("title", ""))
+    return written
 
 
 # -- animation --------------------------------------------------------------------------------
@@ -628,8 +635,7 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
         ax = fig.add_subplot()
         mesh = draw_temperature(ax, run, pres)
         mesh.set_clim(pres.temperature(lo), pres.temperature(hi))
-        fig.canvas.draw()
-        fig.set_layout_engine("none")  # fix the layout: no jitter as the title changes
+        style.freeze_layout(fig)  # no jitter as the title changes
         frames = iter_fields(path, ("temperature", "streamfunction"))
         if progress is not None:
             frames = progress(frames, count)

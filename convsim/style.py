@@ -50,8 +50,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 __all__ = ["COLUMN_WIDTH", "PAGE_WIDTH", "TEMPERATURE_CMAP", "VISCOSITY_CMAP", "DIVERGING_CMAP",
-           "LINE_COLORS", "RC", "FORMATS", "context", "new_figure", "save", "metadata_for",
-           "to_rgba_array", "symmetric_limits"]
+           "LINE_COLORS", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
+           "metadata_for", "to_rgba_array", "symmetric_limits"]
 
 #: Width of one journal column [in].
 COLUMN_WIDTH = 3.5
@@ -152,6 +152,33 @@ def new_figure(width: float = COLUMN_WIDTH, height: float | None = None, **kwarg
     height = 0.75 * width if height is None else height
     fig = Figure(figsize=(width, height), **kwargs)
     FigureCanvasAgg(fig)
+    return fig
+
+
+def freeze_layout(fig: Figure, digits: int = 6) -> Figure:
+    """Lay the figure out once (constrained layout), then fix every axes position.
+
+    Constrained layout is not idempotent (a second draw moves axes by a few
+    thousandths) and carries round-off noise of order 1e-16 that reaches the
+    SVG clip-path ids (the noise depends on the memory layout of the process);
+    so the layout is computed once, rounded (axes and subfigures) to ``digits``
+    decimals of the figure size (far below a pixel) and the layout engine is
+    switched off.  Every format saved afterwards shows the same layout, and the
+    same data give the same bytes.
+    """
+    with context():
+        fig.canvas.draw()
+    fig.set_layout_engine("none")
+    subfigures = list(fig.subfigs)
+    while subfigures:  # constrained layout places subfigures too
+        sub = subfigures.pop()
+        sub.bbox_relative.set_points(np.round(sub.bbox_relative.get_points(), digits))
+        subfigures += list(sub.subfigs)
+    for ax in fig.get_axes():
+        if ax.get_axes_locator() is not None:  # inset axes follow their parent
+            continue
+        ax.set_position([round(v, digits) for v in ax.get_position(original=True).bounds],
+                        which="original")
     return fig
 
 
