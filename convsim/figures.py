@@ -15,6 +15,8 @@ What is drawn
   k = 1..n, m = max |psi|, dashed where psi < 0 (the sense of rotation);
   or, on request, velocity arrows (face velocities averaged to cell centres);
 - viscosity field eta(x, z) on a log colour scale when it varies;
+- temperature anomaly T - <T>(z) on the diverging map (summary sheet, uniform
+  viscosity);
 - horizontally averaged temperature and viscosity profiles against height;
 - time series of the Nusselt number at the top and the bottom and of vrms;
 - a one-page summary sheet with all of these and the run's key parameters.
@@ -84,6 +86,9 @@ class Presentation:
     def temperature(self, T):
         return self.scales.temperature_to_kelvin(T) if self.physical else T
 
+    def temperature_difference(self, dT):
+        return dT * self.scales.temperature_contrast if self.physical else dT
+
     def viscosity(self, eta):
         return self.scales.viscosity_to_pa_s(eta) if self.physical else eta
 
@@ -108,6 +113,11 @@ class Presentation:
     @property
     def temperature_label(self):
         return "temperature $T$ (K)" if self.physical else "temperature $T\\,/\\,\\Delta T$"
+
+    @property
+    def anomaly_label(self):
+        return ("$T - \\langle T \\rangle$ (K)" if self.physical
+                else "$(T - \\langle T \\rangle)\\,/\\,\\Delta T$")
 
     @property
     def viscosity_label(self):
@@ -205,10 +215,27 @@ def viscosity_varies(eta) -> bool:
 
 
 # -- drawing on given axes ----------------------------------------------------------------------
+def _tick_step(extent: float, bins: int) -> float:
+    """A 1-2-2.5-5 tick step giving at most ``bins`` intervals over ``extent``."""
+    values = ticker.MaxNLocator(nbins=bins, steps=[1, 2, 2.5, 5, 10]).tick_values(0.0, extent)
+    return float(values[1] - values[0])
+
+
 def _field_axes(ax, run: RunFile, pres: Presentation):
+    """Equal aspect, limits at the box walls, ticks fixed by the box size alone.
+
+    The tick steps do not depend on the axes size: equal aspect shrinks the axes
+    after the layout is computed, and ticks chosen for the shrunk axes would have
+    other label widths than those the layout made room for.
+    """
+    x0, x1 = pres.length(run.x_node[0]), pres.length(run.x_node[-1])
+    z0, z1 = pres.length(run.z_node[0]), pres.length(run.z_node[-1])
     ax.set_aspect("equal")
-    ax.set_xlim(pres.length(run.x_node[0]), pres.length(run.x_node[-1]))
-    ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
+    ax.set_xlim(x0, x1)
+    ax.set_ylim(z0, z1)
+    wide = (x1 - x0) / (z1 - z0)
+    ax.xaxis.set_major_locator(ticker.MultipleLocator(_tick_step(x1 - x0, 6)))
+    ax.yaxis.set_major_locator(ticker.MultipleLocator(_tick_step(z1 - z0, 4 if wide < 2 else 2)))
     ax.set_xlabel(pres.x_label)
     ax.set_ylabel(pres.z_label)
 
@@ -255,8 +282,8 @@ def draw_arrows(ax, run: RunFile, pres: Presentation):
     if speed > 0:
         ref = float(f"{pres.velocity(speed) / 2:.1g}")
         unit = "cm/yr" if pres.physical else "$\\kappa/d$"
-        ax.quiverkey(q, 0.98, 1.03, ref, f"{ref:g} {unit}", labelpos="W", coordinates="axes",
-                     fontproperties={"size": 7}, color="black")
+        ax.quiverkey(q, 0.92, 1.045, ref, f"{ref:g} {unit}", labelpos="W", coordinates="axes",
+                     fontproperties={"size": 7}, color="black", labelsep=0.05)
     return q
 
 
@@ -279,17 +306,64 @@ def draw_temperature(ax, run: RunFile, pres: Presentation, *, arrows=False, colo
     return mesh
 
 
+def draw_anomaly(ax, run: RunFile, pres: Presentation, *, colorbar=True):
+    """Temperature anomaly T - <T>(z) (row mean removed) on the diverging map; the QuadMesh."""
+    T = run.fields["temperature"]
+    anomaly = pres.temperature_difference(T - T.mean(axis=1, keepdims=True))
+    lo, hi = style.symmetric_limits(anomaly)
+    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), anomaly,
+                         cmap=style.DIVERGING_CMAP, vmin=lo, vmax=hi, shading="flat",
+                         rasterized=True)
+    mesh.set_label("temperature anomaly")
+    _field_axes(ax, run, pres)
+    ax.set_title(pres.time_text(run.times[run.snapshot]), loc="left")
+    if colorbar:
+        _colorbar(ax, mesh, pres.anomaly_label)
+    return mesh
+
+
 def _colorbar(ax, mesh, label):
     """A colour bar exactly as tall as the (equal-aspect) field axes, just right of it."""
     cax = ax.inset_axes([1.04, 0.0, 0.05, 1.0])
     return ax.figure.colorbar(mesh, cax=cax, label=label)
 
 
-def _log_colorbar(cbar):
-    lo, hi = cbar.mappable.norm.vmin, cbar.mappable.norm.vmax
-    if hi / lo < 20.0:  # less than about a decade: label the 1-2-5 steps too
-        cbar.ax.yaxis.set_major_locator(ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
-        cbar.ax.yaxis.set_major_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False))
+def _log_label(value: float) -> str:
+    """A tick label: plain for 1e-3 <= v < 1e4, else m x 10^k in mathtext."""
+    if 1.0e-3 <= abs(value) < 1.0e4:
+        return f"{value:g}"
+    exponent = math.floor(math.log10(abs(value)) + 1e-9)
+    mantissa = round(value / 10.0**exponent, 6)
+    if mantissa == 1.0:
+        return f"$10^{{{exponent}}}$"
+    return f"${mantissa:g}\\times10^{{{exponent}}}$"
+
+
+def log_ticks(axis, lo: float, hi: float, max_labels: int = 5) -> list[float]:
+    """Label a log axis over [lo, hi] with 1, 1-2-5 or 1..9 times powers of ten.
+
+    The densest of those sets with at most ``max_labels`` ticks inside the range
+    (at least two) is used, so that a range of less than a decade still gets
+    labels and a wide one does not crowd; minor ticks stay unlabelled.
+    """
+    first, last = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
+    chosen = []
+    for subs in ((1.0,), (1.0, 2.0, 5.0), (1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0)):
+        ticks = [m * 10.0**k for k in range(first, last + 1) for m in subs
+                 if lo * (1 - 1e-9) <= m * 10.0**k <= hi * (1 + 1e-9)]
+        if len(ticks) > max_labels and len(chosen) >= 2:
+            break
+        chosen = ticks
+        if len(ticks) >= 3:
+            break
+    if len(chosen) > max_labels:  # many decades: every n-th power of ten
+        step = math.ceil(len(chosen) / max_labels)
+        chosen = chosen[::step]
+    axis.set_major_locator(ticker.FixedLocator(chosen))
+    axis.set_major_formatter(ticker.FixedFormatter([_log_label(v) for v in chosen]))
+    axis.set_minor_locator(ticker.LogLocator(subs="auto"))
+    axis.set_minor_formatter(ticker.NullFormatter())
+    return chosen
 
 
 def draw_viscosity(ax, run: RunFile, pres: Presentation, *, colorbar=True):
@@ -306,7 +380,7 @@ def draw_viscosity(ax, run: RunFile, pres: Presentation, *, colorbar=True):
     if colorbar:
         cbar = _colorbar(ax, mesh, pres.viscosity_label)
         if isinstance(norm, mcolors.LogNorm):
-            _log_colorbar(cbar)
+            log_ticks(cbar.ax.yaxis, lo, hi, max_labels=6)
     return mesh
 
 
@@ -321,6 +395,10 @@ def draw_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation):
     (le,) = ax_eta.plot(eta, z, color=style.LINE_COLORS[0], label="viscosity")
     if viscosity_varies(eta):
         ax_eta.set_xscale("log")
+        lo, hi = float(eta.min()), float(eta.max())
+        pad = (hi / lo) ** 0.05
+        ax_eta.set_xlim(lo / pad, hi * pad)
+        log_ticks(ax_eta.xaxis, lo / pad, hi * pad, max_labels=4)
     else:
         ax_eta.set_xlim(float(eta.min()) * 0.5, float(eta.max()) * 1.5)
     ax_eta.set_xlabel(pres.viscosity_label)
@@ -358,7 +436,7 @@ def draw_series(ax_nu, ax_v, run: RunFile, pres: Presentation):
 # -- figures ----------------------------------------------------------------------------------
 def _field_size(run: RunFile, width=style.COLUMN_WIDTH):
     aspect = float(run.x_node[-1] - run.x_node[0]) / float(run.z_node[-1] - run.z_node[0])
-    height = min(width * 1.3, max(1.6, (width - 1.25) / aspect + 0.7))
+    height = min(width * 1.3, max(1.3, (width - 1.3) / aspect + 0.75))
     return width, height
 
 
@@ -475,17 +553,35 @@ def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple
 
 
 def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None):
-    """One page: fields, profiles, time series and the key parameters of the run."""
+    """One page: fields, profiles, time series and the key parameters of the run.
+
+    The fields are the temperature (with streamlines or arrows) and the
+    viscosity, or, when the viscosity is uniform, the temperature anomaly
+    T - <T>(z) on the diverging map.  Boxes wider than 1.6 depths are stacked,
+    narrower ones side by side.
+    """
     cfg = run_config(run)
     pres = presentation_for(run, config=cfg) if pres is None else pres
+    aspect = float(run.x_node[-1] - run.x_node[0]) / float(run.z_node[-1] - run.z_node[0])
+    stacked = aspect >= 1.6
+    if stacked:
+        field_height = min(1.7, (style.PAGE_WIDTH - 1.7) / aspect)
+        top_height = 2.0 * (field_height + 0.6)
+    else:
+        field_height = min(3.0, (style.PAGE_WIDTH / 2.0 - 1.3) / aspect)
+        top_height = field_height + 0.8
+    heights = [top_height, 2.1, 2.2, 1.5]
     with style.context():
-        fig = style.new_figure(style.PAGE_WIDTH, 9.4)
+        fig = style.new_figure(style.PAGE_WIDTH, sum(heights) + 0.3)
         title = run.attrs.get("title") or cfg.title or run.path.stem
         fig.suptitle(title, fontsize=10, x=0.02, horizontalalignment="left")
-        top, middle, bottom, text = fig.subfigures(4, 1, height_ratios=[3.3, 2.2, 2.3, 1.6])
-        ax_t, ax_eta = top.subplots(1, 2)
+        top, middle, bottom, text = fig.subfigures(4, 1, height_ratios=heights)
+        ax_t, ax_2 = top.subplots(2, 1) if stacked else top.subplots(1, 2)
         draw_temperature(ax_t, run, pres, arrows=arrows)
-        draw_viscosity(ax_eta, run, pres)
+        if viscosity_varies(run.fields["viscosity"]):
+            draw_viscosity(ax_2, run, pres)
+        else:
+            draw_anomaly(ax_2, run, pres)
         ax_pt, ax_pe = middle.subplots(1, 2, sharey=True)
         draw_profiles(ax_pt, ax_pe, run, pres)
         ax_nu, ax_v = bottom.subplots(1, 2)

@@ -244,6 +244,33 @@ def test_summary_sheet_holds_all_panels_and_parameters(body_run):
     assert _pixels_of(fig).var() > 0
 
 
+def test_summary_shows_the_temperature_anomaly_when_viscosity_is_uniform(constant_run):
+    run = read_run(constant_run)
+    fig = figures.summary_figure(run, pres=figures.Presentation())
+    meshes = {m.get_label(): m for m in _meshes(fig)}
+    assert "viscosity" not in meshes
+    anomaly = np.asarray(meshes["temperature anomaly"].get_array())
+    T = run.fields["temperature"]
+    np.testing.assert_allclose(anomaly, T - T.mean(axis=1, keepdims=True), atol=1e-15)
+    np.testing.assert_allclose(anomaly.mean(axis=1), 0.0, atol=1e-14)  # rows average to zero
+    lo, hi = meshes["temperature anomaly"].get_clim()
+    assert lo == -hi == -np.abs(anomaly).max()  # symmetric about zero
+    assert meshes["temperature anomaly"].cmap.name == style.DIVERGING_CMAP
+
+
+def test_log_ticks_label_short_and_long_ranges():
+    fig = style.new_figure()
+    ax = fig.add_subplot()
+    ax.set_xscale("log")
+    short = figures.log_ticks(ax.xaxis, 0.25, 0.9, max_labels=4)  # less than a decade
+    assert short == pytest.approx([0.3, 0.5, 0.7, 0.9])  # 1..9 series, every other one
+    assert figures.log_ticks(ax.xaxis, 0.15, 3.0) == pytest.approx([0.2, 0.5, 1.0, 2.0])
+    wide = figures.log_ticks(ax.xaxis, 1e-3, 1e3, max_labels=4)
+    assert len(wide) <= 4 and all(math.log10(v) == round(math.log10(v)) for v in wide)
+    assert figures._log_label(2e12) == "$2\\times10^{12}$"
+    assert figures._log_label(1e-5) == "$10^{-5}$" and figures._log_label(0.5) == "0.5"
+
+
 def _pixels_of(fig):
     return style.to_rgba_array(fig)[..., :3].astype(float)
 
