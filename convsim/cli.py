@@ -235,8 +235,9 @@ def _run_rayleigh(args) -> int:
         notes.append("Ra_c assumes fixed temperatures; the config fixes a heat flux")
     onset = {"top_flow": top, "bottom_flow": bottom, "critical_rayleigh": ra_c,
              "ratio": ra / ra_c, "above_onset": ra > ra_c,
-             "source": "classical table, Chandrasekhar (1961) ch. II; fixed temperatures, "
-                       "heated from below, constant viscosity", "notes": notes}
+             "source": "linear stability of the conductive state (convsim onset for the "
+                       "config's own heating and rheology); fixed temperatures, heated from "
+                       "below, constant viscosity", "notes": notes}
     result = {
         "rayleigh": ra, "internal_heating_number": h_nd, "internal_heating_rayleigh": ra_h,
         "properties": {p.name: {"value": getattr(scales, p.name), "units": p.units,
@@ -307,27 +308,63 @@ def _parse_wavenumbers(text: str):
 
 def _onset_from_config(cfg, wavenumbers, points):
     """Unpack a Config into ``analyse_onset``'s plain arguments."""
-    from .stability import analyse_onset
-    b, v = cfg.boundaries, cfg.viscosity
-    return analyse_onset(
-        cfg.physics.rayleigh, aspect=cfg.domain.aspect, sides=b.sides,
-        top_flow=b.top_flow, bottom_flow=b.bottom_flow, top_heat=b.top_heat,
-        top_value=b.top_value, bottom_heat=b.bottom_heat, bottom_value=b.bottom_value,
-        internal_heating=cfg.physics.internal_heating, viscosity=v.law,
-        viscosity_parameters=dict(
-            thermal_contrast=v.thermal_contrast, depth_contrast=v.depth_contrast,
-            activation_energy=v.activation_energy, activation_volume=v.activation_volume,
-            temperature_offset=v.temperature_offset, minimum=v.minimum, maximum=v.maximum),
-        wavenumbers=wavenumbers, points=points)
+    from .onset_runs import onset_from_config
+    return onset_from_config(cfg, wavenumbers, points)
 
 
-def _onset_run_bracket(args, cfg, result):
-    """Hook for a later ``--runs`` option: bracket the onset with short simulator runs.
+def _onset_run_options(args):
+    """Checked ``run_bracket`` options of ``--runs`` (None without --runs)."""
+    from .errors import ConfigError
+    if not args.runs:
+        for flag, value in (("--jobs", args.jobs), ("--runs-grid", args.runs_grid),
+                            ("--richardson", args.richardson or None)):
+            if value is not None:
+                raise ConfigError(f"{flag}: only with --runs")
+        return None
+    if args.jobs is not None and args.jobs < 1:
+        raise ConfigError(f"--jobs {args.jobs}: expected a whole number >= 1")
+    grid = None
+    if args.runs_grid:
+        allowed = "expected NXxNZ with 4 <= NX, NZ <= 4096, e.g. 34x24"
+        try:
+            grid = tuple(int(v) for v in args.runs_grid.lower().split("x"))
+        except ValueError:
+            raise ConfigError(f"--runs-grid {args.runs_grid!r}: {allowed}") from None
+        if len(grid) != 2 or not all(4 <= g <= 4096 for g in grid):
+            raise ConfigError(f"--runs-grid {args.runs_grid!r}: {allowed}")
+    return dict(grid=grid, richardson=args.richardson, jobs=args.jobs)
 
-    Not implemented: it needs ``convsim.simulation``.  It will return a mapping added to
-    the JSON under "runs" (None: nothing to add).
-    """
-    return None
+
+def _onset_run_bracket(cfg, result, options):
+    """``--runs``: bracket the onset with short simulator runs (None without --runs)."""
+    if options is None:
+        return None
+    from .onset_runs import run_bracket
+    return run_bracket(cfg, result, **options)
+
+
+def _onset_runs_table(b) -> str:
+    nx, nz = b.grid
+    grids = f"{nx}x{nz}" + ("" if b.coarse is None else f" and {b.coarse.grid[0]}x"
+                                                          f"{b.coarse.grid[1]}")
+    lines = [f"run-based check: {len(b.rayleigh)} runs per grid on {grids}, mode n = {b.mode}, "
+             f"amplitude {b.amplitude:g}, t = 0..{b.end_time:.4g}, dt <= {b.max_dt:.3g}, "
+             f"{b.wall_seconds:.1f} s",
+             f"  {'Ra':>11}  {'rate (runs)':>12}  {'rate (eigen)':>12}  {'difference':>10}"]
+    for ra, s, th, f in zip(b.rayleigh, b.rates, b.theory_rates, b.fits):
+        diff = "-" if abs(th) < 1e-6 * max(1.0, abs(s)) else f"{100.0 * (s / th - 1.0):+.2f} %"
+        flag = "" if f.status == "ok" else f"  ({f.status} fit)"
+        lines.append(f"  {ra:11.6g}  {s:12.5g}  {th:12.5g}  {diff:>10}{flag}")
+    lines.append(f"  critical Rayleigh number (runs, {nx}x{nz})  {b.critical_rayleigh:.6g}  "
+                 f"({100.0 * b.relative_difference:+.3f} % from the eigen-solver's "
+                 f"{b.eigen_critical_rayleigh:.6g}; {b.method})")
+    if b.coarse is not None:
+        lines.append(f"  critical Rayleigh number (runs, {b.coarse.grid[0]}x{b.coarse.grid[1]})"
+                     f"  {b.coarse.critical_rayleigh:.6g} "
+                     f"({100.0 * b.coarse.relative_difference:+.3f} %)")
+        lines.append(f"  Richardson extrapolation (second order)  {b.extrapolated_rayleigh:.6g}"
+                     f"  ({100.0 * b.extrapolated_difference:+.3f} %)")
+    return "\n".join(lines)
 
 
 def _onset_table(result) -> str:
@@ -356,6 +393,7 @@ def _run_onset(args) -> int:
 
     cfg = load_config(args.config)
     wavenumbers = None if args.wavenumbers is None else _parse_wavenumbers(args.wavenumbers)
+    run_options = _onset_run_options(args)
     if args.points is not None and not 8 <= args.points <= 512:
         raise ConfigError(f"--points {args.points}: expected a whole number, 8 <= points <= 512")
     out = None
@@ -364,25 +402,31 @@ def _run_onset(args) -> int:
         if out.exists() and not out.is_dir():
             raise ConfigError(f"--out {str(out)!r}: exists and is not a directory")
         targets = [out / "onset.json", out / "onset_neutral_curve.png"]
+        if args.runs:
+            targets.append(out / "onset_growth_rates.png")
         existing = [str(t) for t in targets if t.exists()]
         if existing and not args.overwrite:
             raise OutputExistsError(f"{existing[0]}: exists; pass --overwrite to replace it")
     result = _onset_from_config(cfg, wavenumbers, args.points)
     payload = result.to_dict()
-    runs = _onset_run_bracket(args, cfg, result)        # --runs hook (not yet available)
+    runs = _onset_run_bracket(cfg, result, run_options)
     if runs is not None:
-        payload["runs"] = runs
+        payload["runs"] = runs.to_dict()
     if out is not None:
-        from .figures_onset import plot_neutral_curve
+        from .figures_onset import plot_growth_rates, plot_neutral_curve
         out.mkdir(parents=True, exist_ok=True)
         (out / "onset.json").write_text(json.dumps(payload, indent=2) + "\n", encoding="utf-8")
         plot_neutral_curve(result, out / "onset_neutral_curve.png")
+        if runs is not None:
+            plot_growth_rates(runs, out / "onset_growth_rates.png")
     if args.json:
         emit_json(payload)
     else:
         print(_onset_table(result))
+        if runs is not None:
+            print(_onset_runs_table(runs))
         if out is not None:
-            print(f"wrote {out / 'onset.json'} and {out / 'onset_neutral_curve.png'}")
+            print("wrote " + ", ".join(str(t) for t in targets))
     return 0
 
 
@@ -397,7 +441,15 @@ def _onset_command(p):
     p.add_argument("--out", metavar="DIR", help="write onset.json and the neutral-curve figure")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--overwrite", action="store_true", help="replace existing output files")
-    # a later --runs option (run-based bracketing) plugs in through _onset_run_bracket
+    p.add_argument("--runs", action="store_true",
+                   help="also bracket the onset with short simulator runs around the box Ra_c "
+                        "(growth rate of a small perturbation against Ra)")
+    p.add_argument("--jobs", type=int, default=None,
+                   help="--runs: runs side by side (default: the usable cores)")
+    p.add_argument("--runs-grid", metavar="NXxNZ",
+                   help="--runs: grid of the runs (default: 24 cells deep, square cells)")
+    p.add_argument("--richardson", action="store_true",
+                   help="--runs: repeat on half the cells and extrapolate Ra_c (second order)")
     p.set_defaults(handler=_run_onset)
 
 

@@ -1,4 +1,5 @@
-"""Figure of the onset analysis: the neutral curve with the box's modes and the operating Ra.
+"""Figures of the onset analysis: the neutral curve with the box's modes and the operating Ra;
+growth rates against Ra from simulator runs beside the eigen-solver's.
 
 matplotlib is imported here only, through the Agg canvas (no display needed).
 """
@@ -12,7 +13,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-__all__ = ["plot_neutral_curve"]
+__all__ = ["plot_neutral_curve", "plot_growth_rates"]
 
 
 def plot_neutral_curve(result, path: str | Path) -> Path:
@@ -59,6 +60,47 @@ def plot_neutral_curve(result, path: str | Path) -> Path:
     ax.set_xlabel("horizontal wavenumber k (1/depth)")
     ax.set_ylabel("Rayleigh number")
     ax.set_title("Onset of convection: conductive state")
+    ax.legend(fontsize=8, loc="best")
+    fig.savefig(path, dpi=120)
+    return path
+
+
+def plot_growth_rates(bracket, path: str | Path) -> Path:
+    """Draw the growth rate s(Ra) of a ``RunBracket`` and write it to ``path``.
+
+    The eigen-solver's largest growth rate at the box wavenumber (line), the rates
+    fitted to the runs (filled circles; open ones for the coarse grid of a
+    Richardson pair), s = 0, and both critical values (vertical lines).
+    """
+    path = Path(path)
+    fig = Figure(figsize=(6.0, 4.2), layout="constrained")
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    ra_curve, s_curve = (np.asarray(a, float) for a in bracket.theory_curve)
+    if ra_curve.size:
+        ax.plot(ra_curve, s_curve, color="black", lw=1.5,
+                label=f"eigen-solver, k = {bracket.wavenumber:.4g} (n = {bracket.mode})")
+    nx, nz = bracket.grid
+    ax.plot(bracket.rayleigh, bracket.rates, "o", color="tab:blue",
+            label=f"runs {nx}x{nz}")
+    if bracket.coarse is not None:
+        cx, cz = bracket.coarse.grid
+        ax.plot(bracket.coarse.rayleigh, bracket.coarse.rates, "o", color="tab:blue",
+                mfc="none", label=f"runs {cx}x{cz}")
+    ax.axhline(0.0, color="grey", lw=0.8)
+    ax.axvline(bracket.eigen_critical_rayleigh, color="black", lw=0.8, ls=":",
+               label=f"eigen-solver Ra_c = {bracket.eigen_critical_rayleigh:.6g}")
+    if np.isfinite(bracket.critical_rayleigh):
+        ax.axvline(bracket.critical_rayleigh, color="tab:blue", lw=0.8, ls="--",
+                   label=f"runs Ra_c = {bracket.critical_rayleigh:.6g} "
+                         f"({100.0 * bracket.relative_difference:+.2f} %)")
+    if np.isfinite(bracket.extrapolated_rayleigh):
+        ax.axvline(bracket.extrapolated_rayleigh, color="tab:green", lw=0.8, ls="-.",
+                   label=f"extrapolated Ra_c = {bracket.extrapolated_rayleigh:.6g} "
+                         f"({100.0 * bracket.extrapolated_difference:+.3f} %)")
+    ax.set_xlabel("Rayleigh number")
+    ax.set_ylabel("growth rate s (kappa / d^2)")
+    ax.set_title("Onset of convection: growth of a small perturbation")
     ax.legend(fontsize=8, loc="best")
     fig.savefig(path, dpi=120)
     return path

@@ -33,18 +33,18 @@ flux Theta' = 0.
 
 Discretisation: Chebyshev collocation, see ``convsim._stability_operator``.
 
-Viscosity laws (``viscosity_law``): constant; Frank-Kamenetskii
-eta = exp(-b T + c (1 - z)), b = ln(thermal_contrast), c = ln(depth_contrast);
-Arrhenius eta = exp((E + V (1 - z))/(T + T_off) - E/T_off); each optionally cut
-off to [minimum, maximum].  (These mirror the simulator's laws; when a shared
-rheology module exists this module should use it.)
+Viscosity laws (``viscosity_law``): the simulator's own, from ``convsim.rheology``
+(constant; Frank-Kamenetskii eta = exp(-b T + c (1 - z)), b = ln(thermal_contrast),
+c = ln(depth_contrast); Arrhenius eta = exp((E + V (1 - z))/(T + T_off) - E/T_off);
+each optionally cut off to [minimum, maximum]).  A cut-off puts a kink in eta0(z);
+``cutoff_breaks`` finds where, so that the collocation can split there.
 """
 
 from __future__ import annotations
 
 import logging
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable
 
 import numpy as np
@@ -52,6 +52,7 @@ from scipy.optimize import brentq
 
 from ._stability_operator import (RA_INFINITE, Layer, StabilityProblem, chebyshev,
                                   conductive_gradient, conductive_profile, default_points)
+from . import rheology
 from .errors import ConfigError
 
 __all__ = [
@@ -67,54 +68,18 @@ SIDE_CONDITIONS = ("reflecting", "periodic")
 
 
 # --------------------------------------------------------------------------------------
-# Viscosity laws
+# Viscosity laws: the simulator's own (convsim.rheology), checked for this use
 # --------------------------------------------------------------------------------------
 
-def _cutoff(eta, minimum, maximum):
-    if minimum > 0.0:
-        eta = np.maximum(eta, minimum)
-    if maximum > 0.0:
-        eta = np.minimum(eta, maximum)
-    return eta
-
-
-def _constant(**_):
-    return lambda T, z: np.ones(np.broadcast(T, z).shape)
-
-
-def _frank_kamenetskii(thermal_contrast=1.0, depth_contrast=1.0, **_):
-    b = math.log(thermal_contrast)
-    c = math.log(depth_contrast)
-    return lambda T, z: np.exp(-b * np.asarray(T) + c * (1.0 - np.asarray(z)))
-
-
-def _arrhenius(activation_energy=0.0, activation_volume=0.0, temperature_offset=1.0, **_):
-    E, V, T_off = activation_energy, activation_volume, temperature_offset
-
-    def eta(T, z):
-        absolute = np.asarray(T) + T_off
-        if np.any(absolute <= 0.0):
-            raise ConfigError(
-                f"temperature_offset = {T_off!r}: T + temperature_offset must stay > 0 in the "
-                f"conductive profile (its minimum is {float(np.min(absolute)) - T_off:g}); "
-                "allowed: a larger offset")
-        return np.exp((E + V * (1.0 - np.asarray(z))) / absolute - E / T_off)
-    return eta
-
-
-#: Viscosity laws by name: each maps its parameters to eta(T, z).
-VISCOSITY_LAWS = {
-    "constant": _constant,
-    "frank-kamenetskii": _frank_kamenetskii,
-    "arrhenius": _arrhenius,
-}
+#: Viscosity laws by name: the registry of ``convsim.rheology``.
+VISCOSITY_LAWS = rheology.LAWS
 
 
 def viscosity_law(name: str, *, thermal_contrast: float = 1.0, depth_contrast: float = 1.0,
                   activation_energy: float = 0.0, activation_volume: float = 0.0,
                   temperature_offset: float = 1.0, minimum: float = 0.0,
                   maximum: float = 0.0) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
-    """The nondimensional viscosity eta(T, z) of a named law.
+    """The nondimensional viscosity eta(T, z) of a named law of ``convsim.rheology``.
 
     Parameters
     ----------
@@ -132,7 +97,9 @@ def viscosity_law(name: str, *, thermal_contrast: float = 1.0, depth_contrast: f
     Returns
     -------
     callable
-        ``eta(T, z)`` on arrays, dimensionless.
+        ``eta(T, z)`` on arrays, dimensionless: ``rheology.viscosity`` of the law.  For
+        'arrhenius' it raises ConfigError where T + T_off <= 0 (the simulator's law
+        guards that case for transients; for a conductive profile it is bad input).
     """
     if name not in VISCOSITY_LAWS:
         raise ConfigError(f"viscosity law = {name!r}: unknown; allowed: "
@@ -146,13 +113,24 @@ def viscosity_law(name: str, *, thermal_contrast: float = 1.0, depth_contrast: f
                        ("minimum", minimum), ("maximum", maximum)):
         if not (math.isfinite(value) and value >= 0.0):
             raise ConfigError(f"{key} = {value!r}: expected a finite number >= 0")
-    base = VISCOSITY_LAWS[name](thermal_contrast=thermal_contrast, depth_contrast=depth_contrast,
+    law = rheology.ViscosityLaw(law=name, thermal_contrast=thermal_contrast,
+                                depth_contrast=depth_contrast,
                                 activation_energy=activation_energy,
                                 activation_volume=activation_volume,
-                                temperature_offset=temperature_offset)
-    if minimum == 0.0 and maximum == 0.0:
-        return base
-    return lambda T, z: _cutoff(base(T, z), minimum, maximum)
+                                temperature_offset=temperature_offset, minimum=minimum,
+                                maximum=maximum)
+    if name != "arrhenius":
+        return law
+
+    def eta(T, z):
+        absolute = np.asarray(T, dtype=float) + temperature_offset
+        if np.any(absolute <= 0.0):
+            raise ConfigError(
+                f"temperature_offset = {temperature_offset!r}: T + temperature_offset must "
+                f"stay > 0 in the conductive profile (its minimum is "
+                f"{float(np.min(absolute)) - temperature_offset:g}); allowed: a larger offset")
+        return rheology.viscosity(law, T, z)
+    return eta
 
 
 def cutoff_breaks(eta: Callable, layer: Layer, minimum: float = 0.0, maximum: float = 0.0,
@@ -254,6 +232,8 @@ class OnsetResult:
         |Ra(k_c) at 1.5 x points - Ra_c| / Ra_c: an estimate of the discretisation error.
     breaks : tuple of float
         Heights where a viscosity cut-off switches on (collocation split there).
+    layer : Layer
+        The layer analysed (for further queries, e.g. growth rates at the box mode).
     """
 
     critical_rayleigh: float
@@ -273,6 +253,7 @@ class OnsetResult:
     points: int
     resolution_error: float
     breaks: tuple = ()
+    layer: Layer | None = field(default=None, repr=False, compare=False)
 
     def to_dict(self) -> dict:
         """Plain JSON-ready mapping; non-finite numbers become None."""
@@ -434,4 +415,4 @@ def analyse_onset(rayleigh: float | None = None, *, aspect: float = 1.0,
                        rayleigh=None if rayleigh is None else float(rayleigh),
                        supercriticality=supercrit, aspect=float(aspect), sides=sides,
                        points=problem.points, resolution_error=resolution,
-                       breaks=layer.breaks)
+                       breaks=layer.breaks, layer=layer)

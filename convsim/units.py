@@ -39,6 +39,7 @@ are plain arithmetic on numbers or numpy arrays.
 
 from __future__ import annotations
 
+import functools
 import math
 import numbers
 import re
@@ -51,7 +52,7 @@ from .errors import ConfigError
 __all__ = [
     "UREG", "SECONDS_PER_YEAR", "SECONDS_PER_MYR", "PROPERTIES", "Property", "Scales",
     "parse_quantity", "parse_property", "scales_from_body", "critical_rayleigh_for",
-    "CLASSICAL_CRITICAL_RAYLEIGH", "FLOW_CONDITIONS",
+    "FLOW_CONDITIONS",
 ]
 
 #: The one unit registry of convsim (pint objects from different registries do not mix).
@@ -416,31 +417,29 @@ def scales_from_body(body=None, overrides=None, *, options=None) -> Scales:
 
 
 # ------------------------------------------------------------------------------------------
-# PLACEHOLDER for the linear-stability solver (convsim.stability, written elsewhere): the lead
-# routes critical_rayleigh_for() there.  Until then: classical values for a layer heated from
-# below with fixed temperatures on both sides, no internal heating.
-# Chandrasekhar (1961), Hydrodynamic and Hydromagnetic Stability, ch. II (quoted from memory);
-# the free-free value is 27 pi^4 / 4 (Rayleigh 1916).
+# Onset: the critical Rayleigh number from the linear-stability solver (convsim.stability)
 # ------------------------------------------------------------------------------------------
 
 #: Mechanical conditions known to ``critical_rayleigh_for``.
 FLOW_CONDITIONS = ("free-slip", "no-slip")
 
-#: ``{(top_flow, bottom_flow): Ra_c}`` for fixed-temperature boundaries.
-CLASSICAL_CRITICAL_RAYLEIGH = {
-    ("free-slip", "free-slip"): 657.511,
-    ("no-slip", "no-slip"): 1707.762,
-    ("no-slip", "free-slip"): 1100.65,
-    ("free-slip", "no-slip"): 1100.65,
-}
+
+@functools.lru_cache(maxsize=None)
+def _critical_rayleigh(top_flow: str, bottom_flow: str) -> float:
+    from .stability import analyse_onset        # scipy only when asked
+    return float(analyse_onset(top_flow=top_flow, bottom_flow=bottom_flow,
+                               curve_points=2).critical_rayleigh)
 
 
 def critical_rayleigh_for(top_flow: str, bottom_flow: str) -> float:
     """Critical Rayleigh number of onset for the given mechanical boundary conditions.
 
-    PLACEHOLDER: a table lookup of classical values (Chandrasekhar 1961, ch. II),
-    valid for a layer heated from below, fixed temperature on both sides, no
-    internal heating, constant viscosity; to be routed to ``convsim.stability``.
+    The minimum over wavenumbers of the neutral curve of a layer heated from below
+    with fixed temperatures on both sides, no internal heating and constant
+    viscosity, from the linear-stability solver (``convsim.stability.analyse_onset``;
+    Chandrasekhar 1961, ch. II, gives 657.511 free-free, 1707.762 rigid-rigid,
+    1100.65 rigid-free).  For other heating, thermal conditions or rheology use
+    ``analyse_onset`` (``convsim onset``) itself.
 
     Parameters
     ----------
@@ -456,4 +455,4 @@ def critical_rayleigh_for(top_flow: str, bottom_flow: str) -> float:
         if value not in FLOW_CONDITIONS:
             raise ConfigError(f"{key} = {value!r}: expected one of "
                               f"{', '.join(repr(c) for c in FLOW_CONDITIONS)}")
-    return CLASSICAL_CRITICAL_RAYLEIGH[(top_flow, bottom_flow)]
+    return _critical_rayleigh(top_flow, bottom_flow)

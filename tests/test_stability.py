@@ -423,3 +423,24 @@ def test_cli_rejects_flux_on_both_sides(tmp_path, capsys):
     path = _write_config(tmp_path, CONFIG + 'top_heat = "flux"\nbottom_heat = "flux"\n')
     assert cli.main(["onset", path]) == 2
     assert "flux" in capsys.readouterr().err
+
+
+def test_laws_are_the_simulators_own():
+    """One place for a law: the stability analysis evaluates convsim.rheology's laws, here
+    against the formulas of the module docstring written out by hand."""
+    from convsim import rheology
+    from convsim.stability import VISCOSITY_LAWS
+    assert VISCOSITY_LAWS is rheology.LAWS
+    T = np.linspace(0.0, 1.0, 7)
+    z = np.linspace(1.0, 0.0, 7)
+    fk = viscosity_law("frank-kamenetskii", thermal_contrast=1e4, depth_contrast=10.0,
+                       minimum=1e-3)
+    assert fk(T, z) == pytest.approx(np.maximum(np.exp(-math.log(1e4) * T
+                                                       + math.log(10.0) * (1.0 - z)), 1e-3),
+                                     rel=1e-13)
+    ar = viscosity_law("arrhenius", activation_energy=5.0, activation_volume=2.0,
+                       temperature_offset=0.5)
+    assert ar(T, z) == pytest.approx(np.exp((5.0 + 2.0 * (1.0 - z)) / (T + 0.5) - 5.0 / 0.5),
+                                     rel=1e-13)
+    with pytest.raises(ConfigError, match="temperature_offset"):
+        ar(np.array([-0.6]), np.array([0.5]))
