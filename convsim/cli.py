@@ -501,7 +501,7 @@ def _add_animate(p):
 
 def _run_animate(args) -> int:
     from tqdm import tqdm
-    from .figures import animate_run
+    from .animation import animate_run
 
     def progress(frames, total):
         return tqdm(frames, total=total, unit="frame", file=sys.stderr, leave=False,

@@ -1,10 +1,14 @@
-"""Figures of a run file: fields, profiles, time series, a summary sheet, an animation.
+"""Figures of a run file: fields, profiles, time series and a one-page summary sheet.
 
 Every ``*_figure`` function takes a :class:`convsim.snapshot.RunFile` (from
 ``read_run``) and returns a :class:`matplotlib.figure.Figure` on an Agg canvas
 (no pyplot, no global state), drawn in the house style of
-:mod:`convsim.style`; :func:`save_figures` writes it in the formats asked
-for.  Tests read the plotted data back from the artists.
+:mod:`convsim.style` with its layout fixed (:func:`convsim.style.freeze_layout`);
+:func:`save_figures` writes it in the formats asked for.  Tests read the
+plotted data back from the artists.  Numbers and labels come from a
+:class:`convsim.presentation.Presentation`: nondimensional, or physical units
+when the run's config has a ``[body]`` table.  The animation is in
+:mod:`convsim.animation`.
 
 What is drawn
 -------------
@@ -18,24 +22,15 @@ What is drawn
 - temperature anomaly T - <T>(z) on the diverging map (summary sheet, uniform
   viscosity);
 - horizontally averaged temperature and viscosity profiles against height;
-- time series of the Nusselt number at the top and the bottom and of vrms;
+- time series of the Nusselt number at the top and the bottom (or the heat
+  flux, q_dim = Nu k dT / d, in physical units) and of vrms;
 - a one-page summary sheet with all of these and the run's key parameters.
-
-Units
------
-Nondimensional by default (lengths in d, time in d^2/kappa, velocities in
-kappa/d, temperature in dT above the top, viscosity in eta_ref).  When the
-run's config has a ``[body]`` table the figures use physical units through
-:mod:`convsim.units`: km, Myr, cm/yr, K, Pa s, and heat flux in mW m^-2 in
-place of the Nusselt number (q_dim = Nu k dT / d).
 """
 
 from __future__ import annotations
 
 import logging
 import math
-import tomllib
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -44,11 +39,15 @@ from matplotlib import patheffects, ticker
 
 from . import style
 from .errors import ConfigError
-from .snapshot import RunFile, check_writable, iter_fields, read_run
+from .presentation import (Presentation, parameter_lines, presentation_for, run_config,
+                           select_snapshot, viscosity_varies)
+from .snapshot import RunFile, check_writable, read_run
 
-__all__ = ["Presentation", "presentation_for", "select_snapshot", "temperature_figure",
-           "viscosity_figure", "profiles_figure", "series_figure", "summary_figure",
-           "viscosity_varies", "save_figures", "plot_run", "animate_run", "animation_writer"]
+__all__ = ["Presentation", "presentation_for", "select_snapshot", "viscosity_varies",
+           "temperature_figure", "viscosity_figure", "profiles_figure", "series_figure",
+           "summary_figure", "draw_temperature", "draw_streamlines", "draw_arrows",
+           "draw_anomaly", "draw_viscosity", "draw_profiles", "draw_series", "log_ticks",
+           "save_figures", "plot_run"]
 
 log = logging.getLogger(__name__)
 
@@ -56,162 +55,7 @@ log = logging.getLogger(__name__)
 STREAMLINE_LEVELS = 6
 #: Arrows across the box in the arrow plot (at most).
 ARROWS_ACROSS = 14
-#: Viscosity counts as varying when max/min exceeds this.
-VARIES = 1.0 + 1.0e-9
-
 _HALO = [patheffects.withStroke(linewidth=1.3, foreground="white")]
-
-
-# -- units of presentation --------------------------------------------------------------------
-@dataclass(frozen=True)
-class Presentation:
-    """How numbers are shown: nondimensional, or physical through ``convsim.units.Scales``.
-
-    Each ``*_values`` method maps nondimensional numbers or arrays to the shown
-    ones; each ``*_label`` attribute is the matching axis label with units.
-    """
-
-    scales: object = None  # convsim.units.Scales or None
-
-    @property
-    def physical(self) -> bool:
-        return self.scales is not None
-
-    def length(self, x):
-        return self.scales.length_to_km(x) if self.physical else x
-
-    def time(self, t):
-        return self.scales.time_to_myr(t) if self.physical else t
-
-    def temperature(self, T):
-        return self.scales.temperature_to_kelvin(T) if self.physical else T
-
-    def temperature_difference(self, dT):
-        return dT * self.scales.temperature_contrast if self.physical else dT
-
-    def viscosity(self, eta):
-        return self.scales.viscosity_to_pa_s(eta) if self.physical else eta
-
-    def heat_flux(self, nu):
-        return self.scales.heat_flux_to_mw_m2(nu) if self.physical else nu
-
-    def velocity(self, u):
-        return self.scales.velocity_to_cm_per_yr(u) if self.physical else u
-
-    @property
-    def x_label(self):
-        return "horizontal position $x$ (km)" if self.physical else "$x\\,/\\,d$"
-
-    @property
-    def z_label(self):
-        return "height $z$ (km)" if self.physical else "$z\\,/\\,d$"
-
-    @property
-    def time_label(self):
-        return "time (Myr)" if self.physical else "time $t\\,/\\,(d^2/\\kappa)$"
-
-    @property
-    def temperature_label(self):
-        return "temperature $T$ (K)" if self.physical else "temperature $T\\,/\\,\\Delta T$"
-
-    @property
-    def anomaly_label(self):
-        return ("$T - \\langle T \\rangle$ (K)" if self.physical
-                else "$(T - \\langle T \\rangle)\\,/\\,\\Delta T$")
-
-    @property
-    def viscosity_label(self):
-        return ("viscosity $\\eta$ (Pa s)" if self.physical
-                else "viscosity $\\eta\\,/\\,\\eta_\\mathrm{ref}$")
-
-    @property
-    def heat_flux_label(self):
-        return "heat flux $q$ (mW m$^{-2}$)" if self.physical else "Nusselt number $Nu$"
-
-    @property
-    def velocity_label(self):
-        return ("$v_\\mathrm{rms}$ (cm yr$^{-1}$)" if self.physical
-                else "$v_\\mathrm{rms}\\,/\\,(\\kappa/d)$")
-
-    def time_text(self, t) -> str:
-        return f"t = {self.time(t):.4g} Myr" if self.physical else f"t = {t:.4g}"
-
-
-def run_config(run: RunFile):
-    """The run's config (``convsim.config.Config``) from the TOML text stored in the file."""
-    from .config import parse_config
-    try:
-        return parse_config(tomllib.loads(run.config_text), source=f"{run.path} (attribute config)")
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"run file {str(run.path)!r}: its config attribute is not valid TOML "
-                          f"({exc})") from None
-
-
-def presentation_for(run: RunFile, units: str = "auto", config=None) -> Presentation:
-    """Nondimensional or physical presentation of a run.
-
-    Parameters
-    ----------
-    units : {"auto", "physical", "nondimensional"}
-        ``auto``: physical when the config has a ``[body]`` table.
-    """
-    if units not in ("auto", "physical", "nondimensional"):
-        raise ConfigError(f"--units = {units!r}: expected auto, physical or nondimensional")
-    if units == "nondimensional":
-        return Presentation()
-    cfg = run_config(run) if config is None else config
-    if cfg.body is None:
-        if units == "physical":
-            raise ConfigError(f"--units = 'physical': the run's config has no [body] table "
-                              f"(file {str(run.path)!r})")
-        return Presentation()
-    from .units import scales_from_body
-    return Presentation(scales_from_body(cfg.body))
-
-
-def select_snapshot(run_times, snapshot: int | None = None, time: str | float | None = None,
-                    presentation: Presentation | None = None) -> int:
-    """Index of the snapshot asked for: by number, by nearest time, or the last.
-
-    Parameters
-    ----------
-    run_times : array
-        Snapshot times (nondimensional).
-    snapshot : int, optional
-        Index; negative counts from the end.
-    time : float or str, optional
-        A nondimensional time, or (when the run has physical scales) a quantity
-        such as ``"12 Myr"``; the nearest snapshot is taken.
-    """
-    count = len(run_times)
-    if snapshot is not None and time is not None:
-        raise ConfigError("--snapshot and --time: give one of them, not both")
-    if snapshot is not None:
-        index = snapshot if snapshot >= 0 else count + snapshot
-        if not 0 <= index < count:
-            raise ConfigError(f"--snapshot = {snapshot}: out of range, the file holds {count} "
-                              f"snapshots (0 to {count - 1})")
-        return index
-    if time is None:
-        return count - 1
-    try:
-        t = float(time)
-    except (TypeError, ValueError):
-        if presentation is None or not presentation.physical:
-            raise ConfigError(f"--time = {time!r}: expected a nondimensional number (the run has "
-                              f"no [body] table for times with units)") from None
-        from .units import parse_quantity
-        t = presentation.scales.time_from_seconds(parse_quantity("--time", time, "s"))
-    if not math.isfinite(t):
-        raise ConfigError(f"--time = {time!r}: expected a finite number")
-    return int(np.argmin(np.abs(np.asarray(run_times) - t)))
-
-
-def viscosity_varies(eta) -> bool:
-    """Whether a viscosity field varies (max / min > 1 + 1e-9)."""
-    eta = np.asarray(eta, dtype=float)
-    lo, hi = float(np.nanmin(eta)), float(np.nanmax(eta))
-    return lo > 0.0 and hi / lo > VARIES
 
 
 # -- drawing on given axes ----------------------------------------------------------------------
@@ -478,80 +322,6 @@ def series_figure(run: RunFile, *, pres: Presentation | None = None):
     return style.freeze_layout(fig)
 
 
-def _final(run: RunFile, key: str):
-    """A final diagnostic: the ``final_`` attribute, else the last series row."""
-    value = run.attrs.get(f"final_{key}")
-    if value is None and key in run.series and len(run.series[key]):
-        value = run.series[key][-1]
-    return value
-
-
-def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple[str, str]]:
-    """The run's key parameters as (name, value) text pairs for the summary sheet."""
-    cfg = run_config(run) if config is None else config
-    ra_series = run.series.get("rayleigh", ())
-    ra = float(ra_series[-1]) if len(ra_series) else cfg.physics.rayleigh
-    b, v = cfg.boundaries, cfg.viscosity
-    law = v.law
-    if law == "frank-kamenetskii":
-        law += f", contrast exp(b) = {v.thermal_contrast:g}"
-        if v.depth_contrast != 1.0:
-            law += f", depth exp(c) = {v.depth_contrast:g}"
-    elif law == "arrhenius":
-        law += (f", E = {v.activation_energy:g}, V = {v.activation_volume:g}, "
-                f"T0 = {v.temperature_offset:g}")
-    if v.minimum or v.maximum:
-        law += f", cut-offs [{v.minimum:g}, {v.maximum or math.inf:g}]"
-
-    def heat(kind, value):
-        return f"T = {value:g}" if kind == "temperature" else f"flux {value:g}"
-
-    def num(x, fmt=".6g"):
-        return "n/a" if x is None else format(float(x), fmt)
-
-    nz, nx = run.fields["temperature"].shape
-    nu_top, nu_bottom, vrms = (_final(run, k) for k in ("nusselt_top", "nusselt_bottom", "vrms"))
-    t_end = _final(run, "time")
-    if t_end is None and len(run.series.get("series_time", ())):
-        t_end = run.series["series_time"][-1]
-    lines = [
-        ("status", f"{run.attrs.get('status', '?')}"
-                   + (f" ({run.attrs['final_message']})" if run.attrs.get("final_message") else "")),
-        ("Rayleigh number", f"{ra:.6g}"
-         + (f", internal heating H = {cfg.physics.internal_heating:g}"
-            if cfg.physics.internal_heating else "")),
-        ("grid", f"{nx} x {nz} cells, aspect {float(run.x_node[-1] - run.x_node[0]):g}, "
-                 f"sides {b.sides}"),
-        ("top", f"{b.top_flow}, {heat(b.top_heat, b.top_value)}"),
-        ("bottom", f"{b.bottom_flow}, {heat(b.bottom_heat, b.bottom_value)}"),
-        ("viscosity law", law),
-        ("final Nu top / bottom", f"{num(nu_top)} / {num(nu_bottom)}"
-         + (f" ({pres.heat_flux(nu_top):.4g} / {pres.heat_flux(nu_bottom):.4g} mW/m2)"
-            if pres.physical and None not in (nu_top, nu_bottom) else "")),
-        ("final vrms", num(vrms) + (f" ({pres.velocity(vrms):.4g} cm/yr)"
-                                    if pres.physical and vrms is not None else "")),
-        ("steps, time", f"{num(_final(run, 'steps'), 'g')}, t = {num(t_end)}"
-         + (f" ({pres.time(t_end):.4g} Myr)" if pres.physical and t_end is not None else "")),
-        ("snapshot shown", f"{run.snapshot} of {len(run.times)}, "
-                           f"{pres.time_text(run.times[run.snapshot])}"
-                          ),
-    ]
-    if pres.physical:
-        sc = pres.scales
-        lines += [
-            ("layer", f"d = {sc.depth / 1e3:g} km, dT = {sc.temperature_contrast:g} K, "
-                      f"eta_ref = {sc.reference_viscosity:.3g} Pa s"),
-            ("scales", f"time {sc.time_to_myr(1.0):.4g} Myr, velocity "
-                       f"{sc.velocity_to_cm_per_yr(1.0):.3g} cm/yr, heat flux "
-                       f"{sc.heat_flux_to_mw_m2(1.0):.3g} mW/m2"),
-        ]
-        ra_body = sc.rayleigh()
-        if abs(ra_body - ra) > 1e-3 * ra:
-            lines.append(("note", f"Ra from [body] = {ra_body:.4g} differs from the run's Ra"))
-    lines.append(("convsim", f"{run.attrs.get('convsim_version', '?')}, file {run.path.name}"))
-    return lines
-
-
 def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None):
     """One page: fields, profiles, time series and the key parameters of the run.
 
@@ -666,84 +436,3 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
         written += save_figures({name: make()}, out_dir, formats, overwrite=True,
                                 title=first.attrs.get("title", ""))
     return written
-
-
-# -- animation --------------------------------------------------------------------------------
-def animation_writer(output: Path, fps: int):
-    """The matplotlib writer for ``output``: FFMpegWriter for .mp4, PillowWriter for .gif."""
-    import shutil
-    from matplotlib import animation
-    suffix = output.suffix.lower()
-    if suffix == ".mp4":
-        if shutil.which("ffmpeg") is None:
-            raise ConfigError(f"--out = {str(output)!r}: MP4 needs ffmpeg, which is not on the "
-                              f"PATH; name a .gif file instead")
-        return animation.FFMpegWriter(fps=fps, codec="libx264", bitrate=-1,
-                                      extra_args=["-pix_fmt", "yuv420p"],
-                                      metadata={"title": output.stem, "comment": "convsim"})
-    if suffix == ".gif":
-        return animation.PillowWriter(fps=fps)
-    raise ConfigError(f"--out = {str(output)!r}: expected a .mp4 or .gif file name")
-
-
-def default_animation_path(path: Path) -> Path:
-    """``<stem>_temperature.mp4`` beside the run file when ffmpeg is there, else ``.gif``."""
-    import shutil
-    suffix = ".mp4" if shutil.which("ffmpeg") else ".gif"
-    return path.with_name(f"{path.stem}_temperature{suffix}")
-
-
-def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int = 10,
-                overwrite: bool = False, units: str = "auto", dpi: int = 150,
-                progress=None) -> Path:
-    """Animation of the temperature field with streamlines over the snapshots of a run.
-
-    Parameters
-    ----------
-    output : path, optional
-        ``.mp4`` (through ffmpeg) or ``.gif`` (through pillow); default
-        :func:`default_animation_path`.
-    fps : int
-        Frames (snapshots) per second, 1 to 120.
-    progress : callable, optional
-        ``progress(iterable, total) -> iterable``, e.g. a tqdm bar.
-
-    Colour limits are the extremes over all snapshots, so colours mean the same
-    in every frame; the streamline levels follow each frame's own max |psi|.
-    """
-    path = Path(path)
-    if not (isinstance(fps, int) and 1 <= fps <= 120):
-        raise ConfigError(f"--fps = {fps!r}: expected a whole number from 1 to 120")
-    output = default_animation_path(path) if output is None else Path(output)
-    writer = animation_writer(output, fps)
-    check_writable(output, overwrite)
-    run = read_run(path, 0)
-    pres = presentation_for(run, units)
-    lo, hi = math.inf, -math.inf
-    for _, _, f in iter_fields(path, ("temperature",)):
-        lo, hi = min(lo, float(f["temperature"].min())), max(hi, float(f["temperature"].max()))
-    count = len(run.times)
-    with style.context():
-        width, height = _field_size(run)
-        # whole, even pixel counts (yuv420p video needs even sizes)
-        width, height = (2 * round(v * dpi / 2) / dpi for v in (width, height))
-        fig = style.new_figure(width, height)
-        ax = fig.add_subplot()
-        mesh = draw_temperature(ax, run, pres)
-        mesh.set_clim(pres.temperature(lo), pres.temperature(hi))
-        style.freeze_layout(fig)  # no jitter as the title changes
-        frames = iter_fields(path, ("temperature", "streamfunction"))
-        if progress is not None:
-            frames = progress(frames, count)
-        part = output.with_name(output.name + ".part" + output.suffix)
-        with writer.saving(fig, str(part), dpi):
-            for index, t, f in frames:
-                mesh.set_array(pres.temperature(f["temperature"]))
-                for artist in list(ax.collections):
-                    if artist is not mesh:
-                        artist.remove()
-                draw_streamlines(ax, run, pres, psi=f["streamfunction"])
-                ax.set_title(pres.time_text(t) + f"  (snapshot {index})", loc="left")
-                writer.grab_frame()
-    part.replace(output)
-    return output
