@@ -15,7 +15,9 @@ Layout (root group):
   ``velocity_z`` (horizontal faces: z_node, x), profiles over (time, z), corner
   gradients ``q1`` .. ``q4`` and ``step`` over (time,);
 - time series over (record,): ``series_time``, ``series_step`` and every
-  diagnostic of ``StepReport``;
+  diagnostic of ``StepReport``, each naming ``series_time`` as its CF auxiliary
+  coordinate (attribute ``coordinates``);
+- coordinates carry ``axis`` (X, Z, T) and the vertical ones ``positive = "up"``;
 - group ``restart``: the exact state to continue the run bit for bit;
 - attributes: ``Conventions``, ``title``, ``config`` (the full TOML), provenance
   (``convsim_version``, ``created``, ``wall_seconds``, ``status``).
@@ -37,7 +39,8 @@ import numpy as np
 
 from .errors import OutputExistsError, SnapshotError
 
-__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "check_writable"]
+__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields",
+           "check_writable"]
 
 # name: (dimensions after time, units, long_name)
 FIELDS = {
@@ -134,6 +137,8 @@ class RunFileWriter:
                 d = f.create_dataset(name, data=values)
                 self._coordinate(d, name, "1")
                 d.attrs["axis"] = "X" if name.startswith("x") else "Z"
+                if name.startswith("z"):
+                    d.attrs["positive"] = "up"  # CF: direction of a vertical coordinate
             for name in ("time", "record"):
                 d = f.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8" if name == "time" else "i8",
                                      chunks=(256,))
@@ -150,6 +155,8 @@ class RunFileWriter:
                                      dtype="i8" if name in ("series_step", "stokes_iterations") else "f8",
                                      chunks=(4096,))
                 self._attach(f, d, ("record",), units, long_name)
+                if name != "series_time":
+                    d.attrs["coordinates"] = "series_time"  # CF auxiliary coordinate
         os.replace(tmp, self.path)
 
     @staticmethod
@@ -263,6 +270,26 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
                            fields=fields, series=series, restart=state)
     except SnapshotError:
         raise
+    except (OSError, KeyError) as exc:
+        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
+
+
+def iter_fields(path: str | Path, names=tuple(FIELDS)):
+    """Yield ``(index, time, {name: array})`` for every snapshot, the file opened once.
+
+    For animations and sweeps over snapshots: reads only the named fields, not the series.
+    """
+    path = Path(path)
+    unknown = [n for n in names if n not in FIELDS]
+    if unknown:
+        raise SnapshotError(f"fields {unknown}: unknown; allowed: {', '.join(FIELDS)}")
+    if not path.is_file():
+        raise SnapshotError(f"run file {str(path)!r}: not found")
+    try:
+        with h5py.File(path, "r") as f:
+            times = f["time"][:]
+            for index, time in enumerate(times):
+                yield index, float(time), {name: f[name][index] for name in names}
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 
