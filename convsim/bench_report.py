@@ -208,11 +208,11 @@ def _case_section(c: dict) -> list:
             L += [f"- {mark}: steady state, {ch['note']}"]
         elif ch["kind"] == "order":
             L += [f"- {mark}: observed order of {LABEL[ch['quantity']]} {_g(ch['value'], 4)} "
-                  f">= {_g(ch['limit'], 3)}"]
+                  f"(at least {_g(ch['limit'], 3)}; {ch['note']})"]
         else:
-            L += [f"- {mark}: {ch['kind']} {LABEL[ch['quantity']]} abs. error "
-                  f"{_pct(ch['value']).lstrip('+')} <= {_pct(ch['limit']).lstrip('+')}"
-                  + (f" ({ch['note']})" if ch["note"] else "")]
+            L += [f"- {mark}: {ch['kind']} {LABEL[ch['quantity']]}, abs. relative error "
+                  f"{_pct(ch['value']).lstrip('+')} (at most {_pct(ch['limit']).lstrip('+')}"
+                  + (f"; {ch['note']})" if ch["note"] else ")")]
     return L + [""]
 
 
@@ -239,10 +239,13 @@ def _performance(bench: dict) -> list:
     for c in bench["cases"]:
         for r in c["rows"]:
             e = r["relative_error"]
-            rows.append([c["case"], r["grid"], _g(r["wall_seconds"], 4),
+            rows.append([c["case"], r["grid"], r["status"], _g(r["wall_seconds"], 4),
                          _pct(e["nusselt"]).lstrip("+-"), _pct(e["vrms"]).lstrip("+-")])
-    L += _table(["case", "grid", "wall s", "abs. err Nu", "abs. err vrms"], rows)
-    L += ["![convergence](convergence.png)", "", "![error against wall time](cost.png)", ""]
+    L += _table(["case", "grid", "status", "wall s", "abs. err Nu", "abs. err vrms"], rows)
+    L += ["![convergence](convergence.png)", "",
+          "Relative error against grid spacing, one line per quantity, with a slope-2 guide "
+          "(open markers: runs that did not reach steady state).", "",
+          "![error against wall time](cost.png)", ""]
     return L
 
 
@@ -318,7 +321,7 @@ def terminal_table(bench: dict) -> str:
 # -- writing ---------------------------------------------------------------------------------
 def write_report(bench: dict, out, overwrite: bool = False) -> list:
     """Write the report files into ``out`` (created); returns their paths."""
-    from . import bench_figures
+    from . import figures_bench
     out = Path(out)
     check_outputs(out, overwrite)
     out.mkdir(parents=True, exist_ok=True)
@@ -326,6 +329,6 @@ def write_report(bench: dict, out, overwrite: bool = False) -> list:
     (out / "bench.json").write_text(json.dumps(data, indent=2) + "\n")
     (out / "rows.csv").write_text(rows_csv(data))
     (out / "report.md").write_text(markdown(data) + "\n")
-    bench_figures.convergence_figure(data, out / "convergence")
-    bench_figures.cost_figure(data, out / "cost")
+    figures_bench.convergence_figure(data, out / "convergence")
+    figures_bench.cost_figure(data, out / "cost")
     return report_paths(out)

@@ -1,6 +1,6 @@
 """Figures of the benchmark report: convergence with the grid and error against cost.
 
-matplotlib (Agg backend) is imported here only.  The figures read the plain
+matplotlib is imported here only, through the Agg canvas (no display, no pyplot state).  The figures read the plain
 JSON-ready dict of a bench result (``BenchResult.as_dict()``, the content of
 bench.json), so they can be redrawn from a saved report.
 """
@@ -26,12 +26,20 @@ STYLE = {  # the house style of these figures in one place
 }
 
 
-def _pyplot():
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    plt.rcParams.update({"font.size": STYLE["font_size"]})
-    return plt
+def _figure(ncols: int, width_panels: int | None = None):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+    w, h = STYLE["panel_size"]
+    fig = Figure(figsize=(w * (width_panels or ncols), h), layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(1, ncols, squeeze=False, sharey=True)[0]
+    return fig, axes
+
+
+def _font(ax):
+    for item in (ax.title, ax.xaxis.label, ax.yaxis.label):
+        item.set_fontsize(STYLE["font_size"])
+    ax.tick_params(which="both", labelsize=STYLE["font_size"])
 
 
 def _save(fig, stem) -> list:
@@ -52,14 +60,14 @@ def _finite_positive(xs, ys):
 
 def _legend(ax):
     if ax.get_legend_handles_labels()[0]:
-        ax.legend(loc="best", frameon=False)
+        ax.legend(loc="best", frameon=False, fontsize=STYLE["font_size"])
 
 
 def convergence_figure(bench: dict, stem) -> list:
     """|relative error| against published values versus grid spacing h, log-log.
 
     One panel per case, one line per quantity, with a slope-2 guide (error ~ h^2)
-    through the finest Nu point.  Writes ``stem``.png and ``stem``.pdf.
+    through the finest Nu point; runs that did not reach steady state get open markers.  Writes ``stem``.png and ``stem``.pdf.
 
     Parameters
     ----------
@@ -71,12 +79,9 @@ def convergence_figure(bench: dict, stem) -> list:
     -------
     list of Path
     """
-    plt = _pyplot()
     cases = bench["cases"]
-    n = max(len(cases), 1)
-    w, h = STYLE["panel_size"]
-    fig, axes = plt.subplots(1, n, figsize=(w * n, h), squeeze=False, sharey=True)
-    for ax, case in zip(axes[0], cases):
+    fig, axes = _figure(max(len(cases), 1))
+    for ax, case in zip(axes, cases):
         rows = case["rows"]
         hs = [r["h"] for r in rows]
         for q in ("nusselt", "vrms", "q1", "q2"):
@@ -85,6 +90,12 @@ def convergence_figure(bench: dict, stem) -> list:
                 continue
             ax.loglog(x, y, marker=STYLE["markers"][q], color=STYLE["quantity_colors"][q],
                       lw=STYLE["line_width"], ms=4, label=STYLE["quantity_labels"][q])
+            xo, yo = _finite_positive([r["h"] for r in rows if r["status"] != "steady"],
+                                      [r["relative_error"].get(q) for r in rows
+                                       if r["status"] != "steady"])
+            if xo:                                   # not steady: open markers
+                ax.loglog(xo, yo, ls="none", marker=STYLE["markers"][q], ms=6, mfc="white",
+                          color=STYLE["quantity_colors"][q])
         x, y = _finite_positive(hs, [r["relative_error"].get("nusselt") for r in rows])
         if len(x) >= 1:
             h0, e0 = min(zip(x, y))
@@ -94,21 +105,17 @@ def convergence_figure(bench: dict, stem) -> list:
         ax.set_title(f"case {case['case']}")
         ax.set_xlabel("grid spacing h (depth units)")
         ax.grid(True, which="both", lw=0.3, alpha=0.5)
-    axes[0][0].set_ylabel("|relative error| vs published")
-    _legend(axes[0][-1])
-    fig.tight_layout()
-    paths = _save(fig, stem)
-    plt.close(fig)
-    return paths
+        _font(ax)
+    axes[0].set_ylabel("|relative error| vs published", fontsize=STYLE["font_size"])
+    _legend(axes[-1])
+    return _save(fig, stem)
 
 
 def cost_figure(bench: dict, stem) -> list:
     """|relative error| of Nu and vrms against wall seconds of each run, log-log, per case."""
-    plt = _pyplot()
-    w, h = STYLE["panel_size"]
-    fig, axes = plt.subplots(1, 2, figsize=(2 * w, h), squeeze=False)
+    fig, axes = _figure(2)
     markers = "osD^v<>p*"
-    for ax, q in zip(axes[0], ("nusselt", "vrms")):
+    for ax, q in zip(axes, ("nusselt", "vrms")):
         for i, case in enumerate(bench["cases"]):
             rows = case["rows"]
             x, y = _finite_positive([r["wall_seconds"] for r in rows],
@@ -119,9 +126,7 @@ def cost_figure(bench: dict, stem) -> list:
         ax.set_title(STYLE["quantity_labels"][q])
         ax.set_xlabel("wall time of the run (s)")
         ax.grid(True, which="both", lw=0.3, alpha=0.5)
-    axes[0][0].set_ylabel("|relative error| vs published")
-    _legend(axes[0][-1])
-    fig.tight_layout()
-    paths = _save(fig, stem)
-    plt.close(fig)
-    return paths
+        _font(ax)
+    axes[0].set_ylabel("|relative error| vs published", fontsize=STYLE["font_size"])
+    _legend(axes[-1])
+    return _save(fig, stem)
