@@ -182,6 +182,12 @@ def _case_section(c: dict) -> list:
                      _g(r["wall_seconds"], 4)])
     L += _table(["grid", "status", "steps", "Nu top", "Nu bottom", "vrms", "q1", "q2",
                  "err Nu", "err vrms", "err q1", "err q2", "wall s"], rows)
+    staged = [r for r in c["rows"] if len(r.get("stage_steps") or []) > 1]
+    if staged:
+        L += ["Steps per stage (counted in the steps and wall time above): "
+              + "; ".join(f"grid {r['grid']}: " + ", ".join(f"Ra {ra:.0e} {n} steps"
+                                                           for ra, n in r["stage_steps"])
+                          for r in staged) + ".", ""]
     L += ["Convergence from the three finest steady grids:", ""]
     rows = []
     for q in QUANTITIES:

@@ -141,6 +141,10 @@ def test_analysis_of_1c_says_it_chains_a_continuation():
     assert "continuation" in text and "Ra = 1e5" in text and "include" in text
     assert "need three" in text                          # two grids: no extrapolation
     assert not s.passed
+    rows[0].stage_steps = [(1e5, 40), (1e6, 60)]
+    result = bench.BenchResult([s], (32, 64), 1, (), 1.0, bench.provenance())
+    md = bench_report.markdown(bench_report.jsonable(result.as_dict()))
+    assert "continues to Ra = 1e6" in md and "Ra 1e+05 40 steps" in md
 
 
 def test_unsteady_row_fails_and_is_left_out():
