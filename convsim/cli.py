@@ -421,6 +421,8 @@ def _add_bench(p):
     p.add_argument("--overwrite", action="store_true", help="replace existing report files")
     p.add_argument("--json", action="store_true",
                    help="print the result as one JSON object on stdout (no table)")
+    p.epilog = ("exit status: 0 when every case passes our acceptance (see the report), "
+                "1 when a check fails, 2 on bad input")
     p.set_defaults(handler=_run_bench)
 
 
