@@ -364,6 +364,8 @@ def _add_fit(p):
                         "(default: 0.1)")
     p.add_argument("--stagnant-contrast", type=float, default=1.0e3,
                    help="viscosity contrast a stagnant lid needs at least (default: 1e3)")
+    p.add_argument("--conductive-nusselt", type=float, default=1.01,
+                   help="Nusselt number below which a case counts as conductive (default: 1.01)")
     p.add_argument("--interior-column", default="interior_vrms",
                    help="the interior velocity: interior_vrms (default) or vrms (whole box)")
     p.add_argument("--contrast-column", default="viscosity_contrast",
@@ -387,7 +389,8 @@ def _run_fit(args) -> int:
     ys = [y.strip() for y in args.y.split(",") if y.strip()]
     statuses = None if args.status.strip() == "all" else tuple(
         s.strip() for s in args.status.split(",") if s.strip())
-    thresholds = RegimeThresholds(args.mobile_ratio, args.stagnant_ratio, args.stagnant_contrast)
+    thresholds = RegimeThresholds(args.mobile_ratio, args.stagnant_ratio, args.stagnant_contrast,
+                                  args.conductive_nusselt)
     report = fit_report(table, args.x, ys, statuses=statuses, group=args.group,
                         confidence=args.confidence, thresholds=thresholds,
                         interior=args.interior_column, contrast=args.contrast_column)
@@ -425,7 +428,8 @@ def _run_fit(args) -> int:
         [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
         thresholds_text=(f"mobile: M >= {thresholds.mobile_ratio:g}; stagnant: M < "
                          f"{thresholds.stagnant_ratio:g} and contrast >= "
-                         f"{thresholds.stagnant_contrast:g}; M = v_surface / v_interior"),
+                         f"{thresholds.stagnant_contrast:g}; conductive: Nu < "
+                         f"{thresholds.conductive_nusselt:g}"),
         y_label=f"viscosity contrast ({args.contrast_column})")
     tmp = out / f"regimes.csv.tmp{os.getpid()}"
     with open(tmp, "w", newline="", encoding="utf-8") as fh:

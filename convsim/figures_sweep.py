@@ -28,9 +28,9 @@ STYLE = {
     "excluded_color": "#bbbbbb",
     "line_width": 1.2,
     "regime_markers": {"mobile": "o", "transitional": "s", "stagnant": "^",
-                       "unclassified": "x"},
+                       "conductive": "D", "unclassified": "x"},
     "regime_colors": {"mobile": "#1b4f72", "transitional": "#b9770e", "stagnant": "#b03a2e",
-                      "unclassified": "#7f7f7f"},
+                      "conductive": "#1e8449", "unclassified": "#7f7f7f"},
     "grid_alpha": 0.3,
 }
 

@@ -36,12 +36,14 @@ contrast Delta eta = eta_max / eta_min:
   interior;
 - ``transitional``:  everything between (the sluggish-lid regime), including a
   slow surface at small contrast;
+- ``conductive``:    Nu < conductive_nusselt (default 1.01), when the Nusselt
+  numbers are given: no convection to classify (below onset);
 - ``unclassified``:  missing or non-positive velocities (a failed case).
 
 These thresholds are our choice, after common practice: in the stagnant-lid
 regime the surface moves at a few percent of the interior velocity or less, and
 the regime needs viscosity contrasts above roughly 1e3 to 1e4 (Solomatov 1995,
-Phys. Fluids 7, 266-274, quoted from memory).  All three are parameters.
+Phys. Fluids 7, 266-274, quoted from memory).  All four are parameters.
 """
 
 from __future__ import annotations
@@ -57,7 +59,7 @@ from .errors import ConfigError
 __all__ = ["PowerLawFit", "fit_power_law", "RegimeThresholds", "REGIMES", "classify_regimes",
            "select_rows", "fit_table", "fit_report", "REFERENCE_SLOPES"]
 
-REGIMES = ("mobile", "transitional", "stagnant", "unclassified")
+REGIMES = ("mobile", "transitional", "stagnant", "conductive", "unclassified")
 REFERENCE_SLOPES = {"nusselt_top": 1.0 / 3.0, "nusselt_bottom": 1.0 / 3.0, "vrms": 2.0 / 3.0,
                     "surface_vrms": 2.0 / 3.0, "interior_vrms": 2.0 / 3.0}
 
@@ -150,9 +152,11 @@ class RegimeThresholds:
     mobile_ratio: float = 0.6
     stagnant_ratio: float = 0.1
     stagnant_contrast: float = 1.0e3
+    conductive_nusselt: float = 1.01
 
     def __post_init__(self):
-        for name in ("mobile_ratio", "stagnant_ratio", "stagnant_contrast"):
+        for name in ("mobile_ratio", "stagnant_ratio", "stagnant_contrast",
+                     "conductive_nusselt"):
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise ConfigError(f"{name} = {value!r}: expected a positive number")
@@ -162,8 +166,11 @@ class RegimeThresholds:
 
 
 def classify_regimes(surface_velocity, interior_velocity, viscosity_contrast,
-                     thresholds: RegimeThresholds = RegimeThresholds()):
+                     thresholds: RegimeThresholds = RegimeThresholds(), nusselt=None):
     """Regime of each case from M = v_surface / v_interior and the viscosity contrast, eq. (3).
+
+    ``nusselt`` (optional, one per case) marks the cases with Nu below
+    ``thresholds.conductive_nusselt`` as conductive.
 
     Returns
     -------
@@ -182,6 +189,9 @@ def classify_regimes(surface_velocity, interior_velocity, viscosity_contrast,
     regimes[ok & (ratio >= thresholds.mobile_ratio)] = "mobile"
     stagnant = ok & (ratio < thresholds.stagnant_ratio) & (dc >= thresholds.stagnant_contrast)
     regimes[stagnant] = "stagnant"
+    if nusselt is not None:
+        nu = np.broadcast_to(np.atleast_1d(np.asarray(nusselt, float)), vs.shape)
+        regimes[ok & np.isfinite(nu) & (nu < thresholds.conductive_nusselt)] = "conductive"
     return regimes, ratio
 
 
@@ -268,7 +278,8 @@ def fit_report(table: dict, x: str = "rayleigh", ys=("nusselt_top", "vrms"), *,
     vs, vi = _column(table, surface, "--surface-column"), _column(table, interior,
                                                                    "--interior-column")
     dc = _column(table, contrast, "--contrast-column")
-    regimes, ratio = classify_regimes(vs, vi, dc, thresholds)
+    nu = _column(table, "nusselt_top", "nusselt_top") if "nusselt_top" in table else None
+    regimes, ratio = classify_regimes(vs, vi, dc, thresholds, nu)
     ra = _column(table, "rayleigh", "rayleigh") if "rayleigh" in table else np.full(len(vs), np.nan)
     status = table.get("status", np.full(len(vs), "", dtype=object))
     rows = [{"case_id": str(ids[i]), "status": str(status[i]), "rayleigh": float(ra[i]),

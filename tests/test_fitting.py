@@ -105,6 +105,9 @@ def test_regimes_by_mobility_and_contrast():
     strict = RegimeThresholds(mobile_ratio=1.2, stagnant_ratio=0.3, stagnant_contrast=50.0)
     regimes, _ = classify_regimes(surface, interior, contrast, strict)
     assert list(regimes[:4]) == ["transitional", "stagnant", "stagnant", "transitional"]
+    # below onset (Nu = 1) there is no lid to classify
+    regimes, _ = classify_regimes([1e-3, 50.0], [1e-3, 40.0], [1e3, 1e3], nusselt=[1.0, 5.0])
+    assert list(regimes) == ["conductive", "mobile"]
     with pytest.raises(ConfigError, match="stagnant_ratio"):
         RegimeThresholds(mobile_ratio=0.1, stagnant_ratio=0.5)
 
