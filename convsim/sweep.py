@@ -44,8 +44,8 @@ finishes, ``<out>/cases/<c>.json`` (its record, written atomically).
 Resuming
 --------
 A rerun into the same folder skips every case whose record exists with a run
-status (anything but ``failed``) and the same config digest; failed cases
-(exceptions: a bad value, a lost worker) are tried again.  A record with a
+status and the same config digest; failed cases (exceptions: a bad value, a lost
+worker) and interrupted ones (Ctrl-C) are tried again.  A record with a
 different config digest means the folder holds another sweep's case: the
 run refuses (``OutputExistsError``) unless ``overwrite=True``.  A run file
 without a record (a run cut short) is replaced.
@@ -100,11 +100,8 @@ import itertools
 import json
 import logging
 import math
-import os
-import socket
 import time
 import tomllib
-import traceback
 from collections import deque
 from dataclasses import dataclass
 from pathlib import Path
@@ -112,9 +109,12 @@ from typing import Callable
 
 import numpy as np
 
-from .config import TABLES, Config, parse_config, to_dict, to_toml
+from .config import TABLES, Config, to_toml
 from .errors import ConfigError, OutputExistsError
-from .sweep_table import FAILED, read_record, write_record, write_table
+from .sweep_backends import BACKENDS, make_backend
+from .sweep_case import (INTERIOR_BAND, CaseTask, base_record, case_config, config_digest,
+                         interior_rms_velocity, law_viscosity_contrast, run_case)
+from .sweep_table import FAILED, atomic_write_text, read_record, write_record, write_table
 
 __all__ = ["Axis", "Continuation", "SweepSpec", "Case", "CaseTask", "SweepProgress",
            "SweepOutcome", "load_sweep", "parse_sweep", "expand_cases", "case_id",
@@ -127,7 +127,7 @@ SWEEP_KEYS = ("title", "base", "combine", "fixed", "axis", "continuation")
 AXIS_KEYS = ("key", "values", "start", "stop", "count", "spacing")
 CONTINUATION_KEYS = ("axis", "accept")
 RUN_STATUSES = ("steady", "end-time", "step-limit", "diverged", "interrupted")
-INTERIOR_BAND = (0.2, 0.8)   # depth band of interior_vrms, z in layer depths (our choice)
+RETRY_STATUSES = (FAILED, "interrupted")    # a rerun runs these cases again
 
 
 # -- the definition --------------------------------------------------------------------------
@@ -253,7 +253,7 @@ def _flatten(table: dict, prefix: str = "") -> dict:
 
 
 def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") -> SweepSpec:
-    """Build a ``SweepSpec`` from the TOML mapping of a sweep file (paths relative to ``folder``)."""
+    """A ``SweepSpec`` from the TOML mapping of a sweep file (paths relative to ``folder``)."""
     from .config import load_config
     if not isinstance(data, dict):
         raise ConfigError(f"{source}: expected a TOML table at the top level")
@@ -405,265 +405,6 @@ def expand_cases(spec: SweepSpec) -> list[Case]:
     return cases
 
 
-def case_config(base: Config, params, fixed=()) -> Config:
-    """The base config with the fixed keys and the case's parameters set, fully validated."""
-    data = to_dict(base)
-    for key, value in list(fixed) + list(params):
-        section, name = key.split(".")
-        data.setdefault(section, {})[name] = value
-    return parse_config(data, source="case")
-
-
-def config_digest(config: Config) -> str:
-    """SHA-256 (first 16 hex digits) of the config's full TOML text."""
-    return hashlib.sha256(to_toml(config).encode("utf-8")).hexdigest()[:16]
-
-
-# -- one case (runs on a worker) ---------------------------------------------------------------
-def interior_rms_velocity(grid, psi: np.ndarray, band=INTERIOR_BAND) -> float:
-    """rms velocity of the cells whose centres lie in the depth band z0 <= z <= z1.
-
-    v_int = sqrt(mean over those cells of (u_c^2 + w_c^2)), with u_c, w_c the
-    cell-centre averages of the face velocities; units kappa / d.
-    """
-    from .stokes import node_velocities
-    u, w = node_velocities(grid, psi)
-    z = grid.z_cell
-    rows = (z >= band[0]) & (z <= band[1])
-    if not rows.any():
-        return float("nan")
-    return float(np.sqrt(np.mean(u[rows] ** 2 + w[rows] ** 2)))
-
-
-def law_viscosity_contrast(law, t_low: float, t_high: float, samples: int = 65) -> float:
-    """max / min of eta(T, z) over t_low <= T <= t_high, 0 <= z <= 1 (sampled, corners included)."""
-    from .rheology import viscosity
-    T, z = np.meshgrid(np.linspace(t_low, t_high, samples), np.linspace(0.0, 1.0, samples))
-    eta = viscosity(law, T, z)
-    return float(eta.max() / eta.min())
-
-
-@dataclass(frozen=True)
-class CaseTask:
-    """Everything a worker needs to run one case (plain, picklable data)."""
-
-    case_id: str
-    index: int
-    params: tuple
-    base_toml: str
-    fixed: tuple
-    run_file: str          # absolute path of the run file
-    run_file_name: str     # relative to the sweep folder, for the table
-    start_file: str = ""   # continuation: the run file to start from
-    started_from: str = ""
-    config_hash: str = ""
-    threads: int = 1       # BLAS threads on the worker (0: leave alone)
-
-
-def _limit_threads(n: int):
-    if n <= 0:
-        return None
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        return None
-    return threadpool_limits(n)
-
-
-def _base_record(task: CaseTask) -> dict:
-    rec = {"case_id": task.case_id, "index": task.index}
-    rec.update(dict(task.params))
-    rec.update(run_file=task.run_file_name, started_from=task.started_from,
-               config_hash=task.config_hash,
-               worker=f"{socket.gethostname()}:{os.getpid()}", error="", message="")
-    return rec
-
-
-def run_case(task: CaseTask) -> dict:
-    """Run one case and return its record; an exception becomes status 'failed', never raises."""
-    from . import api
-    t0 = time.perf_counter()
-    rec = _base_record(task)
-    limiter = _limit_threads(task.threads)
-    try:
-        base = parse_config(tomllib.loads(task.base_toml), source="base config")
-        cfg = case_config(base, task.params, task.fixed)
-        rec.update(rayleigh=cfg.physics.rayleigh, nx=cfg.domain.nx, nz=cfg.domain.nz,
-                   aspect=cfg.domain.aspect, top_flow=cfg.boundaries.top_flow,
-                   viscosity_law=cfg.viscosity.law)
-        if task.start_file:
-            cfg = cfg.replace(start__kind="snapshot", start__file=task.start_file,
-                              start__continuation=())
-        Path(task.run_file).parent.mkdir(parents=True, exist_ok=True)
-        result = api.run(cfg, task.run_file, overwrite=True)
-        rec.update(_result_columns(cfg, result))
-    except Exception as exc:          # any failure of one case is data, not a crash
-        rec.update(status=FAILED, error=f"{type(exc).__name__}: {exc}")
-        log.debug("case %s failed:\n%s", task.case_id, traceback.format_exc())
-    finally:
-        if limiter is not None:
-            limiter.unregister()
-    rec["case_seconds"] = time.perf_counter() - t0
-    return rec
-
-
-def _result_columns(cfg: Config, result) -> dict:
-    """The final diagnostics of a run as table columns."""
-    from .rheology import ViscosityLaw
-    b = cfg.boundaries
-    if b.top_heat == "temperature" and b.bottom_heat == "temperature":
-        t_low, t_high = sorted((b.top_value, b.bottom_value))
-    else:
-        t_low, t_high = float(result.temperature.min()), float(result.temperature.max())
-    law = ViscosityLaw(**{f.name: getattr(cfg.viscosity, f.name)
-                          for f in dataclasses.fields(ViscosityLaw)})
-    eta = np.asarray(result.viscosity)
-    return dict(status=result.status, message=result.message,
-                nusselt_top=result.nusselt_top, nusselt_bottom=result.nusselt_bottom,
-                vrms=result.vrms, surface_vrms=result.surface_vrms,
-                interior_vrms=interior_rms_velocity(result.grid, result.psi),
-                mean_temperature=result.mean_temperature, steps=result.steps, time=result.time,
-                wall_seconds=result.wall_seconds,
-                viscosity_contrast=law_viscosity_contrast(law, t_low, t_high),
-                viscosity_contrast_field=float(eta.max() / eta.min()))
-
-
-# -- back ends -----------------------------------------------------------------------------------
-# A back end runs ``runner(task)`` somewhere: submit(task) queues a case, next_done() blocks
-# until one finishes and returns (case_id, record or the exception it raised), close() ends it.
-class InlineBackend:
-    """Runs each case in the calling process, one at a time (debugging, tests)."""
-
-    name = "inline"
-
-    def __init__(self, runner, jobs=None, scheduler=None):
-        self.runner, self.queue, self.workers = runner, deque(), 1
-
-    def submit(self, task: CaseTask) -> None:
-        self.queue.append(dataclasses.replace(task, threads=0))
-
-    def next_done(self):
-        task = self.queue.popleft()
-        try:
-            return task.case_id, self.runner(task)
-        except Exception as exc:
-            return task.case_id, exc
-
-    def close(self, cancel: bool = False) -> None:
-        self.queue.clear()
-
-
-class LocalBackend:
-    """A ``ProcessPoolExecutor`` of spawned processes, ``jobs`` of them (default: all cores)."""
-
-    name = "local"
-
-    def __init__(self, runner, jobs=None, scheduler=None):
-        if jobs is not None and (isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1):
-            raise ConfigError(f"--jobs = {jobs!r}: expected a whole number >= 1")
-        self.runner = runner
-        self.workers = jobs or os.cpu_count() or 1
-        self.pending: dict = {}
-        self.pool = self._new_pool()
-
-    def _new_pool(self):
-        import concurrent.futures as cf
-        import multiprocessing as mp
-        return cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=mp.get_context("spawn"))
-
-    def submit(self, task: CaseTask) -> None:
-        from concurrent.futures.process import BrokenProcessPool
-        try:
-            future = self.pool.submit(self.runner, task)
-        except BrokenProcessPool:       # a worker died (killed, out of memory): start afresh
-            log.warning("the process pool broke; starting a new one")
-            self.pool.shutdown(wait=False, cancel_futures=True)
-            self.pool = self._new_pool()
-            future = self.pool.submit(self.runner, task)
-        self.pending[future] = task.case_id
-
-    def next_done(self):
-        import concurrent.futures as cf
-        done, _ = cf.wait(list(self.pending), return_when=cf.FIRST_COMPLETED)
-        future = min(done, key=lambda f: self.pending[f])
-        cid = self.pending.pop(future)
-        try:
-            return cid, future.result()
-        except Exception as exc:
-            return cid, exc
-
-    def close(self, cancel: bool = False) -> None:
-        self.pool.shutdown(wait=True, cancel_futures=cancel)
-
-
-class DaskBackend:
-    """An existing ``dask.distributed`` cluster: ``Client(address).submit`` + ``as_completed``.
-
-    ``scheduler`` is the scheduler address (``tcp://host:8786``) or a connected
-    ``distributed.Client``.
-    """
-
-    name = "dask"
-
-    def __init__(self, runner, jobs=None, scheduler=None):
-        try:
-            from distributed import Client, as_completed
-        except ImportError:
-            raise ConfigError("--scheduler: dask.distributed is not installed; "
-                              "pip install 'dask[distributed]'") from None
-        if scheduler is None:
-            raise ConfigError("backend 'dask' needs a scheduler address (--scheduler)")
-        if isinstance(scheduler, str):
-            try:
-                self.client = Client(scheduler, timeout="20s")
-            except (OSError, TimeoutError, ValueError) as exc:
-                raise ConfigError(f"--scheduler = {scheduler!r}: cannot connect ({exc})") from None
-            self.own = True
-        else:
-            self.client, self.own = scheduler, False
-        self.runner = runner
-        self.workers = max(1, len(self.client.scheduler_info().get("workers", {})))
-        self.completed = as_completed()
-        self.pending: dict = {}
-
-    def submit(self, task: CaseTask) -> None:
-        import uuid
-        future = self.client.submit(self.runner, task, pure=False,
-                                    key=f"convsim-case-{task.case_id}-{uuid.uuid4().hex[:8]}")
-        self.pending[future.key] = task.case_id
-        self.completed.add(future)
-
-    def next_done(self):
-        future = next(self.completed)
-        cid = self.pending.pop(future.key)
-        try:
-            record = future.result()
-        except Exception as exc:        # includes a worker lost with its job (KilledWorker)
-            record = exc
-        future.release()
-        return cid, record
-
-    def close(self, cancel: bool = False) -> None:
-        if cancel:
-            self.completed.clear()
-        if self.own:
-            self.client.close()
-
-
-BACKENDS = {"local": LocalBackend, "dask": DaskBackend, "inline": InlineBackend}
-
-
-def make_backend(name: str | None, runner, jobs=None, scheduler=None):
-    """The back end by name (default: 'dask' with a scheduler, else 'local')."""
-    if name is None:
-        name = "dask" if scheduler is not None else "local"
-    if name not in BACKENDS:
-        raise ConfigError(f"backend = {name!r}: expected one of {', '.join(BACKENDS)}")
-    return BACKENDS[name](runner, jobs=jobs, scheduler=scheduler)
-
-
 # -- the sweep ---------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class SweepProgress:
@@ -706,7 +447,7 @@ TABLE_EVERY_SECONDS = 30.0
 
 
 def _failure_record(task: CaseTask, exc: BaseException) -> dict:
-    rec = _base_record(task)
+    rec = base_record(task)
     rec["worker"] = ""
     rec.update(status=FAILED, error=f"{type(exc).__name__}: {exc}")
     return rec
@@ -768,7 +509,7 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
     records: dict = {}
     for case in cases:
         rec = read_record(cases_dir / f"{case.case_id}.json")
-        if rec is None or rec.get("status") == FAILED:
+        if rec is None or rec.get("status") in RETRY_STATUSES:
             continue
         if rec.get("config_hash") != digests[case.case_id]:
             if not overwrite:
@@ -777,8 +518,7 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
                     f"config; pass --overwrite to run it again or --out for another folder")
             continue
         records[case.case_id] = rec
-    (folder / "sweep.json").write_text(json.dumps(_definition(spec), indent=1) + "\n",
-                                       encoding="utf-8")
+    atomic_write_text(folder / "sweep.json", json.dumps(_definition(spec), indent=1) + "\n")
     total, done = len(cases), 0
     for case in cases:
         if case.case_id in records:

@@ -31,8 +31,8 @@ import numpy as np
 
 from .errors import ConfigError, SnapshotError
 
-__all__ = ["COLUMNS", "FAILED", "write_record", "read_record", "table_columns", "write_table",
-           "read_table"]
+__all__ = ["COLUMNS", "FAILED", "atomic_write_text", "write_record", "read_record",
+           "table_columns", "write_table", "read_table"]
 
 FAILED = "failed"   # status of a case whose run raised an exception (run statuses: RunResult)
 
@@ -68,7 +68,8 @@ COLUMNS = {
 }
 
 
-def _atomic_write_text(path: Path, text: str) -> None:
+def atomic_write_text(path: Path, text: str) -> None:
+    """Write text to a temporary file beside ``path``, then move it over ``path``."""
     tmp = path.with_name(path.name + f".tmp{os.getpid()}")
     tmp.write_text(text, encoding="utf-8")
     os.replace(tmp, path)
@@ -89,7 +90,7 @@ def write_record(path: str | Path, record: dict) -> None:
     """Write one case record as JSON, atomically (temporary file, then ``os.replace``)."""
     path = Path(path)
     data = {k: _json_safe(v) for k, v in record.items()}
-    _atomic_write_text(path, json.dumps(data, indent=1, sort_keys=False) + "\n")
+    atomic_write_text(path, json.dumps(data, indent=1, sort_keys=False) + "\n")
 
 
 def read_record(path: str | Path) -> dict | None:

@@ -261,6 +261,27 @@ axis = "physics.rayleigh"
     assert abs(fit.exponent - BLANKENBACH_BETA) < 0.01
 
 
+@pytest.mark.skipif(not os.environ.get("CONVSIM_SLOW"), reason="about a minute; set CONVSIM_SLOW=1")
+def test_blankenbach_exponent_over_the_published_range(tmp_path):
+    """The full check: steady cases at Ra = 1e4, 1e5, 1e6 (48 x 48, continuation) fit beta
+    within 0.01 of ln(21.972465 / 4.884409) / ln(100) = 0.3265 (Blankenbach et al. 1989)."""
+    text = f"""
+base = "{BASE}"
+[fixed]
+domain.nx = 48
+domain.nz = 48
+[[axis]]
+key = "physics.rayleigh"
+values = [1e4, 1e5, 1e6]
+[continuation]
+axis = "physics.rayleigh"
+"""
+    out = run_sweep(load_sweep(write(tmp_path, text)), tmp_path / "out", backend="inline")
+    assert [r["status"] for r in out.records] == ["steady"] * 3
+    fit, _ = fit_table(read_table(out.table_csv), "rayleigh", "nusselt_top")
+    assert abs(fit.exponent - BLANKENBACH_BETA) < 0.01
+
+
 # -- command line ------------------------------------------------------------------------------
 def test_sweep_command(tmp_path, capsys):
     path = write(tmp_path, SMALL.replace("[1e4, 3e4, 1e5]", "[1e4, 3e4]"))
