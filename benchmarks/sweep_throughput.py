@@ -65,7 +65,9 @@ def main() -> int:
     ap.add_argument("--steps", type=int, default=300)
     ap.add_argument("--workers", type=int, default=2)
     args = ap.parse_args()
+    import logging
     from distributed import LocalCluster
+    logging.getLogger("distributed").setLevel(logging.CRITICAL)   # shutdown chatter
     print(f"{args.cases} cases of {args.grid}x{args.grid}, {args.steps} steps each; "
           f"{args.workers} workers; {os.cpu_count()} cores; load average "
           f"{os.getloadavg()[0]:.2f}", flush=True)

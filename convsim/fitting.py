@@ -26,8 +26,9 @@ Regimes
 
     M = v_surface / v_interior                                                 (3)
 
-(surface rms velocity over the rms velocity of the interior) and its viscosity
-contrast Delta eta = eta_max / eta_min:
+(surface rms velocity over the rms velocity of the interior; the sweep table's
+``interior_vrms`` is the rms over the band 0.2 <= z <= 0.8, ``vrms`` the whole box)
+and its viscosity contrast Delta eta = eta_max / eta_min:
 
 - ``mobile``:        M >= mobile_ratio (default 0.6) -- the surface moves with
   the interior (isoviscous free-slip convection has M > 1);

@@ -72,6 +72,8 @@ the sweep folder (a shared file system), since each case writes its run file
 itself.  Start workers with one thread each (``dask worker ADDRESS --nthreads 1``
 with ``OMP_NUM_THREADS=1``), a case being a single-threaded computation.
 ``inline``: the calling process, one case at a time (debugging, tests).
+The local pool and a ``LocalCluster`` spawn fresh interpreters, so a script that
+calls ``run_sweep`` must keep its top level under ``if __name__ == "__main__":``.
 
 On an HPC batch system, dask-jobqueue starts such a scheduler and its workers
 as batch jobs; its address is all the sweep needs::

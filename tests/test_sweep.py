@@ -125,6 +125,9 @@ def test_interior_velocity_and_law_contrast():
     law = ViscosityLaw("frank-kamenetskii", thermal_contrast=1e5, depth_contrast=10.0)
     assert law_viscosity_contrast(law, 0.0, 1.0) == pytest.approx(1e6, rel=1e-9)
     assert law_viscosity_contrast(ViscosityLaw(), 0.0, 1.0) == 1.0
+    # exactly the configured contrast, not one ulp below a threshold of the same value
+    assert law_viscosity_contrast(ViscosityLaw("frank-kamenetskii", thermal_contrast=1e3),
+                                  0.0, 1.0) == 1e3
 
 
 # -- running -----------------------------------------------------------------------------------
