@@ -330,9 +330,10 @@ def _run_sweep(args) -> int:
         emit_json(summary)
     else:
         statuses = ", ".join(f"{n} {s}" for s, n in summary["statuses"].items())
+        where = (f"{outcome.backend} back end, {outcome.workers} workers, "
+                 f"{outcome.wall_seconds:.1f} s" if outcome.executed else "nothing to run")
         print(f"{summary['cases']} cases ({statuses}): {outcome.executed} run, "
-              f"{outcome.skipped} done before; {outcome.backend} back end, "
-              f"{outcome.workers} workers, {outcome.wall_seconds:.1f} s")
+              f"{outcome.skipped} done before; {where}")
         for r in outcome.records:
             if r["status"] == "failed":
                 print(f"  failed {r['case_id']}: {r['error']}")

@@ -557,7 +557,10 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
                         run_file_name=name, start_file=start_file, started_from=started_from,
                         config_hash=digests[case.case_id])
 
-    engine = make_backend(backend, runner, jobs=jobs, scheduler=scheduler)
+    if all(c.case_id in records for c in cases):
+        engine = None                   # nothing to run: no pool, no connection
+    else:
+        engine = make_backend(backend, runner, jobs=jobs, scheduler=scheduler)
     busy: dict = {}                 # chain -> task in flight
     tasks: dict = {}
     executed = 0
@@ -600,15 +603,18 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
                             spec.param_keys, folder)
                 last_table = time.perf_counter()
     except BaseException:
-        engine.close(cancel=True)
+        if engine is not None:
+            engine.close(cancel=True)
         write_table([records[c.case_id] for c in cases if c.case_id in records],
                     spec.param_keys, folder)
         raise
-    engine.close()
+    if engine is not None:
+        engine.close()
     ordered = [records[c.case_id] for c in cases if c.case_id in records]
     csv_path, h5_path = write_table(ordered, spec.param_keys, folder)
     failed = sum(1 for r in ordered if r["status"] == FAILED)
     return SweepOutcome(records=ordered, executed=executed, skipped=skipped, failed=failed,
                         table_csv=csv_path, table_h5=h5_path, folder=folder,
-                        backend=engine.name, workers=engine.workers,
+                        backend=engine.name if engine else "none",
+                        workers=engine.workers if engine else 0,
                         wall_seconds=time.perf_counter() - t0)
