@@ -15,6 +15,7 @@ from .errors import ConfigError
 from .grid import Grid, interpolate_cells
 from .simulation import ResumePoint, RunResult, Simulation, build_model
 from .snapshot import RunFileObserver, RunFileWriter, read_run
+from .xdmf import write_xdmf
 
 __all__ = ["load_config", "run", "start_temperature"]
 
@@ -66,4 +67,6 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     sim = Simulation(config, model, start_temperature(config, model.grid), observers)
     result = sim.run(resume)
     result.output = None if output is None else str(output)
+    if output is not None:
+        write_xdmf(output, overwrite=True)      # the sidecar belongs to its run file
     return result

@@ -8,6 +8,7 @@ from __future__ import annotations
 import argparse
 import json
 import logging
+import os
 import sys
 
 from . import __version__
@@ -802,6 +803,9 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("convsim: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:          # output piped into `head` and the like
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":

@@ -378,18 +378,3 @@ def test_line_colours_are_okabe_ito():
     okabe_ito = {"#000000", "#e69f00", "#56b4e9", "#009e73", "#f0e442", "#0072b2", "#d55e00",
                  "#cc79a7"}  # Okabe & Ito (2008), quoted from memory
     assert set(style.LINE_COLORS) <= okabe_ito and len(set(style.LINE_COLORS)) == 7
-
-
-def test_matplotlib_is_imported_only_in_figure_modules():
-    package = Path(figures.__file__).parent
-    allowed = {"style.py", "figures.py", "animation.py", "figures_onset.py"}
-    for path in package.glob("*.py"):
-        tree = ast.parse(path.read_text(encoding="utf-8"))
-        for node in ast.walk(tree):
-            names = []
-            if isinstance(node, ast.Import):
-                names = [a.name for a in node.names]
-            elif isinstance(node, ast.ImportFrom) and node.module:
-                names = [node.module]
-            if any(n.split(".")[0] == "matplotlib" for n in names):
-                assert path.name in allowed, path.name
