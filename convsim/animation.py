@@ -77,7 +77,7 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
     count = len(run.times)
     with style.context():
         width, height = _field_size(run)
-        # whole, even pixel counts (yuv420p video needs even sizes)
+        # whole, even pixel counts (the yuv420p pixel format of MP4 needs even sizes)
         width, height = (2 * round(v * dpi / 2) / dpi for v in (width, height))
         fig = style.new_figure(width, height)
         ax = fig.add_subplot()
