@@ -112,7 +112,6 @@ def _add_run(p):
 def _run(args):
     from pathlib import Path
     from . import api
-    from .errors import ConfigError
     overrides = list(args.set)
     if args.start_from:
         overrides += ["start.kind=\"snapshot\"", f"start.file={json.dumps(args.start_from)}"]

@@ -348,17 +348,22 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
     return cfg
 
 
-def load_config(path: str | Path, overrides: list[str] | tuple[str, ...] = ()) -> Config:
-    """Read a TOML config file, apply ``section.key=value`` overrides and validate it."""
+def read_toml(path: str | Path, what: str = "config file") -> dict:
+    """Parse a TOML file; a missing, non-UTF-8 or malformed file raises ``ConfigError``."""
     path = Path(path)
     if not path.is_file():
-        raise ConfigError(f"config file {str(path)!r}: not found")
+        raise ConfigError(f"{what} {str(path)!r}: not found")
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        return tomllib.loads(path.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"config file {str(path)!r}: not valid TOML ({exc})") from None
+        raise ConfigError(f"{what} {str(path)!r}: not valid TOML ({exc})") from None
     except UnicodeDecodeError:
-        raise ConfigError(f"config file {str(path)!r}: not UTF-8 text") from None
+        raise ConfigError(f"{what} {str(path)!r}: not UTF-8 text") from None
+
+
+def load_config(path: str | Path, overrides: list[str] | tuple[str, ...] = ()) -> Config:
+    """Read a TOML config file, apply ``section.key=value`` overrides and validate it."""
+    data = read_toml(path)
     apply_overrides(data, overrides)
     return parse_config(data, source=str(path))
 

@@ -27,7 +27,6 @@ from dataclasses import dataclass, field, fields as dc_fields
 
 import numpy as np
 
-from . import __version__
 from . import diagnostics as diag
 from .config import Config, to_toml
 from .energy import ThermalBoundaries
@@ -259,7 +258,6 @@ class Simulation:
             window = [tuple(v) for v in np.asarray(r.get("window", np.zeros((0, 2))))]
         self._emit("on_start", self, resume is not None)
         status, message = "", ""
-        last_report = None
         tol = stop.steady_tolerance
 
         def snapshot(st, status_now):
@@ -298,7 +296,7 @@ class Simulation:
                     message = (f"step {report.step} at t = {report.time:.6g}: vrms = "
                                f"{report.vrms:.3g} is not finite or above {runaway:.3g}")
                     break
-                state, last_report = new, report
+                state = new
                 for k, v in report.seconds.items():
                     phase[k] = phase.get(k, 0.0) + v
                 if report.step % out.series_every == 0:

@@ -103,7 +103,6 @@ import json
 import logging
 import math
 import time
-import tomllib
 from collections import deque
 from dataclasses import dataclass
 from pathlib import Path
@@ -111,7 +110,7 @@ from typing import Callable
 
 import numpy as np
 
-from .config import TABLES, Config, to_toml
+from .config import TABLES, Config, read_toml, to_toml
 from .errors import ConfigError, OutputExistsError
 from .sweep_backends import BACKENDS, make_backend
 from .sweep_case import (INTERIOR_BAND, CaseTask, base_record, case_config, config_digest,
@@ -274,7 +273,7 @@ def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") 
         raise ConfigError(f"{source}: [fixed] must be a table of section.key = value")
     fixed = _flatten(fixed_raw)
     for key in fixed:
-        _config_field(key, f"fixed key")
+        _config_field(key, "fixed key")
     raw_axes = data.get("axis", [])
     if not isinstance(raw_axes, list) or not raw_axes:
         raise ConfigError(f"{source}: expected at least one [[axis]] table")
@@ -327,14 +326,7 @@ def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") 
 def load_sweep(path: str | Path) -> SweepSpec:
     """Read and check a sweep file."""
     path = Path(path)
-    if not path.is_file():
-        raise ConfigError(f"sweep file {str(path)!r}: not found")
-    try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"sweep file {str(path)!r}: not valid TOML ({exc})") from None
-    except UnicodeDecodeError:
-        raise ConfigError(f"sweep file {str(path)!r}: not UTF-8 text") from None
+    data = read_toml(path, "sweep file")
     return parse_sweep(data, folder=path.parent, source=str(path))
 
 

@@ -26,7 +26,7 @@ The time loop itself belongs to ``convsim.simulation``.
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 

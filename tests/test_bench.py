@@ -8,7 +8,6 @@ extrapolate to f0.
 
 import json
 import math
-import struct
 from pathlib import Path
 
 import pytest

@@ -15,7 +15,6 @@ External references used below:
 
 from __future__ import annotations
 
-import ast
 import math
 from pathlib import Path
 

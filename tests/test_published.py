@@ -2,8 +2,6 @@
 table of best estimates (values quoted from memory).  Unit square, free-slip walls, T = 1 at the
 bottom and 0 at the top, insulating sides."""
 
-import numpy as np
-import pytest
 
 from convsim import api
 
