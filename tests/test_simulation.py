@@ -123,3 +123,17 @@ def test_ctrl_c_ends_cleanly_with_a_final_snapshot(tmp_path):
     saved = read_run(path)
     assert saved.attrs["status"] == "interrupted"
     assert saved.steps[-1] > saved.steps[-2]
+
+
+def test_start_from_another_runs_snapshot_on_another_grid(case_config, tmp_path):
+    """Continuation: a converged 16 x 16 state interpolated onto 24 x 24 converges to the
+    24 x 24 steady state of a fresh start (same Nu)."""
+    api.run(case_config("1a", "domain.nx=16", "domain.nz=16"), tmp_path / "coarse.h5")
+    fresh = api.run(case_config("1a", "domain.nx=24", "domain.nz=24", "stop.newton=false",
+                                "stop.steady_tolerance=1e-7"))
+    continued = api.run(case_config("1a", "domain.nx=24", "domain.nz=24", "stop.newton=false",
+                                    "stop.steady_tolerance=1e-7", 'start.kind="snapshot"',
+                                    f'start.file="{tmp_path / "coarse.h5"}"'))
+    assert fresh.steady and continued.steady
+    assert abs(continued.nusselt_top - fresh.nusselt_top) < 1e-5
+    assert continued.steps < fresh.steps
