@@ -21,7 +21,6 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-pytest.importorskip("matplotlib")
 
 from matplotlib import colors as mcolors  # noqa: E402
 from matplotlib.collections import QuadMesh  # noqa: E402
