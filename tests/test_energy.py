@@ -14,19 +14,24 @@ from convsim.timestepping import Model
 import naive
 
 
+def _random_flow(g, rng):
+    """Face velocities of a random streamfunction that vanishes on the walls (or wraps)."""
+    psi = rng.normal(size=g.node_shape)
+    psi[0] = psi[-1] = 0.0
+    if g.periodic:
+        psi[:, -1] = psi[:, 0]
+    else:
+        psi[:, 0] = psi[:, -1] = 0.0
+    return face_velocities(g, psi)
+
+
 @pytest.mark.parametrize("limiter", list(kernels.LIMITER_CODES))
 @pytest.mark.parametrize("periodic", [False, True])
 def test_advection_kernel_matches_naive_twin(limiter, periodic):
     rng = np.random.default_rng(4)
     g = Grid(9, 7, 1.3, periodic=periodic)
     T = rng.uniform(size=g.cell_shape)
-    psi = rng.normal(size=g.node_shape)
-    psi[0] = psi[-1] = 0.0
-    if periodic:
-        psi[:, -1] = psi[:, 0]
-    else:
-        psi[:, 0] = psi[:, -1] = 0.0
-    u, w = face_velocities(g, psi)
+    u, w = _random_flow(g, rng)
     bc = ThermalBoundaries("temperature", 0.2, "flux", 1.5)
     fast = advection(g, T, u, w, bc, limiter)
     slow = naive.advective_tendency(pad_temperature(g, T, bc), u, w, g.dx, g.dz, limiter)
@@ -37,13 +42,7 @@ def test_upwind_matrix_equals_first_order_kernel():
     rng = np.random.default_rng(5)
     for periodic in (False, True):
         g = Grid(8, 6, 1.0, periodic=periodic)
-        psi = rng.normal(size=g.node_shape)
-        psi[0] = psi[-1] = 0.0
-        if periodic:
-            psi[:, -1] = psi[:, 0]
-        else:
-            psi[:, 0] = psi[:, -1] = 0.0
-        u, w = face_velocities(g, psi)
+        u, w = _random_flow(g, rng)
         T = rng.uniform(size=g.cell_shape)
         bc = ThermalBoundaries()
         np.testing.assert_allclose(-(upwind_matrix(g, u, w) @ T.ravel()).reshape(g.cell_shape),
