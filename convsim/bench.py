@@ -186,6 +186,8 @@ def run_task(task: BenchTask) -> BenchRow:
     """Run one case on one grid (the worker function; top level so that it pickles)."""
     from . import api
     from .config import load_config
+    from .linsolve import limit_blas_threads
+    limit_blas_threads(1)          # the parallel runs are the parallelism (two BLAS pools spin)
     cfg = load_config(task.config_path, list(task.overrides))
     if task.warmup:
         warm = cfg.replace(domain__nx=8, domain__nz=8, stop__steady=False, stop__max_steps=5,

@@ -26,7 +26,7 @@ import scipy.sparse.linalg as sla
 
 from .errors import SolverError
 
-__all__ = ["FACTORIZERS", "available_factorizers", "make_factorizer", "solve_spd",
+__all__ = ["FACTORIZERS", "limit_blas_threads", "available_factorizers", "make_factorizer", "solve_spd",
            "LaggedFactorSolver", "SolveReport"]
 
 
@@ -60,7 +60,7 @@ class CholmodFactorizer:
                               "allowed: 'superlu', or pip install cvxopt") from exc
         self._cvxopt = cvxopt
         self._cholmod = cvxopt.cholmod
-        _single_threaded_blas()
+        limit_blas_threads(1)
         self._cholmod.options["supernodal"] = 2
         self._symbolic = None
         self._key = None
@@ -85,19 +85,24 @@ class CholmodFactorizer:
         return np.array(x).ravel()
 
 
-def _single_threaded_blas():
-    """Limit every loaded BLAS to one thread.
+def limit_blas_threads(n: int = 1):
+    """Limit every loaded BLAS to n threads (also those loaded later, through the environment).
 
     cvxopt ships its own OpenBLAS beside numpy's; two spinning thread pools on a
     small machine slow every dense and sparse kernel several times over (measured:
     a 128 x 128 variable-viscosity step went from 190 ms to 29 ms on 2 cores).
-    The matrices here are too small to gain from threaded BLAS.
+    The matrices here are too small to gain from threaded BLAS, and parallel runs
+    (bench, sweep, onset brackets) are the parallelism: each worker calls this.
+    Returns the threadpoolctl limiter (or None without threadpoolctl).
     """
+    import os
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
     try:
         from threadpoolctl import threadpool_limits
     except ImportError:  # pragma: no cover
-        return
-    threadpool_limits(limits=1, user_api="blas")
+        return None
+    return threadpool_limits(limits=n, user_api="blas")
 
 
 FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}

@@ -238,11 +238,8 @@ def _run_one(cfg: Config) -> dict:
 
 def _one_thread_per_worker() -> None:
     """Worker initializer: one BLAS thread each (the runs themselves are the parallelism)."""
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # pragma: no cover
-        return
-    threadpool_limits(limits=1)
+    from .linsolve import limit_blas_threads
+    limit_blas_threads(1)
 
 
 def _run_all(configs, jobs: int) -> list[dict]:

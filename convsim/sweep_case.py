@@ -95,13 +95,8 @@ class CaseTask:
 def _limit_threads(n: int):
     if n <= 0:
         return None
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        return None
-    return threadpool_limits(n)
+    from .linsolve import limit_blas_threads
+    return limit_blas_threads(n)
 
 
 def base_record(task: CaseTask) -> dict:
