@@ -142,7 +142,7 @@ class Model:
     def restore_factor(self, weights: np.ndarray | None) -> None:
         """Rebuild the Stokes factor a saved run was using (for a bit-for-bit restart)."""
         if weights is not None and self._lagged is not None:
-            self._lagged.refactor(self._matrix_from_weights(weights), weights)
+            self._lagged.refactor(self.stokes.matrix_from_weights(weights), weights)
 
     def solve_flow(self, T: np.ndarray, psi_guess: np.ndarray | None = None
                    ) -> tuple[np.ndarray, SolveReport]:
@@ -154,7 +154,7 @@ class Model:
             return self.stokes.to_nodes(x), SolveReport(solve_seconds=time.perf_counter() - t0)
         eta_n, eta_c = self.viscosities(T)
         weights = self.stokes.viscosity_weights(eta_n, eta_c)
-        A = self._matrix_from_weights(weights)
+        A = self.stokes.matrix_from_weights(weights)
         x0 = None if psi_guess is None else self.stokes.from_nodes(psi_guess)
         x, report = self._lagged.solve(A, b, x0, weights)
         return self.stokes.to_nodes(x), report
@@ -175,7 +175,7 @@ class Model:
             return psi, lambda v: op.to_nodes(self._transform.solve(op.rhs(v, self.rayleigh)))
         factor = make_factorizer(self.stokes_solver)
         eta_n, eta_c = self.viscosities(T)
-        factor.factor(self._matrix_from_weights(op.viscosity_weights(eta_n, eta_c)))
+        factor.factor(self.stokes.matrix_from_weights(op.viscosity_weights(eta_n, eta_c)))
         x = factor.solve(op.rhs(T, self.rayleigh))
 
         def derivative(v):
@@ -186,16 +186,10 @@ class Model:
             up_n, up_c = self.viscosities(T + h * v)
             dn_n, dn_c = self.viscosities(T - h * v)
             dweights = op.viscosity_weights((up_n - dn_n) / (2 * h), (up_c - dn_c) / (2 * h))
-            rhs = op.rhs(v, self.rayleigh) - self._matrix_from_weights(dweights) @ x
+            rhs = op.rhs(v, self.rayleigh) - self.stokes.matrix_from_weights(dweights) @ x
             return op.to_nodes(factor.solve(rhs))
 
         return op.to_nodes(x), derivative
-
-    def _matrix_from_weights(self, weights):
-        import scipy.sparse as sp
-        op = self.stokes
-        n = op.n_unknowns
-        return sp.csr_matrix((op.value_map @ weights, op._indices, op._indptr), shape=(n, n))
 
     @property
     def stokes_rtol(self) -> float:
