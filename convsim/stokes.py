@@ -194,9 +194,16 @@ class StokesOperator:
         eta_cell : ndarray, shape (nz, nx)
             Viscosity at the cell centres.
         """
+        return self.matrix_from_weights(self.viscosity_weights(eta_node, eta_cell))
+
+    def matrix_from_weights(self, weights: np.ndarray) -> sp.csr_matrix:
+        """A from viscosity weights (``viscosity_weights``).
+
+        A is linear in the weights, so this also gives dA for a change of the weights.
+        """
         n = self.n_unknowns
-        return sp.csr_matrix((self.matrix_values(eta_node, eta_cell), self._indices.copy(),
-                              self._indptr.copy()), shape=(n, n))
+        return sp.csr_matrix((self.value_map @ weights, self._indices.copy(), self._indptr.copy()),
+                             shape=(n, n))
 
     # -- vectors ----------------------------------------------------------------------------
     def rhs(self, temperature: np.ndarray, rayleigh: float) -> np.ndarray:
