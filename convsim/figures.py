@@ -172,42 +172,9 @@ def _colorbar(ax, mesh, label):
     return ax.figure.colorbar(mesh, cax=cax, label=label)
 
 
-def _log_label(value: float) -> str:
-    """A tick label: plain for 1e-3 <= v < 1e4, else m x 10^k in mathtext."""
-    if 1.0e-3 <= abs(value) < 1.0e4:
-        return f"{value:g}"
-    exponent = math.floor(math.log10(abs(value)) + 1e-9)
-    mantissa = round(value / 10.0**exponent, 6)
-    if mantissa == 1.0:
-        return f"$10^{{{exponent}}}$"
-    return f"${mantissa:g}\\times10^{{{exponent}}}$"
-
-
-def log_ticks(axis, lo: float, hi: float, max_labels: int = 5) -> list[float]:
-    """Label a log axis over [lo, hi] with 1, 1-2-5 or 1..9 times powers of ten.
-
-    The densest of those sets with at most ``max_labels`` ticks inside the range
-    (at least two) is used, so that a range of less than a decade still gets
-    labels and a wide one does not crowd; minor ticks stay unlabelled.
-    """
-    first, last = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
-    chosen = []
-    for subs in ((1.0,), (1.0, 2.0, 5.0), (1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0)):
-        ticks = [m * 10.0**k for k in range(first, last + 1) for m in subs
-                 if lo * (1 - 1e-9) <= m * 10.0**k <= hi * (1 + 1e-9)]
-        if len(ticks) > max_labels and len(chosen) >= 2:
-            break
-        chosen = ticks
-        if len(ticks) >= 3:
-            break
-    if len(chosen) > max_labels:  # many decades: every n-th power of ten
-        step = math.ceil(len(chosen) / max_labels)
-        chosen = chosen[::step]
-    axis.set_major_locator(ticker.FixedLocator(chosen))
-    axis.set_major_formatter(ticker.FixedFormatter([_log_label(v) for v in chosen]))
-    axis.set_minor_locator(ticker.LogLocator(subs="auto"))
-    axis.set_minor_formatter(ticker.NullFormatter())
-    return chosen
+#: Log-axis tick helpers live in the shared style (the onset, bench and sweep figures use them too).
+_log_label = style.log_label
+log_ticks = style.log_ticks
 
 
 def draw_viscosity(ax, run: RunFile, pres: Presentation, *, colorbar=True):

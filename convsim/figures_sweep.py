@@ -1,129 +1,176 @@
 """Figures of a sweep: a scaling plot (log-log, with the fit and a reference slope) and a
-regime map.  matplotlib only here, through the Agg canvas (no pyplot, no display).
+regime map.
 
-Style choices are collected in ``STYLE`` (to be unified with a project style module).
-Every function takes plain arrays and fit results and writes one PNG file.
+Drawn in the house style of :mod:`convsim.style` (one column wide, its fonts, line
+colours and markers, layout frozen, dateless files); no pyplot.  ``*_plot``
+functions take plain arrays and fit results and return the Figure; ``*_figure``
+functions write it to one file (format from the suffix, written atomically).
 """
 
 from __future__ import annotations
 
+import textwrap
 from pathlib import Path
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.legend_handler import HandlerTuple
 
-__all__ = ["STYLE", "scaling_figure", "regime_map_figure"]
+from . import style
 
-STYLE = {
-    "figsize": (5.2, 4.0),
-    "dpi": 150,
-    "font_size": 9,
-    "point_marker": "o",
-    "point_size": 28,
-    "point_colors": ("#1b4f72", "#b03a2e", "#1e8449", "#7d3c98", "#b9770e", "#2e4053"),
-    "fit_linestyle": "-",
-    "reference_linestyle": "--",
-    "reference_color": "#7f7f7f",
-    "excluded_color": "#bbbbbb",
-    "line_width": 1.2,
-    "regime_markers": {"mobile": "o", "transitional": "s", "stagnant": "^",
-                       "conductive": "D", "unclassified": "x"},
-    "regime_colors": {"mobile": "#1b4f72", "transitional": "#b9770e", "stagnant": "#b03a2e",
-                      "conductive": "#1e8449", "unclassified": "#7f7f7f"},
-    "grid_alpha": 0.3,
-}
+__all__ = ["REGIMES", "scaling_plot", "regime_map_plot", "scaling_figure", "regime_map_figure"]
+
+#: Regimes of the map in legend order, with the index of their colour and marker in the style
+#: (unclassified: black crosses).
+REGIMES = {"mobile": 0, "transitional": 3, "stagnant": 1, "conductive": 2, "unclassified": 6}
+_HEIGHT = 2.6            # [in] of the axes part; legend rows below add to it
+_ROW = 0.16              # [in] per legend row
+_TITLE_CHARS = 62        # wrap width of a title at 7 pt in one column
+_LEGEND_CHARS = 50       # wrap width of a legend entry at 7 pt, beside its handle
 
 
-def _figure():
-    fig = Figure(figsize=STYLE["figsize"], dpi=STYLE["dpi"])
-    FigureCanvasAgg(fig)
-    ax = fig.add_subplot(1, 1, 1)
-    for item in [ax.title, ax.xaxis.label, ax.yaxis.label] + ax.get_xticklabels() \
-            + ax.get_yticklabels():
-        item.set_fontsize(STYLE["font_size"])
-    ax.grid(True, which="both", alpha=STYLE["grid_alpha"])
+def _figure(legend_rows: int) -> tuple[Figure, object]:
+    fig = style.new_figure(style.COLUMN_WIDTH, _HEIGHT + _ROW * legend_rows)
+    ax = fig.add_subplot()
+    style.light_grid(ax)
     return fig, ax
 
 
-def _save(fig, path) -> Path:
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + ".part.png")
-    fig.savefig(tmp, dpi=STYLE["dpi"], bbox_inches="tight")
-    tmp.replace(path)
-    return path
+def _log_axes(ax) -> None:
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    for axis, (lo, hi) in ((ax.xaxis, ax.get_xlim()), (ax.yaxis, ax.get_ylim())):
+        style.log_ticks(axis, lo, hi)
 
 
-def scaling_figure(path, series, *, x_label: str, y_label: str, reference_slope=None,
-                   reference_label: str = "", title: str = "", excluded=None) -> Path:
+def _number(value: float) -> str:
+    """``value`` to 3 digits for mathtext: plain for 1e-3 <= |v| < 1e4, else m x 10^k."""
+    if value == 0.0 or not np.isfinite(value) or 1.0e-3 <= abs(value) < 1.0e4:
+        return f"{value:.3g}"
+    k = int(np.floor(np.log10(abs(value))))
+    return rf"{value / 10.0**k:.3g}\times10^{{{k}}}"
+
+
+def _fit_text(fit) -> str:
+    """``fit a x^b, exponent in [lo, hi]`` (a mathtext label; the interval where known)."""
+    lo, hi = fit.exponent_interval
+    text = rf"fit ${_number(fit.prefactor)}\,x^{{{fit.exponent:.4f}}}$"
+    return text + (rf", exponent $\in$ [{lo:.4f}, {hi:.4f}]" if np.isfinite(lo) else "")
+
+
+def _wrap(text: str) -> str:
+    """Wrap the plain lines of a legend entry (mathtext lines are short and kept whole)."""
+    return "\n".join(part if "$" in part else textwrap.fill(part, _LEGEND_CHARS)
+                      for part in text.split("\n"))
+
+
+def scaling_plot(series, *, x_label: str, y_label: str, reference_slope=None,
+                 reference_label: str = "", title: str = "", excluded=None) -> Figure:
     """y against x on log-log axes: the points, each fitted power law, a reference slope.
 
     Parameters
     ----------
-    path : output PNG
     series : list of (label, x, y, fit) with ``fit`` a ``fitting.PowerLawFit`` or None
+        The n-th series in the n-th colour and marker of the style; its points and fit
+        line share one legend entry.
     x_label, y_label : axis labels
     reference_slope : float, optional
-        Drawn as y ~ x^slope through the geometric centre of all points.
+        Drawn as y ~ x^slope through the geometric centre of all points (grey, dashed).
     excluded : (x, y), optional
-        Rows not used by the fit (another status), drawn in grey.
+        Rows not used by the fit (another status), drawn as grey crosses.
     """
-    fig, ax = _figure()
-    all_x, all_y = [], []
-    for i, (label, x, y, fit) in enumerate(series):
-        color = STYLE["point_colors"][i % len(STYLE["point_colors"])]
-        x, y = np.asarray(x, float), np.asarray(y, float)
-        all_x.append(x)
-        all_y.append(y)
-        ax.scatter(x, y, s=STYLE["point_size"], marker=STYLE["point_marker"], color=color,
-                   label=label or None, zorder=3)
-        if fit is not None:
+    with style.context():
+        fig = style.new_figure(style.COLUMN_WIDTH, _HEIGHT)  # height set below, from the legend
+        ax = fig.add_subplot()
+        style.light_grid(ax)
+        handles, labels = [], []
+        all_x, all_y = [], []
+        for i, (label, x, y, fit) in enumerate(series):
+            n = i % len(style.LINE_COLORS)
+            color, marker = style.LINE_COLORS[n], style.MARKERS[n]
+            x, y = np.asarray(x, float), np.asarray(y, float)
+            all_x.append(x)
+            all_y.append(y)
+            (points,) = ax.plot(x, y, ls="none", marker=marker, ms=4, color=color,
+                                label=label or "data", zorder=3)
+            handle, text = points, label or "data"
+            if fit is not None:
+                xs = np.geomspace(x.min(), x.max(), 50)
+                (line,) = ax.plot(xs, fit.predict(xs), ls=style.LINE_STYLES[0], color=color,
+                                  label=_fit_text(fit), zorder=2)
+                handle = (points, line)
+                text = f"{label}\n{_fit_text(fit)}" if label else _fit_text(fit)
+            handles.append(handle)
+            labels.append(text)
+        if excluded is not None and len(excluded[0]):
+            (out,) = ax.plot(excluded[0], excluded[1], ls="none", marker="x", ms=4,
+                             color=style.GUIDE_COLOR, label="not fitted", zorder=2)
+            handles.append(out)
+            labels.append("not fitted")
+        if reference_slope is not None and all_x:
+            x = np.concatenate(all_x)
+            y = np.concatenate(all_y)
+            x0, y0 = np.exp(np.mean(np.log(x))), np.exp(np.mean(np.log(y)))
             xs = np.geomspace(x.min(), x.max(), 50)
-            lo, hi = fit.exponent_interval
-            text = (f"fit: {fit.prefactor:.3g} x^{fit.exponent:.4f}"
-                    + (f" [{lo:.4f}, {hi:.4f}]" if np.isfinite(lo) else ""))
-            ax.plot(xs, fit.predict(xs), STYLE["fit_linestyle"], color=color,
-                    lw=STYLE["line_width"], label=text)
-    if excluded is not None and len(excluded[0]):
-        ax.scatter(excluded[0], excluded[1], s=STYLE["point_size"], marker="x",
-                   color=STYLE["excluded_color"], label="not fitted", zorder=2)
-    if reference_slope is not None and all_x:
-        x = np.concatenate(all_x)
-        y = np.concatenate(all_y)
-        x0, y0 = np.exp(np.mean(np.log(x))), np.exp(np.mean(np.log(y)))
-        xs = np.geomspace(x.min(), x.max(), 50)
-        ax.plot(xs, y0 * (xs / x0) ** reference_slope, STYLE["reference_linestyle"],
-                color=STYLE["reference_color"], lw=STYLE["line_width"],
-                label=reference_label or f"slope {reference_slope:.4g}")
-    ax.set_xscale("log")
-    ax.set_yscale("log")
-    ax.set_xlabel(x_label)
-    ax.set_ylabel(y_label)
-    if title:
-        ax.set_title(title)
-    ax.legend(fontsize=STYLE["font_size"] - 1, frameon=False)
-    return _save(fig, path)
+            (ref,) = ax.plot(xs, y0 * (xs / x0) ** reference_slope, ls=style.LINE_STYLES[1],
+                             color=style.GUIDE_COLOR, lw=0.8, zorder=1,
+                             label=reference_label or f"slope {reference_slope:.4g}")
+            handles.append(ref)
+            labels.append(ref.get_label())
+        _log_axes(ax)
+        ax.set_xlabel(x_label)
+        ax.set_ylabel(y_label)
+        if title:
+            ax.set_title(textwrap.fill(title, _TITLE_CHARS))
+        if handles:
+            labels = [_wrap(text) for text in labels]
+            rows = sum(text.count("\n") + 1 for text in labels)
+            fig.set_figheight(_HEIGHT + _ROW * rows)
+            fig.legend(handles, labels, loc="outside lower center", ncols=1,
+                       handler_map={tuple: HandlerTuple(ndivide=None)})
+    return style.freeze_layout(fig)
+
+
+def regime_map_plot(rayleigh, contrast, regimes, *, thresholds_text: str = "",
+                    x_label: str = "Rayleigh number Ra",
+                    y_label: str = "viscosity contrast") -> Figure:
+    """Cases on (Ra, viscosity contrast) log-log axes, one colour and marker per regime."""
+    rayleigh, contrast = np.asarray(rayleigh, float), np.asarray(contrast, float)
+    regimes = np.asarray(regimes, dtype=object)
+    ok = np.isfinite(rayleigh) & np.isfinite(contrast) & (rayleigh > 0) & (contrast > 0)
+    present = [name for name in REGIMES if (ok & (regimes == name)).any()]
+    with style.context():
+        fig, ax = _figure(1)
+        for name in present:
+            sel = ok & (regimes == name)
+            n = REGIMES[name]
+            marker = "x" if name == "unclassified" else style.MARKERS[n]
+            ax.plot(rayleigh[sel], contrast[sel], ls="none", marker=marker, ms=5,
+                    color=style.LINE_COLORS[n], label=name, zorder=3)
+        _log_axes(ax)
+        ax.set_xlabel(x_label)
+        ax.set_ylabel(y_label)
+        if thresholds_text:
+            ax.set_title(textwrap.fill(thresholds_text, _TITLE_CHARS),
+                         fontsize=style.RC["legend.fontsize"])
+        if present:
+            fig.legend(loc="outside lower center", ncols=len(present), columnspacing=1.2,
+                       handletextpad=0.3)
+    return style.freeze_layout(fig)
+
+
+def scaling_figure(path, series, *, x_label: str, y_label: str, reference_slope=None,
+                   reference_label: str = "", title: str = "", excluded=None) -> Path:
+    """Draw :func:`scaling_plot` and write it to ``path`` (PNG, or PDF/SVG by suffix)."""
+    fig = scaling_plot(series, x_label=x_label, y_label=y_label, reference_slope=reference_slope,
+                       reference_label=reference_label, title=title, excluded=excluded)
+    return style.save_file(fig, path, title=f"scaling: {y_label} against {x_label}")
 
 
 def regime_map_figure(path, rayleigh, contrast, regimes, *, thresholds_text: str = "",
                       x_label: str = "Rayleigh number Ra",
                       y_label: str = "viscosity contrast") -> Path:
-    """Cases on (Ra, viscosity contrast) log-log axes, one marker per regime."""
-    fig, ax = _figure()
-    rayleigh, contrast = np.asarray(rayleigh, float), np.asarray(contrast, float)
-    regimes = np.asarray(regimes, dtype=object)
-    ok = np.isfinite(rayleigh) & np.isfinite(contrast) & (rayleigh > 0) & (contrast > 0)
-    for name, marker in STYLE["regime_markers"].items():
-        sel = ok & (regimes == name)
-        if sel.any():
-            ax.scatter(rayleigh[sel], contrast[sel], s=STYLE["point_size"] * 1.3, marker=marker,
-                       color=STYLE["regime_colors"][name], label=name, zorder=3)
-    ax.set_xscale("log")
-    ax.set_yscale("log")
-    ax.set_xlabel(x_label)
-    ax.set_ylabel(y_label)
-    if thresholds_text:
-        ax.set_title(thresholds_text, fontsize=STYLE["font_size"] - 1)
-    ax.legend(fontsize=STYLE["font_size"] - 1, frameon=False)
-    return _save(fig, path)
+    """Draw :func:`regime_map_plot` and write it to ``path`` (PNG, or PDF/SVG by suffix)."""
+    fig = regime_map_plot(rayleigh, contrast, regimes, thresholds_text=thresholds_text,
+                          x_label=x_label, y_label=y_label)
+    return style.save_file(fig, path, title="regime map")

@@ -29,7 +29,10 @@ Colour maps (all from matplotlib's own set)
   make "no anomaly" look like the strongest feature.
 - Lines: matplotlib's ``okabe_ito`` colours (Okabe & Ito 2008, "Color
   universal design"), distinguishable under all common colour vision
-  deficiencies; lines also differ in style, so figures survive grey printing.
+  deficiencies; lines also differ in style and points in marker
+  (:data:`LINE_STYLES`, :data:`MARKERS`, the n-th with the n-th colour), so
+  figures survive grey printing.  Guides (reference slopes, zero lines, points
+  left out of a fit) are grey (:data:`GUIDE_COLOR`), drawn under the data.
 
 Deterministic files
 -------------------
@@ -42,16 +45,20 @@ on every machine) and are embedded as paths (SVG) or TrueType subsets (PDF).
 from __future__ import annotations
 
 import logging
+import math
+import os
 from pathlib import Path
 
 import matplotlib
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib import ticker
 from matplotlib.figure import Figure
 
 __all__ = ["COLUMN_WIDTH", "PAGE_WIDTH", "TEMPERATURE_CMAP", "VISCOSITY_CMAP", "DIVERGING_CMAP",
-           "LINE_COLORS", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
-           "metadata_for", "to_rgba_array", "symmetric_limits"]
+           "LINE_COLORS", "LINE_STYLES", "MARKERS", "GUIDE_COLOR", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
+           "save_file", "metadata_for", "to_rgba_array", "symmetric_limits", "figure_width",
+           "light_grid", "log_label", "log_ticks"]
 
 #: Width of one journal column [in].
 COLUMN_WIDTH = 3.5
@@ -68,6 +75,12 @@ DIVERGING_CMAP = "coolwarm"
 #: black from matplotlib's ``okabe_ito`` map (its yellow is left out: too light on white).
 LINE_COLORS = tuple(matplotlib.colors.to_hex(matplotlib.colormaps["okabe_ito"].colors[i])
                     for i in (5, 6, 3, 1, 7, 2, 0))
+#: Line styles, in order, cycled with :data:`LINE_COLORS` when lines of one kind are many.
+LINE_STYLES = ("-", "--", "-.", ":")
+#: Point markers, one per line colour (the n-th marker goes with the n-th colour).
+MARKERS = ("o", "s", "^", "v", "D", "<", ">")
+#: Grey of guides: reference slopes, zero lines, points not used by a fit.
+GUIDE_COLOR = "0.45"
 
 #: Formats :func:`save` writes, by file suffix.
 FORMATS = ("png", "pdf", "svg")
@@ -155,6 +168,56 @@ def new_figure(width: float = COLUMN_WIDTH, height: float | None = None, **kwarg
     return fig
 
 
+def figure_width(panels: int = 1) -> float:
+    """Width [in] of a figure of ``panels`` side-by-side panels: one column for one panel,
+    two columns (:data:`PAGE_WIDTH`) for more."""
+    return COLUMN_WIDTH if panels <= 1 else PAGE_WIDTH
+
+
+def light_grid(ax) -> None:
+    """A faint grid at the major ticks, under the data (for log-log plots read by eye)."""
+    ax.grid(True, which="major", linewidth=0.3, color="0.85")
+    ax.set_axisbelow(True)
+
+
+def log_label(value: float) -> str:
+    """A tick label: plain for 1e-3 <= v < 1e4, else m x 10^k in mathtext."""
+    if 1.0e-3 <= abs(value) < 1.0e4:
+        return f"{value:g}"
+    exponent = math.floor(math.log10(abs(value)) + 1e-9)
+    mantissa = round(value / 10.0**exponent, 6)
+    if mantissa == 1.0:
+        return f"$10^{{{exponent}}}$"
+    return f"${mantissa:g}\\times10^{{{exponent}}}$"
+
+
+def log_ticks(axis, lo: float, hi: float, max_labels: int = 5) -> list[float]:
+    """Label a log axis over [lo, hi] with 1, 1-2-5 or 1..9 times powers of ten.
+
+    The densest of those sets with at most ``max_labels`` ticks inside the range
+    (at least two) is used, so that a range of less than a decade still gets
+    labels and a wide one does not crowd; minor ticks stay unlabelled.
+    """
+    first, last = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
+    chosen = []
+    for subs in ((1.0,), (1.0, 2.0, 5.0), (1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0)):
+        ticks = [m * 10.0**k for k in range(first, last + 1) for m in subs
+                 if lo * (1 - 1e-9) <= m * 10.0**k <= hi * (1 + 1e-9)]
+        if len(ticks) > max_labels and len(chosen) >= 2:
+            break
+        chosen = ticks
+        if len(ticks) >= 3:
+            break
+    if len(chosen) > max_labels:  # many decades: every n-th power of ten
+        step = math.ceil(len(chosen) / max_labels)
+        chosen = chosen[::step]
+    axis.set_major_locator(ticker.FixedLocator(chosen))
+    axis.set_major_formatter(ticker.FixedFormatter([log_label(v) for v in chosen]))
+    axis.set_minor_locator(ticker.LogLocator(subs="auto"))
+    axis.set_minor_formatter(ticker.NullFormatter())
+    return chosen
+
+
 def freeze_layout(fig: Figure, digits: int = 6) -> Figure:
     """Lay the figure out once (constrained layout), then fix every axes position.
 
@@ -218,6 +281,26 @@ def save(fig: Figure, stem: str | Path, formats=FORMATS, *, title: str = "",
             fig.savefig(path, format=fmt, metadata=metadata_for(fmt, title, creator))
             paths.append(path)
     return paths
+
+
+def save_file(fig: Figure, path: str | Path, *, title: str = "",
+              creator: str = "convsim") -> Path:
+    """Write ``fig`` to ``path`` in the format of its suffix (one of :data:`FORMATS`).
+
+    The file is written under a temporary name in the same folder and then renamed,
+    so an interrupted write never leaves a partial figure under ``path``.  Existing
+    files are replaced: the caller checks first.
+    """
+    path = Path(path)
+    fmt = path.suffix.lstrip(".").lower()
+    if fmt not in FORMATS:
+        raise ValueError(f"figure path {str(path)!r}: suffix {path.suffix!r} is not one of "
+                         f"{', '.join('.' + f for f in FORMATS)}")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    (tmp,) = save(fig, path.with_name(f"{path.name}.part{os.getpid()}"), (fmt,), title=title,
+                  creator=creator)
+    tmp.replace(path)
+    return path
 
 
 def to_rgba_array(fig: Figure) -> np.ndarray:
