@@ -52,6 +52,9 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     -------
     RunResult
     """
+    if config.body is not None:      # check the physical properties (units, dimensions) up front
+        from .units import scales_from_body
+        scales_from_body(config.body)
     observers = list(observers)
     resume = None
     if restart is not None:

@@ -29,13 +29,22 @@ __all__ = [
 
 
 def _key(doc, units="-", *, ge=None, gt=None, le=None, lt=None, choices=None, default=None,
-         default_factory=None, optional=False):
-    """A config key: its doc line, units and allowed values travel in the field metadata."""
+         default_factory=None, optional=False, quantity=False):
+    """A config key: its doc line, units and allowed values travel in the field metadata.
+
+    ``quantity`` keys (the physical properties of [body]) also take a string with units,
+    such as "30 km"; ``convsim.units`` converts and checks it (dimension included).
+    """
     meta = dict(doc=doc, units=units, ge=ge, gt=gt, le=le, lt=lt, choices=choices,
-                optional=optional)
+                optional=optional, quantity=quantity)
     if default_factory is not None:
         return field(default_factory=default_factory, metadata=meta)
     return field(default=default, metadata=meta)
+
+
+def _quantity(doc, units, *, le):
+    """A physical property of [body]: >= 0 (0: not given), a number in ``units`` or a quantity string."""
+    return _key(doc, units, default=0.0, ge=0.0, le=le, quantity=True)
 
 
 @dataclass(frozen=True)
@@ -176,25 +185,25 @@ class Output:
 
 @dataclass(frozen=True)
 class Body:
-    """Optional physical properties of the layer; when given, Ra is computed from them."""
+    """Optional physical properties of the layer, for units in figures and `convsim rayleigh`.
 
-    depth: float = _key("layer thickness d", "m", default=0.0, ge=0.0, le=1.0e8)
-    temperature_contrast: float = _key("temperature difference across the layer", "K",
-                                       default=0.0, ge=0.0, le=1.0e5)
-    surface_temperature: float = _key("temperature at the top", "K", default=0.0, ge=0.0,
-                                      le=1.0e5)
-    gravity: float = _key("gravitational acceleration g", "m s^-2", default=0.0, ge=0.0, le=1.0e3)
-    density: float = _key("reference density rho", "kg m^-3", default=0.0, ge=0.0, le=1.0e5)
-    thermal_expansivity: float = _key("thermal expansivity alpha", "K^-1", default=0.0, ge=0.0,
-                                      le=1.0)
-    thermal_diffusivity: float = _key("thermal diffusivity kappa", "m^2 s^-1", default=0.0,
-                                      ge=0.0, le=1.0)
-    conductivity: float = _key("thermal conductivity k", "W m^-1 K^-1", default=0.0, ge=0.0,
-                               le=1.0e4)
-    reference_viscosity: float = _key("viscosity at the reference state (T = top, z = top)",
-                                      "Pa s", default=0.0, ge=0.0, le=1.0e40)
-    heat_production: float = _key("internal heat production per unit mass", "W kg^-1",
-                                  default=0.0, ge=0.0, le=1.0)
+    Each value is a number in the units shown or a string with units ("1500 km",
+    "1e21 Pa s"); 0 means not given.
+    """
+
+    depth: float = _quantity("layer thickness d", "m", le=1.0e8)
+    temperature_contrast: float = _quantity("temperature difference across the layer", "K",
+                                            le=1.0e5)
+    surface_temperature: float = _quantity("temperature at the top", "K", le=1.0e5)
+    gravity: float = _quantity("gravitational acceleration g", "m s^-2", le=1.0e3)
+    density: float = _quantity("reference density rho", "kg m^-3", le=1.0e5)
+    thermal_expansivity: float = _quantity("thermal expansivity alpha", "K^-1", le=1.0)
+    thermal_diffusivity: float = _quantity("thermal diffusivity kappa", "m^2 s^-1", le=1.0)
+    conductivity: float = _quantity("thermal conductivity k", "W m^-1 K^-1", le=1.0e4)
+    reference_viscosity: float = _quantity(
+        "viscosity at the reference state (T = top, z = top)", "Pa s", le=1.0e40)
+    heat_production: float = _quantity("internal heat production per unit mass", "W kg^-1",
+                                       le=1.0)
 
 
 @dataclass(frozen=True)
@@ -245,7 +254,10 @@ def _allowed(meta) -> str:
         parts.append(f"< {meta['lt']:g}")
     if meta["le"] is not None:
         parts.append(f"<= {meta['le']:g}")
-    return " and ".join(parts) if parts else "any"
+    text = " and ".join(parts) if parts else "any"
+    if meta.get("quantity"):
+        text += f', in {meta["units"]}; or a string with units ("2.5 km")'
+    return text
 
 
 def _suggest(word, candidates) -> str:
@@ -258,6 +270,10 @@ def _coerce(section: str, f: dataclasses.Field, value: Any):
     where = f"{section}.{f.name}"
     meta = f.metadata
     tp = f.type
+    if meta.get("quantity") and isinstance(value, str):
+        if not value.strip():
+            raise ConfigError(f"{where} = {value!r}: expected a number or a quantity with units")
+        return value.strip()            # converted and checked by convsim.units
     if tp == "bool":
         if not isinstance(value, bool):
             raise ConfigError(f"{where} = {value!r}: expected true or false")

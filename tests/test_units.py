@@ -373,3 +373,33 @@ def test_example_config_runs(capsys):
     assert code == 0
     assert data["onset"]["critical_rayleigh"] == pytest.approx(RA_C_RIGID_FREE, rel=1e-5)
     assert data["rayleigh"] == pytest.approx(QUELLIS_RA, rel=1e-12)  # same shell as QUELLIS_TOML
+
+
+def test_body_table_takes_quantity_strings_and_rejects_wrong_dimensions(tmp_path):
+    """[body] values may carry units; the same layer in SI numbers gives the same Ra, and a
+    length given in kilograms stops a run with one line naming body.depth (exit status 2)."""
+    import subprocess
+    import sys
+    from convsim.config import load_config
+    from convsim.units import scales_from_body
+    si = tmp_path / "si.toml"
+    si.write_text("[body]\ndepth = 1.5e6\ntemperature_contrast = 1200.0\ngravity = 6.0\n"
+                  "density = 3700.0\nthermal_expansivity = 2.5e-5\nthermal_diffusivity = 1e-6\n"
+                  "conductivity = 3.5\nreference_viscosity = 2.248e22\n")
+    text = tmp_path / "text.toml"
+    text.write_text('[body]\ndepth = "1500 km"\ntemperature_contrast = "1200 K"\ngravity = 6.0\n'
+                    'density = "3.7 g/cm^3"\nthermal_expansivity = "2.5e-5 1/K"\n'
+                    'thermal_diffusivity = "1 mm^2/s"\nconductivity = 3.5\n'
+                    'reference_viscosity = "2.248e23 poise"\n')
+    ra_si = scales_from_body(load_config(si).body).rayleigh()
+    ra_text = scales_from_body(load_config(text).body).rayleigh()
+    # hand value: 3700 * 6 * 2.5e-5 * 1200 = 666; * (1.5e6)^3 = 2.24775e21; / 2.248e16 = 9.99889e4
+    assert ra_si == pytest.approx(9.99889e4, rel=1e-5)
+    assert ra_text == pytest.approx(ra_si, rel=1e-12)
+    bad = tmp_path / "bad.toml"
+    bad.write_text(text.read_text().replace('"1500 km"', '"3 kg"'))
+    result = subprocess.run([sys.executable, "-m", "convsim.cli", "run", str(bad), "--out",
+                             str(tmp_path / "out")], capture_output=True, text=True)
+    assert result.returncode == 2
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and "body.depth" in lines[0] and "[length]" in lines[0]
