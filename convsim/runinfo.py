@@ -11,11 +11,10 @@ import math
 import tomllib
 from pathlib import Path
 
-import h5py
 import numpy as np
 
 from .errors import SnapshotError
-from .snapshot import FIELDS, SERIES
+from .snapshot import FIELDS, SERIES, open_run_file
 
 __all__ = ["describe_run", "format_info"]
 
@@ -58,7 +57,7 @@ def describe_run(path: str | Path) -> dict:
     if not path.is_file():
         raise SnapshotError(f"run file {str(path)!r}: not found")
     try:
-        with h5py.File(path, "r") as f:
+        with open_run_file(path) as f:
             attrs = {k: _plain(v) for k, v in f.attrs.items()}
             x_node, z_node = f["x_node"][:], f["z_node"][:]
             times, steps = f["time"][:], f["step"][:]

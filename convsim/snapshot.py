@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -39,7 +40,7 @@ import numpy as np
 
 from .errors import OutputExistsError, SnapshotError
 
-__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields",
+__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
            "check_writable"]
 
 # name: (dimensions after time, units, long_name)
@@ -84,6 +85,25 @@ COORDINATES = {
 
 RESTART_KEYS = ("temperature", "psi", "previous_temperature", "previous_tendency",
                 "factor_weights")
+
+
+def open_run_file(path, mode: str = "r"):
+    """Open a run file.  Readers skip HDF5's file lock, so that looking at a file (a notebook,
+    ``convsim info``) never stops the run writing it; the writer retries for a few seconds
+    while another program holds a lock (errno EAGAIN)."""
+    if mode == "r":
+        return h5py.File(path, "r", locking=False)
+    for attempt in range(50):
+        try:
+            return h5py.File(path, mode)
+        except BlockingIOError:
+            if attempt == 49:
+                raise
+            time.sleep(0.1)
+        except OSError as exc:
+            if "unable to lock file" not in str(exc) or attempt == 49:
+                raise
+            time.sleep(0.1)
 
 
 def check_writable(path: Path, overwrite: bool) -> None:
@@ -177,7 +197,7 @@ class RunFileWriter:
               status: str, wall_seconds: float) -> int:
         """Append one snapshot and the new series rows; replace the restart state. Returns the snapshot index."""
         try:
-            with h5py.File(self.path, "a") as f:
+            with open_run_file(self.path, "a") as f:
                 n = f["time"].shape[0]
                 f["time"].resize((n + 1,))
                 f["time"][n] = time
@@ -212,7 +232,7 @@ class RunFileWriter:
             raise SnapshotError(f"run file {str(self.path)!r}: cannot be written ({exc})") from None
 
     def finish(self, status: str, wall_seconds: float, summary: dict) -> None:
-        with h5py.File(self.path, "a") as f:
+        with open_run_file(self.path, "a") as f:
             f.attrs["status"] = status
             f.attrs["wall_seconds"] = wall_seconds
             for key, value in summary.items():
@@ -248,7 +268,7 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
     if not path.is_file():
         raise SnapshotError(f"run file {str(path)!r}: not found")
     try:
-        with h5py.File(path, "r") as f:
+        with open_run_file(path) as f:
             times = f["time"][:]
             if len(times) == 0:
                 raise SnapshotError(f"run file {str(path)!r}: holds no snapshot yet")
@@ -286,10 +306,10 @@ def iter_fields(path: str | Path, names=tuple(FIELDS)):
     if not path.is_file():
         raise SnapshotError(f"run file {str(path)!r}: not found")
     try:
-        with h5py.File(path, "r") as f:
+        with open_run_file(path) as f:
             times = f["time"][:]
-            for index, time in enumerate(times):
-                yield index, float(time), {name: f[name][index] for name in names}
+            for index, when in enumerate(times):
+                yield index, float(when), {name: f[name][index] for name in names}
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 

@@ -31,10 +31,9 @@ from __future__ import annotations
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
-import h5py
 
 from .errors import SnapshotError
-from .snapshot import check_writable
+from .snapshot import check_writable, open_run_file
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
 
@@ -62,7 +61,7 @@ def xdmf_text(run_path: str | Path) -> str:
         raise SnapshotError(f"run file {str(run_path)!r}: not found")
     name = run_path.name
     try:
-        with h5py.File(run_path, "r") as f:
+        with open_run_file(run_path) as f:
             times = f["time"][:]
             nx1, nz1 = len(f["x_node"]), len(f["z_node"])
             coord_types = {k: f[k].dtype for k in ("x_node", "z_node")}
