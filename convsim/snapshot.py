@@ -92,7 +92,12 @@ def open_run_file(path, mode: str = "r"):
     ``convsim info``) never stops the run writing it; the writer retries for a few seconds
     while another program holds a lock (errno EAGAIN)."""
     if mode == "r":
-        return h5py.File(path, "r", locking=False)
+        try:
+            return h5py.File(path, "r", locking=False)
+        except OSError as exc:   # already open in this process with locking (xarray, say)
+            if "locking flag" not in str(exc):
+                raise
+            return h5py.File(path, "r")
     for attempt in range(50):
         try:
             return h5py.File(path, mode)
