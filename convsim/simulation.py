@@ -22,6 +22,8 @@ from __future__ import annotations
 
 import logging
 import math
+import signal
+import threading
 import time
 from dataclasses import dataclass, field, fields as dc_fields
 
@@ -275,6 +277,7 @@ class Simulation:
         if resume is None:
             snapshot(state, "running")
         last_snapshot_step = state.step
+        interrupt = _DeferredInterrupt()
         try:
             while True:
                 dt_limit = None
@@ -357,6 +360,8 @@ class Simulation:
                     status, message = "end-time", f"reached end time {stop.end_time:g}"
                 elif state.step >= stop.max_steps:
                     status, message = "step-limit", f"reached the step limit {stop.max_steps}"
+                elif interrupt.requested:
+                    status, message = "interrupted", f"interrupted at step {state.step}"
                 if status:
                     break
                 due = ((out.snapshot_steps and state.step % out.snapshot_steps == 0)
@@ -366,8 +371,10 @@ class Simulation:
                         next_snapshot += out.snapshot_interval
                     snapshot(state, "running")
                     last_snapshot_step = state.step
-        except KeyboardInterrupt:
+        except KeyboardInterrupt:      # not in the main thread: no deferred handler there
             status, message = "interrupted", f"interrupted at step {state.step}"
+        finally:
+            interrupt.restore()
         if state.step != last_snapshot_step:
             snapshot(state, status)
         wall = time.perf_counter() - wall0
@@ -397,6 +404,25 @@ class Simulation:
         inflow, outflow = bottom.sum() * g.dx, top.sum() * g.dx
         source = model.internal_heating * g.area
         return (inflow + source - outflow) / max(abs(outflow), abs(inflow), abs(source), 1e-300)
+
+
+class _DeferredInterrupt:
+    """Turns Ctrl-C (SIGINT) into a flag the loop reads between steps, so that an interrupt
+    never lands inside a snapshot write.  Only in the main thread (signals go there)."""
+
+    def __init__(self):
+        self.requested = False
+        self._previous = None
+        if threading.current_thread() is threading.main_thread():
+            self._previous = signal.signal(signal.SIGINT, self._handle)
+
+    def _handle(self, signum, frame):
+        self.requested = True
+
+    def restore(self):
+        if self._previous is not None:
+            signal.signal(signal.SIGINT, self._previous)
+            self._previous = None
 
 
 def build_model(config: Config, grid: Grid | None = None) -> Model:
