@@ -1,4 +1,4 @@
-"""Steady states by Newton-Krylov iteration on the discrete steady equations.
+"""Steady states by pseudo-transient Newton-Krylov iteration on the discrete steady equations.
 
 A steady state of the time stepper satisfies
 
@@ -9,14 +9,15 @@ function of T).  Time stepping reaches it only as fast as the slowest mode
 decays, at steps bounded by the Courant number; Newton's method on (1) reaches
 it in a few iterations once the transient has brought the state near it.
 
-Each Newton step solves J d = -F with GMRES; J v is approximated by the finite
-difference (F(T + e v) - F(T)) / e (one Stokes solve each), preconditioned by
-the sparse local part J0 = K - C(u), the implicit diffusion matrix minus the
-first-order upwind advection matrix at the current velocity (LU once per
-Newton step).  A backtracking line search on ||F||_2 guards the step.  The
-result is the same discrete steady state the time stepper converges to (the
-same F), reached faster; if the iteration does not converge, the caller goes
-back to time stepping.
+Each pseudo-time step solves (I / delta - J) d = F with GMRES (see
+``newton_steady``).  J v is the finite difference of the advective tendency
+along v, with the velocity moved by the exact linearised Stokes response
+(``Model.linearised_flow``), plus K v; it is preconditioned by the sparse local
+part I / delta - (K - C(u)), the implicit diffusion matrix minus the first-order
+upwind advection matrix at the current velocity (LU once per step).  The result
+is the same discrete steady state the time stepper converges to (the same F),
+reached faster; if the iteration does not converge, the caller goes back to
+time stepping.
 """
 
 from __future__ import annotations
@@ -91,67 +92,66 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
     identity = sp.identity(K.shape[0], format="csc")
     shape = T0.shape
     T, psi = T0.copy(), psi0
-    if True:
-        F, psi = steady_residual(model, T, psi)
-        evaluations = 1
-        history = []
+    F, psi = steady_residual(model, T, psi)
+    evaluations = 1
+    history = []
+    fmax = float(np.abs(F).max())
+    fnorm = float(np.linalg.norm(F))
+    delta = delta0 if delta0 is not None else FIRST_DELTA_STEPS * model.courant_dt(psi)
+    for it in range(1, max_iterations + 1):
+        if fmax <= tolerance:
+            return T, psi, NewtonReport(True, it - 1, evaluations, fmax, history)
+        if not np.isfinite(fmax):
+            break
+        psi, dflow = model.linearised_flow(T)
+        base = model.tendency(T, psi)
+        F = base + model.diffusion.apply(T)
+        u, w = face_velocities(model.grid, psi)
+        local = (K - upwind_matrix(model.grid, u, w)).tocsc()
+        f = F.ravel()
+        fnorm = float(np.linalg.norm(f))
+
+        def jv(v, T=T, psi=psi, base=base):
+            nonlocal evaluations
+            vv = v.reshape(shape)
+            vn = float(np.abs(vv).max())
+            if vn == 0.0:
+                return np.zeros_like(v)
+            eps = 1e-7 * (1.0 + float(np.abs(T).max())) / vn
+            moved = model.tendency(T + eps * vv, psi + eps * dflow(vv))
+            evaluations += 1
+            return ((moved - base) / eps).ravel() + K @ v
+
+        n = f.size
+        for _attempt in range(6):
+            lu = sla.splu((identity / delta - local).tocsc())
+            A = sla.LinearOperator((n, n), matvec=lambda v, d=delta: v / d - jv(v))
+            M = sla.LinearOperator((n, n), matvec=lu.solve)
+            d, info = sla.gmres(A, f, rtol=1e-3, atol=0.0, restart=gmres_restart,
+                                maxiter=2, M=M)
+            T_try = T + d.reshape(shape)
+            F_try, psi_try = steady_residual(model, T_try, psi)
+            evaluations += 1
+            norm_try = float(np.linalg.norm(F_try))
+            if not norm_try <= fnorm:       # also try half the step; keep the better one
+                T_half = T + 0.5 * d.reshape(shape)
+                F_half, psi_half = steady_residual(model, T_half, psi)
+                evaluations += 1
+                norm_half = float(np.linalg.norm(F_half))
+                if norm_half < norm_try:
+                    T_try, F_try, psi_try, norm_try = T_half, F_half, psi_half, norm_half
+            if np.isfinite(norm_try) and norm_try <= ACCEPT_GROWTH * fnorm:
+                break
+            delta *= 0.25
+        else:
+            log.info("newton: no acceptable pseudo-time step at iteration %d", it)
+            break
+        ratio = fnorm / max(norm_try, 1e-300)
+        delta = min(delta * (max(ratio, MIN_GROWTH) if ratio > 1.0 else ratio), 1e12)
+        T, F, psi, fnorm = T_try, F_try, psi_try, norm_try
         fmax = float(np.abs(F).max())
-        fnorm = float(np.linalg.norm(F))
-        delta = delta0 if delta0 is not None else FIRST_DELTA_STEPS * model.courant_dt(psi)
-        for it in range(1, max_iterations + 1):
-            if fmax <= tolerance:
-                return T, psi, NewtonReport(True, it - 1, evaluations, fmax, history)
-            if not np.isfinite(fmax):
-                break
-            psi, dflow = model.linearised_flow(T)
-            base = model.tendency(T, psi)
-            F = base + model.diffusion.apply(T)
-            u, w = face_velocities(model.grid, psi)
-            local = (K - upwind_matrix(model.grid, u, w)).tocsc()
-            f = F.ravel()
-            fnorm = float(np.linalg.norm(f))
-
-            def jv(v, T=T, psi=psi, base=base):
-                nonlocal evaluations
-                vv = v.reshape(shape)
-                vn = float(np.abs(vv).max())
-                if vn == 0.0:
-                    return np.zeros_like(v)
-                eps = 1e-7 * (1.0 + float(np.abs(T).max())) / vn
-                moved = model.tendency(T + eps * vv, psi + eps * dflow(vv))
-                evaluations += 1
-                return ((moved - base) / eps).ravel() + K @ v
-
-            n = f.size
-            for _attempt in range(6):
-                lu = sla.splu((identity / delta - local).tocsc())
-                A = sla.LinearOperator((n, n), matvec=lambda v, d=delta: v / d - jv(v))
-                M = sla.LinearOperator((n, n), matvec=lu.solve)
-                d, info = sla.gmres(A, f, rtol=1e-3, atol=0.0, restart=gmres_restart,
-                                    maxiter=2, M=M)
-                T_try = T + d.reshape(shape)
-                F_try, psi_try = steady_residual(model, T_try, psi)
-                evaluations += 1
-                norm_try = float(np.linalg.norm(F_try))
-                if not norm_try <= fnorm:       # also try half the step; keep the better one
-                    T_half = T + 0.5 * d.reshape(shape)
-                    F_half, psi_half = steady_residual(model, T_half, psi)
-                    evaluations += 1
-                    norm_half = float(np.linalg.norm(F_half))
-                    if norm_half < norm_try:
-                        T_try, F_try, psi_try, norm_try = T_half, F_half, psi_half, norm_half
-                if np.isfinite(norm_try) and norm_try <= ACCEPT_GROWTH * fnorm:
-                    break
-                delta *= 0.25
-            else:
-                log.info("newton: no acceptable pseudo-time step at iteration %d", it)
-                break
-            ratio = fnorm / max(norm_try, 1e-300)
-            delta = min(delta * (max(ratio, MIN_GROWTH) if ratio > 1.0 else ratio), 1e12)
-            T, F, psi, fnorm = T_try, F_try, psi_try, norm_try
-            fmax = float(np.abs(F).max())
-            history.append(fmax)
-            log.info("newton %d: max|F| = %.3e, next pseudo-time step %.3g (gmres info %d)",
-                     it, fmax, delta, info)
-        converged = bool(fmax <= tolerance)
-        return T, psi, NewtonReport(converged, len(history), evaluations, fmax, history)
+        history.append(fmax)
+        log.info("newton %d: max|F| = %.3e, next pseudo-time step %.3g (gmres info %d)",
+                 it, fmax, delta, info)
+    converged = bool(fmax <= tolerance)
+    return T, psi, NewtonReport(converged, len(history), evaluations, fmax, history)

@@ -192,16 +192,6 @@ class Model:
         return op.to_nodes(x), derivative
 
     @property
-    def stokes_rtol(self) -> float:
-        """Relative residual at which the iterative Stokes solve stops (direct solves: exact)."""
-        return self._lagged.rtol if self._lagged is not None else 0.0
-
-    @stokes_rtol.setter
-    def stokes_rtol(self, value: float) -> None:
-        if self._lagged is not None:
-            self._lagged.rtol = value
-
-    @property
     def factor_weights(self):
         return None if self._lagged is None else self._lagged.factored_weights
 
