@@ -315,7 +315,7 @@ class Simulation:
                 if len(window) > SETTLE_STEPS:
                     window.pop(0)
                 nu_scale = max(abs(report.nusselt_top), 1.0)
-                imbalance = abs(self._imbalance(model, state))
+                imbalance = abs(report.heat_imbalance)
                 arr = np.array(window)
                 drift = np.ptp(arr, axis=0) / np.maximum(np.abs(arr.mean(axis=0)), 1e-300)
                 quiet = (report.tendency_max <= tol * nu_scale and imbalance <= tol
@@ -394,16 +394,6 @@ class Simulation:
             log.warning("run diverged: %s; the last good state is kept", message)
         self._emit("on_finish", result)
         return result
-
-    @staticmethod
-    def _imbalance(model: Model, state: ModelState) -> float:
-        """(bottom inflow + H area - top outflow) / top outflow, with the scheme's own fluxes."""
-        from .energy import boundary_heat_flux
-        g = model.grid
-        bottom, top = boundary_heat_flux(g, state.temperature, model.thermal)
-        inflow, outflow = bottom.sum() * g.dx, top.sum() * g.dx
-        source = model.internal_heating * g.area
-        return (inflow + source - outflow) / max(abs(outflow), abs(inflow), abs(source), 1e-300)
 
 
 class _DeferredInterrupt:
