@@ -27,8 +27,8 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from convsim.config import Config  # noqa: E402
-from convsim.onset_runs import run_bracket  # noqa: E402
-from convsim.stability import analyse_onset  # noqa: E402
+from convsim.analysis.onset_runs import run_bracket  # noqa: E402
+from convsim.analysis.stability import analyse_onset  # noqa: E402
 
 CASES = {
     "free-free, constant": dict(),

@@ -25,7 +25,8 @@ GOAL_ORDER = 1.8
 
 
 def main():
-    from convsim import bench, bench_report
+    from convsim.studies import bench
+    from convsim.studies import bench_report
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--out", default="bench-published")
     parser.add_argument("--grids", default="32,64,128")

@@ -17,7 +17,7 @@ import time
 import numpy as np
 
 from convsim.config import Config
-from convsim.simulation import build_model, initial_temperature
+from convsim.run.controller import build_model, initial_temperature
 
 
 def measure(law, n, steps):

@@ -13,10 +13,10 @@ import time
 
 import numpy as np
 
-from convsim.grid import Grid
-from convsim.linsolve import available_factorizers, make_factorizer
-from convsim.rheology import ViscosityLaw
-from convsim.stokes import StokesOperator, TransformSolver
+from convsim.model.grid import Grid
+from convsim.model.linsolve import available_factorizers, make_factorizer
+from convsim.model.rheology import ViscosityLaw
+from convsim.model.stokes import StokesOperator, TransformSolver
 
 
 def timed(func, repeat=3):

@@ -31,7 +31,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from convsim.sweep import parse_sweep, run_sweep  # noqa: E402
+from convsim.studies.sweep import parse_sweep, run_sweep  # noqa: E402
 
 
 def make_spec(cases: int, grid: int, steps: int, offset: float = 0.0):

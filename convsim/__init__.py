@@ -1,7 +1,7 @@
 """convsim: 2D finite-volume Boussinesq convection at infinite Prandtl number."""
 
-from .config import Config, load_config, parse_config
-from .errors import ConfigError, ConvsimError, OutputExistsError, SnapshotError, SolverError
+from convsim.config import Config, load_config, parse_config
+from convsim.errors import ConfigError, ConvsimError, OutputExistsError, SnapshotError, SolverError
 
 __version__ = "0.1.0"
 

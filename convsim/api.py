@@ -10,12 +10,12 @@ from pathlib import Path
 
 import numpy as np
 
-from .config import Config, load_config
-from .errors import ConfigError
-from .grid import Grid, interpolate_cells
-from .simulation import ResumePoint, RunResult, Simulation, build_model
-from .snapshot import RunFileObserver, RunFileWriter, read_run
-from .xdmf import write_xdmf
+from convsim.config import Config, load_config
+from convsim.errors import ConfigError
+from convsim.model.grid import Grid, interpolate_cells
+from convsim.run.controller import ResumePoint, RunResult, Simulation, build_model
+from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
+from convsim.files.xdmf import write_xdmf
 
 __all__ = ["load_config", "run", "start_temperature"]
 
@@ -53,7 +53,7 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     RunResult
     """
     if config.body is not None:      # check the physical properties (units, dimensions) up front
-        from .units import scales_from_body
+        from convsim.units import scales_from_body
         scales_from_body(config.body)
     observers = list(observers)
     resume = None

@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .errors import ConfigError
+from convsim.errors import ConfigError
 
 __all__ = [
     "Config", "Domain", "Physics", "Boundaries", "Viscosity", "Start", "Numerics", "Stop",

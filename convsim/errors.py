@@ -2,7 +2,7 @@
 
 Misuse (a bad config, a missing file) raises one of these; numerical trouble
 during a run is reported as a status in the run result instead (see
-``convsim.simulation``).  The command line turns every ``ConvsimError`` into one
+``convsim.run.controller``).  The command line turns every ``ConvsimError`` into one
 line on stderr and exit status 2.
 """
 

@@ -47,7 +47,7 @@ from dataclasses import dataclass
 
 import pint
 
-from .errors import ConfigError
+from convsim.errors import ConfigError
 
 __all__ = [
     "UREG", "SECONDS_PER_YEAR", "SECONDS_PER_MYR", "PROPERTIES", "Property", "Scales",
@@ -417,7 +417,7 @@ def scales_from_body(body=None, overrides=None, *, options=None) -> Scales:
 
 
 # ------------------------------------------------------------------------------------------
-# Onset: the critical Rayleigh number from the linear-stability solver (convsim.stability)
+# Onset: the critical Rayleigh number from the linear-stability solver (convsim.analysis.stability)
 # ------------------------------------------------------------------------------------------
 
 #: Mechanical conditions known to ``critical_rayleigh_for``.
@@ -426,7 +426,7 @@ FLOW_CONDITIONS = ("free-slip", "no-slip")
 
 @functools.lru_cache(maxsize=None)
 def _critical_rayleigh(top_flow: str, bottom_flow: str) -> float:
-    from .stability import analyse_onset        # scipy only when asked
+    from convsim.analysis.stability import analyse_onset        # scipy only when asked
     return float(analyse_onset(top_flow=top_flow, bottom_flow=bottom_flow,
                                curve_points=2).critical_rayleigh)
 
@@ -436,7 +436,7 @@ def critical_rayleigh_for(top_flow: str, bottom_flow: str) -> float:
 
     The minimum over wavenumbers of the neutral curve of a layer heated from below
     with fixed temperatures on both sides, no internal heating and constant
-    viscosity, from the linear-stability solver (``convsim.stability.analyse_onset``;
+    viscosity, from the linear-stability solver (``convsim.analysis.stability.analyse_onset``;
     Chandrasekhar 1961, ch. II, gives 657.511 free-free, 1707.762 rigid-rigid,
     1100.65 rigid-free).  For other heating, thermal conditions or rheology use
     ``analyse_onset`` (``convsim onset``) itself.

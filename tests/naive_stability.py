@@ -1,4 +1,4 @@
-"""Slow, obviously correct twin of convsim.stability: second-order finite differences.
+"""Slow, obviously correct twin of convsim.analysis.stability: second-order finite differences.
 
 A different discretisation of the same linear problem, written from the equations
 alone (nothing of convsim is imported):

@@ -1,68 +1,97 @@
-"""The direction of imports and the house rules (DEVELOPERS.md, 'Architecture'), read with ast."""
+"""The direction of imports and the house rules (DEVELOPERS.md, 'Architecture'), read with ast.
+
+One rule per folder of the package:
+
+- ``errors`` and ``model/kernels`` import nothing of convsim; ``config`` only ``errors``;
+- ``model/`` takes numbers, arrays and declarations: never ``config``, ``run``, ``files``,
+  ``figures``, ``studies``, ``analysis`` or ``cli``;
+- ``run/`` never imports ``files``, ``figures``, ``studies`` or ``cli`` (writers come in as
+  observers);
+- ``files/`` never imports ``run``, ``figures``, ``studies`` or ``cli``;
+- ``figures/`` reads files and results, never runs: no ``run``, ``studies`` or ``cli``;
+- nothing imports ``cli``; matplotlib only in ``figures/``; no ``print`` outside ``cli/``.
+"""
 
 import ast
 from pathlib import Path
 
 PACKAGE = Path(__file__).resolve().parent.parent / "convsim"
-FIGURE_MODULES = {"figures", "figures_bench", "figures_onset", "figures_sweep", "style", "animation"}
+SOURCES = sorted(PACKAGE.rglob("*.py"))
 
 
-def _imports(name):
-    tree = ast.parse((PACKAGE / f"{name}.py").read_text())
-    found, external = set(), set()
+def _room(path: Path) -> str:
+    """The folder of a module inside the package ('' for the top level)."""
+    parts = path.relative_to(PACKAGE).parts
+    return parts[0] if len(parts) > 1 else ""
+
+
+def _imports(path: Path) -> tuple[set, set]:
+    """(convsim rooms or top-level modules imported, external top-level packages imported)."""
+    tree = ast.parse(path.read_text())
+    inside, external = set(), set()
     for node in ast.walk(tree):
+        names = []
         if isinstance(node, ast.ImportFrom):
-            if node.level == 1:
-                if node.module:
-                    found.add(node.module.split(".")[0])
-                else:
-                    found.update(alias.name for alias in node.names)
-            elif node.module:
-                external.add(node.module.split(".")[0])
+            assert node.level == 0, f"{path}: relative import; the house uses absolute imports"
+            names = [node.module] + [f"{node.module}.{a.name}" for a in node.names]
         elif isinstance(node, ast.Import):
-            external.update(alias.name.split(".")[0] for alias in node.names)
-    return found, external
+            names = [a.name for a in node.names]
+        for name in names:
+            parts = name.split(".")
+            if parts[0] == "convsim":
+                if len(parts) > 1:
+                    inside.add(parts[1])
+            else:
+                external.add(parts[0])
+    return inside, external
 
 
-MODULES = sorted(p.stem for p in PACKAGE.glob("*.py") if p.stem != "__init__")
+def _check(room: str, forbidden: set) -> None:
+    for path in SOURCES:
+        if _room(path) == room:
+            bad = _imports(path)[0] & forbidden
+            assert not bad, f"{path.relative_to(PACKAGE)} imports {sorted(bad)}"
 
 
 def test_foundations_import_nothing_of_convsim():
-    for name in ("errors", "kernels"):
-        assert _imports(name)[0] == set(), name
-    assert _imports("config")[0] <= {"errors"}
+    assert _imports(PACKAGE / "errors.py")[0] == set()
+    assert _imports(PACKAGE / "model" / "kernels.py")[0] == set()
+    assert _imports(PACKAGE / "config.py")[0] <= {"errors"}
 
 
-def test_physics_modules_take_numbers_not_configs():
-    for name in ("rheology", "stokes", "energy", "diagnostics", "linsolve", "kernels", "grid"):
-        inside, _ = _imports(name)
-        assert "config" not in inside and "simulation" not in inside, name
-    assert "energy" not in _imports("stokes")[0]
-    assert "stokes" not in _imports("energy")[0]
+def test_model_takes_numbers_not_configs():
+    _check("model", {"config", "run", "files", "figures", "studies", "analysis", "cli", "api"})
 
 
-def test_the_run_loop_does_not_write_files_itself():
-    for name in ("simulation", "timestepping", "steady"):
-        inside, _ = _imports(name)
-        assert not inside & ({"snapshot", "xdmf", "cli"} | FIGURE_MODULES), name
+def test_the_run_does_not_write_files_or_draw():
+    _check("run", {"files", "figures", "studies", "cli", "api"})
+
+
+def test_files_do_not_run_or_draw():
+    _check("files", {"run", "figures", "studies", "cli", "api"})
+
+
+def test_figures_read_files_and_results_never_run():
+    _check("figures", {"run", "studies", "cli", "api"})
 
 
 def test_nothing_imports_the_command_line():
-    for name in MODULES:
-        assert "cli" not in _imports(name)[0], name
+    for path in SOURCES:
+        if _room(path) != "cli":
+            assert "cli" not in _imports(path)[0], path
 
 
 def test_matplotlib_only_in_figure_modules():
-    for name in MODULES:
-        if name not in FIGURE_MODULES:
-            assert "matplotlib" not in _imports(name)[1], name
+    for path in SOURCES:
+        if _room(path) != "figures":
+            assert "matplotlib" not in _imports(path)[1], path
 
 
 def test_no_print_outside_the_command_line():
-    for name in MODULES:
-        if name == "cli":
+    for path in SOURCES:
+        if _room(path) == "cli":
             continue
-        tree = ast.parse((PACKAGE / f"{name}.py").read_text())
+        tree = ast.parse(path.read_text())
         calls = [n for n in ast.walk(tree) if isinstance(n, ast.Call)
                  and isinstance(n.func, ast.Name) and n.func.id == "print"]
-        assert not calls, name
+        assert not calls, path

@@ -1,7 +1,7 @@
 """Benchmark harness: case configs, the published table, the analysis and a smoke run.
 
 External references: the published values of Blankenbach et al. (1989), Geophys. J.
-Int. 98, 23-38, table of best estimates (quoted from memory, see convsim.published);
+Int. 98, 23-38, table of best estimates (quoted from memory, see convsim.studies.published);
 power-law sequences f = f0 (1 + C h^2), for which the harness must find order 2 and
 extrapolate to f0.
 """
@@ -12,7 +12,9 @@ from pathlib import Path
 
 import pytest
 
-from convsim import bench, bench_report, published
+from convsim.studies import bench
+from convsim.studies import bench_report
+from convsim.studies import published
 from convsim.cli import main
 from convsim.errors import ConfigError
 
@@ -26,7 +28,7 @@ def test_package_case_configs_identical_to_repo_configs(case):
     shipped = bench.package_cases_dir() / name
     repo = ROOT / "configs" / name
     assert shipped.read_bytes() == repo.read_bytes(), \
-        f"convsim/cases/{name} differs from configs/{name}: copy configs/ into convsim/cases/"
+        f"convsim/studies/cases/{name} differs from configs/{name}: copy configs/ into convsim/studies/cases/"
 
 
 def test_case_config_path_and_unknown_case():

@@ -1,4 +1,4 @@
-"""Grid convergence maths (convsim.convergence) against analytic sequences and a literature example.
+"""Grid convergence maths (convsim.analysis.convergence) against analytic sequences and a literature example.
 
 Analytic sequences: f(h) = f0 + C h^p exactly, for which the observed order is p,
 the Richardson-extrapolated value is f0 and the coarse/fine GCI ratio is f1/f2
@@ -17,7 +17,7 @@ import math
 
 import pytest
 
-from convsim import convergence as conv
+from convsim.analysis import convergence as conv
 
 
 def power_law(f0, C, p, hs):

@@ -3,13 +3,13 @@
 import numpy as np
 import pytest
 
-from convsim import kernels
-from convsim.energy import (DiffusionSolver, ThermalBoundaries, advection, diffusion_matrix,
+from convsim.model import kernels
+from convsim.model.energy import (DiffusionSolver, ThermalBoundaries, advection, diffusion_matrix,
                             pad_temperature, upwind_matrix)
-from convsim.grid import Grid
-from convsim.rheology import ViscosityLaw
-from convsim.stokes import face_velocities
-from convsim.timestepping import Model
+from convsim.model.grid import Grid
+from convsim.model.rheology import ViscosityLaw
+from convsim.model.stokes import face_velocities
+from convsim.model.timestepping import Model
 
 import naive
 

@@ -1,4 +1,4 @@
-"""Scaling-law fits and regime classification (convsim.fitting).
+"""Scaling-law fits and regime classification (convsim.analysis.fitting).
 
 References outside the project:
 - Blankenbach et al. (1989), Geophys. J. Int. 98, 23-38, Table 9 (quoted from memory):
@@ -19,7 +19,7 @@ from scipy import stats
 
 from convsim.cli import main
 from convsim.errors import ConfigError
-from convsim.fitting import (REFERENCE_SLOPES, RegimeThresholds, classify_regimes,
+from convsim.analysis.fitting import (REFERENCE_SLOPES, RegimeThresholds, classify_regimes,
                              fit_power_law, fit_report)
 
 BLANKENBACH_RA = np.array([1.0e4, 1.0e5, 1.0e6])

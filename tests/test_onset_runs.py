@@ -1,4 +1,4 @@
-"""Tests of convsim.onset_runs: the onset bracketed with short simulator runs.
+"""Tests of convsim.analysis.onset_runs: the onset bracketed with short simulator runs.
 
 References
 ----------
@@ -26,8 +26,8 @@ import pytest
 from convsim import cli
 from convsim.config import Config
 from convsim.errors import ConfigError
-from convsim.onset_runs import critical_from_rates, default_grid, fit_growth_rate, run_bracket
-from convsim.stability import analyse_onset
+from convsim.analysis.onset_runs import critical_from_rates, default_grid, fit_growth_rate, run_bracket
+from convsim.analysis.stability import analyse_onset
 
 RA_FF = 27.0 * math.pi**4 / 4.0          # [C61]
 K_FF = math.pi / math.sqrt(2.0)          # [C61]

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 
 from convsim import api
-from convsim.snapshot import read_run
-from convsim.timestepping import Model, StepFailed
+from convsim.files.runfile import read_run
+from convsim.model.timestepping import Model, StepFailed
 
 
 def test_steady_state_does_not_depend_on_the_time_step(case_config):

@@ -1,4 +1,4 @@
-"""Tests of convsim.stability: linear stability of the conductive state.
+"""Tests of convsim.analysis.stability: linear stability of the conductive state.
 
 References
 ----------
@@ -30,7 +30,7 @@ import pytest
 
 from convsim import cli
 from convsim.errors import ConfigError
-from convsim.stability import (Layer, StabilityProblem, analyse_onset, box_wavenumbers,
+from convsim.analysis.stability import (Layer, StabilityProblem, analyse_onset, box_wavenumbers,
                                conductive_gradient, conductive_profile, cutoff_breaks,
                                default_points,
                                growth_rates, neutral_rayleigh, viscosity_law)
@@ -426,10 +426,10 @@ def test_cli_rejects_flux_on_both_sides(tmp_path, capsys):
 
 
 def test_laws_are_the_simulators_own():
-    """One place for a law: the stability analysis evaluates convsim.rheology's laws, here
+    """One place for a law: the stability analysis evaluates convsim.model.rheology's laws, here
     against the formulas of the module docstring written out by hand."""
-    from convsim import rheology
-    from convsim.stability import VISCOSITY_LAWS
+    from convsim.model import rheology
+    from convsim.analysis.stability import VISCOSITY_LAWS
     assert VISCOSITY_LAWS is rheology.LAWS
     T = np.linspace(0.0, 1.0, 7)
     z = np.linspace(1.0, 0.0, 7)

@@ -4,9 +4,9 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from convsim.grid import Grid
-from convsim.linsolve import solve_spd, FACTORIZERS
-from convsim.stokes import StokesOperator, TransformSolver, face_velocities
+from convsim.model.grid import Grid
+from convsim.model.linsolve import solve_spd, FACTORIZERS
+from convsim.model.stokes import StokesOperator, TransformSolver, face_velocities
 
 
 def _analytic_mode_error(n, periodic):

@@ -1,4 +1,4 @@
-"""The onset, bench and sweep figures are drawn through the shared style (convsim.style).
+"""The onset, bench and sweep figures are drawn through the shared style (convsim.figures.style).
 
 External references used below:
 - Okabe & Ito (2008), Color Universal Design: the line colours (checked against
@@ -23,11 +23,15 @@ from matplotlib import colors as mcolors
 from matplotlib.layout_engine import ConstrainedLayoutEngine
 from matplotlib.text import Text
 
-from convsim import figures_bench, figures_onset, figures_sweep, stability, style
-from convsim.fitting import fit_power_law
+from convsim.figures import bench as figures_bench
+from convsim.figures import onset as figures_onset
+from convsim.figures import sweep as figures_sweep
+from convsim.analysis import stability
+from convsim.figures import style
+from convsim.analysis.fitting import fit_power_law
 
 PACKAGE = Path(__file__).resolve().parent.parent / "convsim"
-MODULES = ("figures_onset", "figures_bench", "figures_sweep")
+MODULES = ("onset", "bench", "sweep", "fields", "animation")
 RA_C, K_C = 27.0 * math.pi**4 / 4.0, math.pi / math.sqrt(2.0)
 BLANKENBACH_RA = np.array([1e4, 1e5, 1e6])
 BLANKENBACH_NU = np.array([4.884409, 10.534095, 21.972465])
@@ -78,13 +82,13 @@ BUILDERS = {
 }
 
 
-# -- the modules go through convsim.style --------------------------------------------------------
+# -- the modules go through convsim.figures.style --------------------------------------------------------
 @pytest.mark.parametrize("name", MODULES)
 def test_module_imports_the_style_and_keeps_no_style_of_its_own(name):
-    source = (PACKAGE / f"{name}.py").read_text()
+    source = (PACKAGE / "figures" / f"{name}.py").read_text()
     tree = ast.parse(source)
     imported = {alias.name for node in ast.walk(tree) if isinstance(node, ast.ImportFrom)
-                and node.level == 1 for alias in node.names}
+                and node.module == "convsim.figures" for alias in node.names}
     assert "style" in imported
     module_names = {t.id for node in tree.body if isinstance(node, ast.Assign)
                     for t in node.targets if isinstance(t, ast.Name)}

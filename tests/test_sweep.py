@@ -1,4 +1,4 @@
-"""Parameter sweeps (convsim.sweep, convsim.sweep_table).
+"""Parameter sweeps (convsim.studies.sweep, convsim.studies.sweep_table).
 
 References outside the project:
 - Blankenbach et al. (1989), Geophys. J. Int. 98, 23-38, Table 9 (quoted from memory):
@@ -18,11 +18,11 @@ import pytest
 
 from convsim.cli import main
 from convsim.errors import ConfigError, OutputExistsError
-from convsim.fitting import fit_table
-from convsim.snapshot import read_run
-from convsim.sweep import (case_id, expand_cases, interior_rms_velocity, law_viscosity_contrast,
+from convsim.analysis.fitting import fit_table
+from convsim.files.runfile import read_run
+from convsim.studies.sweep import (case_id, expand_cases, interior_rms_velocity, law_viscosity_contrast,
                            load_sweep, parse_sweep, run_case, run_sweep)
-from convsim.sweep_table import read_table
+from convsim.studies.sweep_table import read_table
 
 ROOT = Path(__file__).resolve().parents[1]
 BASE = ROOT / "configs" / "benchmark_case_1a.toml"
@@ -114,8 +114,8 @@ def test_case_ids_are_stable_and_distinct():
 
 # -- case diagnostics against hand values -----------------------------------------------------
 def test_interior_velocity_and_law_contrast():
-    from convsim.grid import Grid
-    from convsim.rheology import ViscosityLaw
+    from convsim.model.grid import Grid
+    from convsim.model.rheology import ViscosityLaw
     g = Grid(8, 10)
     # psi = U z on the nodes: uniform u = U, w = 0 everywhere
     psi = 3.0 * np.broadcast_to(g.z_node[:, None], g.node_shape)

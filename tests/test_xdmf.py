@@ -19,8 +19,8 @@ import pytest
 
 from convsim.cli import main
 from convsim.errors import OutputExistsError, SnapshotError
-from convsim.snapshot import read_run
-from convsim.xdmf import sidecar_path, write_xdmf
+from convsim.files.runfile import read_run
+from convsim.files.xdmf import sidecar_path, write_xdmf
 
 
 def _resolve(item, folder):

@@ -1,0 +1,1 @@
+"""Figures in the house style: fields, series, onset, bench, sweep, animation."""

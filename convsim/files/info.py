@@ -1,0 +1,148 @@
+"""What a run file holds, as a JSON-ready dict (the ``convsim info`` command).
+
+No numerics and no printing: :func:`describe_run` reads a run file (see
+:mod:`convsim.files.runfile` for the layout) and returns plain Python numbers,
+strings, lists and dicts; the CLI prints them as text or JSON.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from pathlib import Path
+
+import numpy as np
+
+from convsim.errors import SnapshotError
+from convsim.files.runfile import FIELDS, SERIES, open_run_file
+
+__all__ = ["describe_run", "format_info"]
+
+_PROVENANCE = ("title", "source", "convsim_version", "created", "Conventions", "wall_seconds")
+
+
+def _plain(value):
+    """numpy scalars and arrays as plain Python values (NaN and inf as None, for JSON)."""
+    if isinstance(value, bytes):
+        return value.decode()
+    if isinstance(value, np.ndarray):
+        return [_plain(v) for v in value.tolist()]
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, (np.bool_, bool)):
+        return bool(value)
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (np.floating, float)):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    return value
+
+
+def describe_run(path: str | Path) -> dict:
+    """A summary of a run file.
+
+    Returns
+    -------
+    dict
+        ``file`` (path, size_bytes, xdmf sidecar or None), ``status``,
+        ``provenance`` (title, source, convsim_version, created, Conventions,
+        wall_seconds), ``grid`` (nx, nz, aspect, periodic, dx, dz), ``snapshots``
+        (count, times, steps), ``series`` (records, first_time, last_time, names),
+        ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
+        ``final_*`` attributes, or the last series row while the run is not
+        finished) and ``config`` (the stored TOML as a nested dict).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise SnapshotError(f"run file {str(path)!r}: not found")
+    try:
+        with open_run_file(path) as f:
+            attrs = {k: _plain(v) for k, v in f.attrs.items()}
+            x_node, z_node = f["x_node"][:], f["z_node"][:]
+            times, steps = f["time"][:], f["step"][:]
+            fields = {name: {"dims": ["time"] + list(FIELDS[name][0]),
+                             "shape": list(f[name].shape),
+                             "units": _plain(f[name].attrs.get("units")),
+                             "long_name": _plain(f[name].attrs.get("long_name"))}
+                      for name in FIELDS if name in f}
+            records = int(f["series_time"].shape[0])
+            last = {name: _plain(f[name][-1]) for name in SERIES if records and name in f}
+            first_time = _plain(f["series_time"][0]) if records else None
+    except (OSError, KeyError) as exc:
+        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
+                            f"({exc})") from None
+    try:
+        config = tomllib.loads(attrs.get("config", ""))
+    except tomllib.TOMLDecodeError:
+        config = None
+    final = {k[len("final_"):]: v for k, v in attrs.items() if k.startswith("final_")}
+    if not final and last:
+        final = {"time": last.get("series_time"), "steps": last.get("series_step"),
+                 **{k: last[k] for k in ("nusselt_top", "nusselt_bottom", "vrms",
+                                         "surface_vrms", "mean_temperature") if k in last}}
+    nx, nz = len(x_node) - 1, len(z_node) - 1
+    sidecar = path.with_suffix(".xdmf")
+    return {
+        "file": {"path": str(path), "size_bytes": path.stat().st_size,
+                 "xdmf": str(sidecar) if sidecar.is_file() else None},
+        "status": attrs.get("status"),
+        "provenance": {k: attrs.get(k) for k in _PROVENANCE},
+        "grid": {"nx": nx, "nz": nz, "aspect": _plain(x_node[-1] - x_node[0]),
+                 "periodic": bool(attrs.get("periodic", 0)),
+                 "dx": _plain((x_node[-1] - x_node[0]) / nx),
+                 "dz": _plain((z_node[-1] - z_node[0]) / nz)},
+        "snapshots": {"count": int(len(times)), "times": _plain(times), "steps": _plain(steps)},
+        "series": {"records": records, "first_time": first_time,
+                   "last_time": last.get("series_time"), "names": list(SERIES)},
+        "fields": fields,
+        "final": final,
+        "config": config,
+    }
+
+
+def _short(values, keep=4):
+    text = [f"{v:.6g}" if isinstance(v, float) else str(v) for v in values]
+    if len(text) > 2 * keep:
+        text = text[:keep] + [f"... ({len(values) - 2 * keep} more) ..."] + text[-keep:]
+    return ", ".join(text)
+
+
+def format_info(info: dict) -> str:
+    """The dict of :func:`describe_run` as a few lines of text."""
+    g, s, sn, p = info["grid"], info["series"], info["snapshots"], info["provenance"]
+    cfg = info["config"] or {}
+    phys, bnd, visc = cfg.get("physics", {}), cfg.get("boundaries", {}), cfg.get("viscosity", {})
+    lines = [
+        f"{info['file']['path']}: {p.get('title') or 'convsim run'}",
+        f"  status      {info['status']}",
+        f"  grid        {g['nx']} x {g['nz']} cells, aspect {g['aspect']:g}, "
+        f"{'periodic' if g['periodic'] else 'reflecting'} sides",
+    ]
+    if phys:
+        lines.append(f"  physics     Ra = {phys.get('rayleigh', float('nan')):g}, "
+                     f"internal heating {phys.get('internal_heating', 0.0):g}")
+    if bnd:
+        lines.append(f"  boundaries  top {bnd.get('top_flow')} / {bnd.get('top_heat')} "
+                     f"{bnd.get('top_value')}, bottom {bnd.get('bottom_flow')} / "
+                     f"{bnd.get('bottom_heat')} {bnd.get('bottom_value')}")
+    if visc:
+        lines.append(f"  viscosity   {visc.get('law')}")
+    if "body" in cfg:
+        lines.append("  body        " + ", ".join(f"{k} = {v}" for k, v in cfg["body"].items()))
+    lines.append(f"  snapshots   {sn['count']} at t = {_short(sn['times'])}")
+    lines.append(f"  series      {s['records']} records"
+                 + (f", t = {s['first_time']:.6g} to {s['last_time']:.6g}" if s["records"] else ""))
+    fin = info["final"]
+    if fin:
+        keys = [k for k in ("time", "steps", "nusselt_top", "nusselt_bottom", "vrms",
+                            "surface_vrms", "mean_temperature", "message") if k in fin]
+        lines.append("  final       " + ", ".join(
+            f"{k} = {fin[k]:.6g}" if isinstance(fin[k], float) else f"{k} = {fin[k]}"
+            for k in keys))
+    lines.append(f"  provenance  {p.get('source')}, created {p.get('created')}, "
+                 f"wall {p.get('wall_seconds') or 0.0:.3g} s, {p.get('Conventions')}")
+    lines.append(f"  fields      {', '.join(info['fields'])}")
+    if info["file"]["xdmf"]:
+        lines.append(f"  xdmf        {info['file']['xdmf']}")
+    return "\n".join(lines)

@@ -1,0 +1,343 @@
+"""The run file: one HDF5 file per run, laid out by netCDF-4 / CF conventions.
+
+No numerics here.  The file stays a plain HDF5 file for h5py and opens in
+netCDF tools (``xarray.open_dataset(path, engine="h5netcdf")``): every dimension
+is an HDF5 dimension scale with a coordinate variable of the same name, and
+every variable carries ``units`` and ``long_name`` attributes.
+
+Layout (root group):
+
+- coordinates ``x`` (cell centres), ``z``, ``x_node`` (cell corners), ``z_node``,
+  ``time`` (one entry per snapshot, unlimited) and ``record`` (one entry per row
+  of the diagnostic time series, unlimited);
+- snapshot fields over (time, ...): ``temperature``, ``viscosity`` (cells),
+  ``streamfunction`` (corners), ``velocity_x`` (vertical faces: z, x_node),
+  ``velocity_z`` (horizontal faces: z_node, x), profiles over (time, z), corner
+  gradients ``q1`` .. ``q4`` and ``step`` over (time,);
+- time series over (record,): ``series_time``, ``series_step`` and every
+  diagnostic of ``StepReport``, each naming ``series_time`` as its CF auxiliary
+  coordinate (attribute ``coordinates``);
+- coordinates carry ``axis`` (X, Z, T) and the vertical ones ``positive = "up"``;
+- group ``restart``: the exact state to continue the run bit for bit;
+- attributes: ``Conventions``, ``title``, ``config`` (the full TOML), provenance
+  (``convsim_version``, ``created``, ``wall_seconds``, ``status``).
+
+Crash safety: the file is opened, appended to, flushed and closed at each
+snapshot, so a run killed between snapshots leaves a complete, readable file
+holding everything up to the last one.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from convsim.errors import OutputExistsError, SnapshotError
+
+__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
+           "check_writable"]
+
+# name: (dimensions after time, units, long_name)
+FIELDS = {
+    "temperature": (("z", "x"), "1", "temperature (T - T_top) / contrast, cell centres"),
+    "viscosity": (("z", "x"), "1", "viscosity over the reference viscosity, cell centres"),
+    "streamfunction": (("z_node", "x_node"), "1", "streamfunction psi (u = dpsi/dz, w = -dpsi/dx) in kappa"),
+    "velocity_x": (("z", "x_node"), "1", "horizontal velocity on vertical faces, units kappa/d"),
+    "velocity_z": (("z_node", "x"), "1", "vertical velocity on horizontal faces, units kappa/d"),
+    "temperature_profile": (("z",), "1", "horizontally averaged temperature"),
+    "viscosity_profile": (("z",), "1", "horizontally averaged viscosity"),
+    "q1": ((), "1", "-dT/dz at corner (0, 1)"),
+    "q2": ((), "1", "-dT/dz at corner (aspect, 1)"),
+    "q3": ((), "1", "-dT/dz at corner (aspect, 0)"),
+    "q4": ((), "1", "-dT/dz at corner (0, 0)"),
+    "step": ((), "1", "time step number of the snapshot"),
+}
+
+SERIES = {
+    "series_time": ("1", "time of the record, units d^2/kappa"),
+    "series_step": ("1", "time step number"),
+    "dt": ("1", "time step size, units d^2/kappa"),
+    "rayleigh": ("1", "Rayleigh number in force"),
+    "nusselt_top": ("1", "Nusselt number at the top"),
+    "nusselt_bottom": ("1", "Nusselt number at the bottom"),
+    "vrms": ("1", "root-mean-square velocity, units kappa/d"),
+    "surface_vrms": ("1", "rms horizontal velocity at the top, units kappa/d"),
+    "mean_temperature": ("1", "mean temperature"),
+    "energy_residual": ("1", "heat budget misfit over the top heat flow"),
+    "tendency_max": ("1", "max |dT/dt|"),
+    "stokes_iterations": ("1", "conjugate-gradient iterations of the Stokes solve"),
+}
+
+COORDINATES = {
+    "x": "horizontal position of cell centres, units d",
+    "z": "height of cell centres above the bottom, units d",
+    "x_node": "horizontal position of cell corners, units d",
+    "z_node": "height of cell corners, units d",
+    "time": "time of the snapshot, units d^2/kappa",
+    "record": "index of the time-series record",
+}
+
+RESTART_KEYS = ("temperature", "psi", "previous_temperature", "previous_tendency",
+                "factor_weights")
+
+
+def open_run_file(path, mode: str = "r"):
+    """Open a run file.  Readers skip HDF5's file lock, so that looking at a file (a notebook,
+    ``convsim info``) never stops the run writing it; the writer retries for a few seconds
+    while another program holds a lock (errno EAGAIN)."""
+    if mode == "r":
+        try:
+            return h5py.File(path, "r", locking=False)
+        except OSError as exc:   # already open in this process with locking (xarray, say)
+            if "locking flag" not in str(exc):
+                raise
+            return h5py.File(path, "r")
+    for attempt in range(50):
+        try:
+            return h5py.File(path, mode)
+        except BlockingIOError:
+            if attempt == 49:
+                raise
+            time.sleep(0.1)
+        except OSError as exc:
+            if "unable to lock file" not in str(exc) or attempt == 49:
+                raise
+            time.sleep(0.1)
+
+
+def check_writable(path: Path, overwrite: bool) -> None:
+    """Refuse to replace an existing file unless asked; check that the folder can be written."""
+    path = Path(path)
+    if path.exists() and not overwrite:
+        raise OutputExistsError(f"output {str(path)!r}: exists; pass --overwrite to replace it "
+                                f"or --out to choose another folder")
+    folder = path.parent
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise SnapshotError(f"output folder {str(folder)!r}: cannot be created ({exc.strerror})") from None
+    if not os.access(folder, os.W_OK):
+        raise SnapshotError(f"output folder {str(folder)!r}: not writable")
+
+
+class RunFileWriter:
+    """Writes snapshots and the diagnostic series of one run into its HDF5 file.
+
+    The file is opened only for each write and closed after it.
+    """
+
+    def __init__(self, path: str | Path, *, overwrite: bool = False, append: bool = False):
+        self.path = Path(path)
+        self.append = append
+        if not append:
+            check_writable(self.path, overwrite)
+        elif not self.path.is_file():
+            raise SnapshotError(f"run file {str(self.path)!r}: not found")
+
+    # -- creation -----------------------------------------------------------------------------
+    def create(self, grid, config_text: str, title: str, version: str) -> None:
+        """Write a new file with the grid and metadata (replaces an old one, checked before)."""
+        if self.append:
+            return
+        tmp = self.path.with_name(self.path.name + ".part")
+        with h5py.File(tmp, "w") as f:
+            f.attrs["Conventions"] = "CF-1.8"
+            f.attrs["title"] = title or "convsim run"
+            f.attrs["source"] = f"convsim {version}"
+            f.attrs["convsim_version"] = version
+            f.attrs["created"] = _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+            f.attrs["config"] = config_text
+            f.attrs["status"] = "running"
+            f.attrs["wall_seconds"] = 0.0
+            f.attrs["aspect"] = grid.aspect
+            f.attrs["periodic"] = int(grid.periodic)
+            for name, values in (("x", grid.x_cell), ("z", grid.z_cell), ("x_node", grid.x_node),
+                                 ("z_node", grid.z_node)):
+                d = f.create_dataset(name, data=values)
+                self._coordinate(d, name, "1")
+                d.attrs["axis"] = "X" if name.startswith("x") else "Z"
+                if name.startswith("z"):
+                    d.attrs["positive"] = "up"  # CF: direction of a vertical coordinate
+            for name in ("time", "record"):
+                d = f.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8" if name == "time" else "i8",
+                                     chunks=(256,))
+                self._coordinate(d, name, "1")
+            f["time"].attrs["axis"] = "T"
+            for name, (dims, units, long_name) in FIELDS.items():
+                shape = tuple(len(f[d]) for d in dims)
+                d = f.create_dataset(name, shape=(0,) + shape, maxshape=(None,) + shape,
+                                     dtype="i8" if name == "step" else "f8",
+                                     chunks=(1,) + shape if shape else (256,))
+                self._attach(f, d, ("time",) + dims, units, long_name)
+            for name, (units, long_name) in SERIES.items():
+                d = f.create_dataset(name, shape=(0,), maxshape=(None,),
+                                     dtype="i8" if name in ("series_step", "stokes_iterations") else "f8",
+                                     chunks=(4096,))
+                self._attach(f, d, ("record",), units, long_name)
+                if name != "series_time":
+                    d.attrs["coordinates"] = "series_time"  # CF auxiliary coordinate
+        os.replace(tmp, self.path)
+
+    @staticmethod
+    def _coordinate(d, name, units):
+        d.make_scale(name)
+        d.attrs["units"] = units
+        d.attrs["long_name"] = COORDINATES[name]
+
+    @staticmethod
+    def _attach(f, d, dims, units, long_name):
+        for axis, dim in enumerate(dims):
+            d.dims[axis].attach_scale(f[dim])
+        d.attrs["units"] = units
+        d.attrs["long_name"] = long_name
+
+    # -- appending ----------------------------------------------------------------------------
+    def write(self, *, time: float, fields: dict, series: dict, restart: dict,
+              status: str, wall_seconds: float) -> int:
+        """Append one snapshot and the new series rows; replace the restart state. Returns the snapshot index."""
+        try:
+            with open_run_file(self.path, "a") as f:
+                n = f["time"].shape[0]
+                f["time"].resize((n + 1,))
+                f["time"][n] = time
+                for name in FIELDS:
+                    d = f[name]
+                    d.resize((n + 1,) + d.shape[1:])
+                    d[n] = fields[name]
+                rows = len(series.get("series_time", ()))
+                if rows:
+                    m = f["record"].shape[0]
+                    f["record"].resize((m + rows,))
+                    f["record"][m:] = np.arange(m, m + rows)
+                    for name in SERIES:
+                        d = f[name]
+                        d.resize((m + rows,))
+                        d[m:] = series[name]
+                if "restart" in f:
+                    del f["restart"]
+                g = f.create_group("restart")
+                for key, value in restart.items():
+                    if value is None:
+                        continue
+                    if isinstance(value, np.ndarray):
+                        g.create_dataset(key, data=value)
+                    else:
+                        g.attrs[key] = value
+                f.attrs["status"] = status
+                f.attrs["wall_seconds"] = wall_seconds
+                f.flush()
+                return n
+        except OSError as exc:
+            raise SnapshotError(f"run file {str(self.path)!r}: cannot be written ({exc})") from None
+
+    def finish(self, status: str, wall_seconds: float, summary: dict) -> None:
+        with open_run_file(self.path, "a") as f:
+            f.attrs["status"] = status
+            f.attrs["wall_seconds"] = wall_seconds
+            for key, value in summary.items():
+                if isinstance(value, (int, float, str, bool, np.floating, np.integer)):
+                    f.attrs[f"final_{key}"] = value
+
+
+@dataclass
+class RunFile:
+    """What a run file holds, read into memory (fields of one snapshot only)."""
+
+    path: Path
+    attrs: dict
+    x: np.ndarray
+    z: np.ndarray
+    x_node: np.ndarray
+    z_node: np.ndarray
+    times: np.ndarray
+    steps: np.ndarray
+    snapshot: int
+    fields: dict
+    series: dict
+    restart: dict
+
+    @property
+    def config_text(self) -> str:
+        return self.attrs.get("config", "")
+
+
+def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> RunFile:
+    """Read a run file: metadata, the series, and the fields of one snapshot (default the last)."""
+    path = Path(path)
+    if not path.is_file():
+        raise SnapshotError(f"run file {str(path)!r}: not found")
+    try:
+        with open_run_file(path) as f:
+            times = f["time"][:]
+            if len(times) == 0:
+                raise SnapshotError(f"run file {str(path)!r}: holds no snapshot yet")
+            count = len(times)
+            index = snapshot if snapshot >= 0 else count + snapshot
+            if not 0 <= index < count:
+                raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
+                                    f"{count} (0 to {count - 1})")
+            fields = {name: f[name][index] for name in FIELDS}
+            series = {name: f[name][:] for name in SERIES}
+            state = {}
+            if restart and "restart" in f:
+                g = f["restart"]
+                state = {k: g[k][:] for k in g}
+                state.update({k: g.attrs[k] for k in g.attrs})
+            attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
+            return RunFile(path=path, attrs=attrs, x=f["x"][:], z=f["z"][:], x_node=f["x_node"][:],
+                           z_node=f["z_node"][:], times=times, steps=f["step"][:], snapshot=index,
+                           fields=fields, series=series, restart=state)
+    except SnapshotError:
+        raise
+    except (OSError, KeyError) as exc:
+        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
+
+
+def iter_fields(path: str | Path, names=tuple(FIELDS)):
+    """Yield ``(index, time, {name: array})`` for every snapshot, the file opened once.
+
+    For animations and sweeps over snapshots: reads only the named fields, not the series.
+    """
+    path = Path(path)
+    unknown = [n for n in names if n not in FIELDS]
+    if unknown:
+        raise SnapshotError(f"fields {unknown}: unknown; allowed: {', '.join(FIELDS)}")
+    if not path.is_file():
+        raise SnapshotError(f"run file {str(path)!r}: not found")
+    try:
+        with open_run_file(path) as f:
+            times = f["time"][:]
+            for index, when in enumerate(times):
+                yield index, float(when), {name: f[name][index] for name in names}
+    except (OSError, KeyError) as exc:
+        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
+
+
+class RunFileObserver:
+    """Simulation observer that records the run into its run file."""
+
+    def __init__(self, writer: RunFileWriter):
+        self.writer = writer
+
+    def on_start(self, simulation, resumed: bool) -> None:
+        from convsim import __version__
+        if not resumed:
+            self.writer.create(simulation.grid, simulation.config_text, simulation.config.title,
+                               __version__)
+
+    def on_step(self, report) -> None:
+        pass
+
+    def on_snapshot(self, snap) -> None:
+        self.writer.write(time=snap.time, fields=snap.fields, series=snap.series,
+                          restart=snap.restart, status=snap.status, wall_seconds=snap.wall_seconds)
+
+    def on_finish(self, result) -> None:
+        summary = {k: v for k, v in result.summary().items() if k != "output" and v is not None}
+        self.writer.finish(result.status, result.wall_seconds, summary)

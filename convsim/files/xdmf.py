@@ -1,0 +1,134 @@
+"""XDMF sidecar of a run file, so that ParaView and VisIt open its time series.
+
+``write_xdmf("runs/case.h5")`` writes ``runs/case.xdmf`` beside it: light XML
+that describes the heavy data, which stays in the HDF5 run file and is
+referenced there by dataset path (``case.h5:/temperature``; the path is
+relative, so the pair can be moved together).
+
+Layout (XDMF 3)::
+
+    Xdmf Version="3.0"
+      Domain
+        Grid  GridType="Collection" CollectionType="Temporal"
+          Grid  GridType="Uniform"   (one per snapshot)
+            Time Value="t"
+            Topology  TopologyType="2DRectMesh" Dimensions="nz+1 nx+1"
+            Geometry  GeometryType="VXVY"   -> /x_node, /z_node (cell corners)
+            Attribute temperature    Center="Cell" -> hyperslab of /temperature
+            Attribute viscosity      Center="Cell" -> hyperslab of /viscosity
+            Attribute streamfunction Center="Node" -> hyperslab of /streamfunction
+
+The structured-mesh ``Dimensions`` count points, slowest index first (z, then
+x), matching the [z, x] layout of the arrays; the model's z is the viewer's y.
+Each attribute is one snapshot of a (time, ...) dataset, picked by a
+``HyperSlab`` data item whose first child gives start, stride and count per
+dimension.  Times are the nondimensional snapshot times (d^2/kappa).
+Velocities live on cell faces, which XDMF cannot describe; they are left out.
+"""
+
+from __future__ import annotations
+
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+
+from convsim.errors import SnapshotError
+from convsim.files.runfile import check_writable, open_run_file
+
+__all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
+
+#: Snapshot fields described in the sidecar: name -> XDMF centre.
+XDMF_FIELDS = {"temperature": "Cell", "viscosity": "Cell", "streamfunction": "Node"}
+
+
+def sidecar_path(run_path: str | Path) -> Path:
+    """``RUN.xdmf`` beside ``RUN.h5``."""
+    return Path(run_path).with_suffix(".xdmf")
+
+
+def _data_item(parent, dims, href, dtype):
+    item = ET.SubElement(parent, "DataItem", Dimensions=" ".join(str(d) for d in dims),
+                         NumberType="Int" if dtype.kind in "iu" else "Float",
+                         Precision=str(dtype.itemsize), Format="HDF")
+    item.text = href
+    return item
+
+
+def xdmf_text(run_path: str | Path) -> str:
+    """The XDMF 3 document (text) describing the snapshots of a run file."""
+    run_path = Path(run_path)
+    if not run_path.is_file():
+        raise SnapshotError(f"run file {str(run_path)!r}: not found")
+    name = run_path.name
+    try:
+        with open_run_file(run_path) as f:
+            times = f["time"][:]
+            nx1, nz1 = len(f["x_node"]), len(f["z_node"])
+            coord_types = {k: f[k].dtype for k in ("x_node", "z_node")}
+            shapes = {k: f[k].shape for k in XDMF_FIELDS}
+            types = {k: f[k].dtype for k in XDMF_FIELDS}
+            title = f.attrs.get("title", "convsim run")
+    except (OSError, KeyError) as exc:
+        raise SnapshotError(f"run file {str(run_path)!r}: not a readable convsim run file "
+                            f"({exc})") from None
+    if isinstance(title, bytes):
+        title = title.decode()
+
+    root = ET.Element("Xdmf", Version="3.0")
+    root.set("xmlns:xi", "http://www.w3.org/2001/XInclude")
+    domain = ET.SubElement(root, "Domain")
+    series = ET.SubElement(domain, "Grid", Name=str(title) or "convsim run",
+                           GridType="Collection", CollectionType="Temporal")
+    for index, t in enumerate(times):
+        grid = ET.SubElement(series, "Grid", Name=f"snapshot {index}", GridType="Uniform")
+        ET.SubElement(grid, "Time", Value=repr(float(t)))
+        ET.SubElement(grid, "Topology", TopologyType="2DRectMesh", Dimensions=f"{nz1} {nx1}")
+        geometry = ET.SubElement(grid, "Geometry", GeometryType="VXVY")
+        _data_item(geometry, (nx1,), f"{name}:/x_node", coord_types["x_node"])
+        _data_item(geometry, (nz1,), f"{name}:/z_node", coord_types["z_node"])
+        for field, centre in XDMF_FIELDS.items():
+            shape = shapes[field]  # (time, rows, columns)
+            attribute = ET.SubElement(grid, "Attribute", Name=field, AttributeType="Scalar",
+                                      Center=centre)
+            slab = ET.SubElement(attribute, "DataItem", ItemType="HyperSlab",
+                                 Dimensions=f"{shape[1]} {shape[2]}", Type="HyperSlab")
+            selection = ET.SubElement(slab, "DataItem", Dimensions="3 3", NumberType="Int",
+                                      Format="XML")
+            selection.text = f"{index} 0 0  1 1 1  1 {shape[1]} {shape[2]}"
+            _data_item(slab, shape, f"{name}:/{field}", types[field])
+    ET.indent(root, space="  ")
+    return ('<?xml version="1.0" encoding="utf-8"?>\n<!DOCTYPE Xdmf SYSTEM "Xdmf.dtd" []>\n'
+            + ET.tostring(root, encoding="unicode") + "\n")
+
+
+def write_xdmf(run_path: str | Path, output: str | Path | None = None, *,
+               overwrite: bool = False) -> Path:
+    """Write the XDMF sidecar of a run file (default ``RUN.xdmf`` beside it).
+
+    Parameters
+    ----------
+    run_path : path
+        The HDF5 run file.
+    output : path, optional
+        Where to write; must be in the run file's folder, because the data are
+        referenced by a path relative to the sidecar.
+    overwrite : bool
+        Replace an existing sidecar.  The run writer passes True: the sidecar
+        belongs to its run file and follows it.
+
+    Returns
+    -------
+    Path
+        The file written.
+    """
+    run_path = Path(run_path)
+    output = sidecar_path(run_path) if output is None else Path(output)
+    if output.resolve().parent != run_path.resolve().parent:
+        raise SnapshotError(f"XDMF output {str(output)!r}: must be in the folder of the run file "
+                            f"{str(run_path)!r} (the data are referenced by relative path)")
+    text = xdmf_text(run_path)
+    check_writable(output, overwrite)
+    part = output.with_name(output.name + ".part")
+    part.write_text(text, encoding="utf-8")
+    part.replace(output)
+    return output

@@ -1,0 +1,231 @@
+"""Sparse symmetric positive definite solves for the Stokes matrix: a front door and a registry.
+
+``solve_spd(A, b, method="superlu")`` is the one-shot front door; ``FACTORIZERS``
+maps back-end names to classes with ``factor(A)`` and ``solve(b)``.  An unknown
+name raises ``SolverError`` listing the valid ones.
+
+- ``superlu``: scipy's SuperLU (always available), minimum-degree ordering on
+  A^T + A and symmetric mode, which roughly halves the fill against the default.
+- ``cholmod``: the supernodal Cholesky of SuiteSparse through cvxopt's wheel;
+  the symbolic analysis is done once per sparsity pattern and reused.
+
+``LaggedFactorSolver`` reuses an old factor as the preconditioner of conjugate
+gradients while the viscosity changes slowly, and refactors when the iteration
+count says the old factor no longer pays (a deterministic rule, so a restarted
+run repeats the uninterrupted one bit for bit).
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as sla
+
+from convsim.errors import SolverError
+
+__all__ = ["FACTORIZERS", "limit_blas_threads", "available_factorizers", "make_factorizer", "solve_spd",
+           "LaggedFactorSolver", "SolveReport"]
+
+
+class SuperLUFactorizer:
+    """LU of a symmetric matrix by SuperLU, minimum degree on A^T + A, symmetric mode."""
+
+    name = "superlu"
+
+    def __init__(self):
+        self._lu = None
+
+    def factor(self, A: sp.spmatrix) -> None:
+        self._lu = sla.splu(sp.csc_matrix(A), permc_spec="MMD_AT_PLUS_A",
+                            options=dict(SymmetricMode=True))
+
+    def solve(self, b: np.ndarray) -> np.ndarray:
+        return self._lu.solve(b)
+
+
+class CholmodFactorizer:
+    """Supernodal Cholesky (SuiteSparse CHOLMOD, via cvxopt); analysis reused per pattern."""
+
+    name = "cholmod"
+
+    def __init__(self):
+        try:
+            import cvxopt
+            import cvxopt.cholmod
+        except ImportError as exc:  # pragma: no cover - depends on the installation
+            raise SolverError("stokes_solver = 'cholmod': cvxopt is not installed; "
+                              "allowed: 'superlu', or pip install cvxopt") from exc
+        self._cvxopt = cvxopt
+        self._cholmod = cvxopt.cholmod
+        limit_blas_threads(1)
+        self._cholmod.options["supernodal"] = 2
+        self._symbolic = None
+        self._key = None
+        self._lower = None
+
+    def factor(self, A: sp.spmatrix) -> None:
+        cvx = self._cvxopt
+        lower = sp.tril(A, format="coo")
+        key = (A.shape, lower.nnz, hash(lower.row.tobytes()), hash(lower.col.tobytes()))
+        if key != self._key:
+            self._I = cvx.matrix(lower.row.astype(np.int64).tolist(), tc="i")
+            self._J = cvx.matrix(lower.col.astype(np.int64).tolist(), tc="i")
+        M = cvx.spmatrix(cvx.matrix(lower.data), self._I, self._J, size=A.shape)
+        if key != self._key:
+            self._symbolic = self._cholmod.symbolic(M, uplo="L")
+            self._key = key
+        self._cholmod.numeric(M, self._symbolic)
+
+    def solve(self, b: np.ndarray) -> np.ndarray:
+        x = self._cvxopt.matrix(np.ascontiguousarray(b, dtype=float))
+        self._cholmod.solve(self._symbolic, x)
+        return np.array(x).ravel()
+
+
+def limit_blas_threads(n: int = 1):
+    """Limit every loaded BLAS to n threads (also those loaded later, through the environment).
+
+    cvxopt ships its own OpenBLAS beside numpy's; two spinning thread pools on a
+    small machine slow every dense and sparse kernel several times over (measured:
+    a 128 x 128 variable-viscosity step went from 190 ms to 29 ms on 2 cores).
+    The matrices here are too small to gain from threaded BLAS, and parallel runs
+    (bench, sweep, onset brackets) are the parallelism: each worker calls this.
+    Returns the threadpoolctl limiter (or None without threadpoolctl).
+    """
+    import os
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover
+        return None
+    return threadpool_limits(limits=n, user_api="blas")
+
+
+FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}
+
+
+def available_factorizers() -> list[str]:
+    """Names of the back ends that can be created on this installation, fastest first."""
+    names = []
+    for name in ("cholmod", "superlu"):
+        try:
+            FACTORIZERS[name]()
+        except SolverError:
+            continue
+        names.append(name)
+    return names
+
+
+def make_factorizer(method: str | type = "superlu"):
+    """A factorizer by name (or class); an unknown name lists the valid ones."""
+    if isinstance(method, type):
+        return method()
+    if method not in FACTORIZERS:
+        raise SolverError(f"stokes back end {method!r}: unknown; allowed: {', '.join(FACTORIZERS)}")
+    return FACTORIZERS[method]()
+
+
+def solve_spd(A: sp.spmatrix, b: np.ndarray, method: str = "superlu") -> np.ndarray:
+    """Solve A x = b for a sparse symmetric positive definite A with the named back end."""
+    f = make_factorizer(method)
+    f.factor(A)
+    return f.solve(b)
+
+
+@dataclass
+class SolveReport:
+    """What one Stokes solve did."""
+
+    iterations: int = 0          # CG iterations (0: direct solve with a fresh factor)
+    refactored: bool = False
+    factor_seconds: float = 0.0
+    solve_seconds: float = 0.0
+
+
+class LaggedFactorSolver:
+    """Solve A(eta) x = b for a sequence of slowly changing matrices.
+
+    With ``policy = 'always'`` every new matrix is factorised.  With ``'adaptive'``
+    the last factor preconditions conjugate gradients on the new matrix; when CG
+    needs more than ``max_iterations`` iterations to reach ``rtol`` the matrix is
+    refactorised and solved directly.
+
+    Parameters
+    ----------
+    factorizer : object with ``factor(A)`` and ``solve(b)``.
+    policy : {'adaptive', 'always'}
+    rtol : float
+        Relative residual ||b - A x|| / ||b|| at which CG stops.
+    max_iterations : int
+        Iterations beyond which a refactorisation is cheaper (measured in
+        benchmarks/stokes_backends.py: one CG iteration costs about a sixth of a
+        refactorisation at 128 x 128).
+    """
+
+    def __init__(self, factorizer, policy: str = "adaptive", rtol: float = 1e-10,
+                 max_iterations: int = 6):
+        if policy not in ("adaptive", "always"):
+            raise SolverError(f"factor_reuse = {policy!r}: allowed 'adaptive', 'always'")
+        self.factorizer, self.policy = factorizer, policy
+        self.rtol, self.max_iterations = rtol, max_iterations
+        self.factored_weights = None     # the viscosity weights of the current factor
+
+    def refactor(self, A: sp.spmatrix, weights: np.ndarray | None = None) -> float:
+        t0 = time.perf_counter()
+        self.factored_weights = None
+        self.factorizer.factor(A)       # may raise ArithmeticError (not positive definite)
+        self.factored_weights = None if weights is None else weights.copy()
+        return time.perf_counter() - t0
+
+    def solve(self, A: sp.spmatrix, b: np.ndarray, x0: np.ndarray | None = None,
+              weights: np.ndarray | None = None) -> tuple[np.ndarray, SolveReport]:
+        report = SolveReport()
+        if self.factored_weights is None or self.policy == "always":
+            report.factor_seconds = self.refactor(A, weights)
+            report.refactored = True
+        elif weights is not None and np.array_equal(weights, self.factored_weights):
+            pass
+        else:
+            t0 = time.perf_counter()
+            x, iterations, ok = _pcg(A, b, self.factorizer.solve, x0, self.rtol,
+                                     self.max_iterations)
+            report.solve_seconds = time.perf_counter() - t0
+            report.iterations = iterations
+            if ok:
+                return x, report
+            report.factor_seconds = self.refactor(A, weights)
+            report.refactored = True
+        t0 = time.perf_counter()
+        x = self.factorizer.solve(b)
+        report.solve_seconds += time.perf_counter() - t0
+        return x, report
+
+
+def _pcg(A, b, precondition, x0, rtol, max_iterations):
+    """Preconditioned conjugate gradients; returns (x, iterations, converged)."""
+    bnorm = np.linalg.norm(b)
+    if bnorm == 0.0:
+        return np.zeros_like(b), 0, True
+    x = precondition(b) if x0 is None else x0.copy()
+    r = b - A @ x
+    if np.linalg.norm(r) <= rtol * bnorm:
+        return x, 0, True
+    z = precondition(r)
+    p = z.copy()
+    rz = r @ z
+    for k in range(1, max_iterations + 1):
+        Ap = A @ p
+        alpha = rz / (p @ Ap)
+        x += alpha * p
+        r -= alpha * Ap
+        if np.linalg.norm(r) <= rtol * bnorm:
+            return x, k, True
+        z = precondition(r)
+        rz_new = r @ z
+        p = z + (rz_new / rz) * p
+        rz = rz_new
+    return x, max_iterations, False

@@ -1,0 +1,296 @@
+"""Stokes flow at infinite Prandtl number in streamfunction form.
+
+With u = d(psi)/dz and w = -d(psi)/dx (so the velocity is divergence-free by
+construction), taking the curl of the Stokes equations
+
+    -grad p + div(eta (grad u + grad u^T)) + Ra T z_hat = 0
+
+removes the pressure and leaves one fourth-order equation for psi,
+
+    (d_zz - d_xx)[eta (psi_zz - psi_xx)] + 4 d_xz[eta psi_xz] = Ra dT/dx,      (1)
+
+which for constant viscosity is the biharmonic equation lap^2 psi = Ra dT/dx.
+
+Discretisation (see ``convsim.model.grid``): psi on the cell corners (nodes), eta at
+both the nodes and the cell centres.  With the node operator
+L psi = (psi_zz - psi_xx) (three-point stencils) and the cell operator
+B psi = psi_xz (the four corners of a cell), equation (1) becomes
+
+    A psi = (L^T diag(w eta_node) L + 4 B^T diag(eta_cell) B) psi = Ra (dT/dx)_node
+
+which is the quadrature of the viscous dissipation integral: A is symmetric
+positive definite.  Walls are impermeable (psi = 0).  Free-slip walls have zero
+shear stress, eta (psi_zz - psi_xx) = 0, so only interior nodes carry a row of L.
+No-slip walls have psi_z = 0; the mirror ghost psi(-dz) = psi(dz) gives
+psi_zz = 2 psi_1 / dz^2 on the wall, and those wall rows enter with half weight
+w = 1/2 (which keeps A symmetric).  Periodic sides wrap the x index.
+
+For constant viscosity and free-slip top and bottom, A equals the square of the
+five-point Laplacian exactly, so a sine/Fourier transform solves it with no
+factorisation (``TransformSolver``).  Otherwise the matrix is factorised (see
+``convsim.model.linsolve``) and its values are refilled from eta through a fixed map
+(``StokesOperator.matrix_from_weights``), keeping the sparsity pattern.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.fft as sfft
+import scipy.sparse as sp
+
+from convsim.model.grid import Grid
+
+__all__ = ["StokesOperator", "TransformSolver", "buoyancy_rhs", "face_velocities",
+           "node_velocities"]
+
+FLOW_CONDITIONS = ("free-slip", "no-slip")
+
+
+@dataclass(frozen=True)
+class _Rows:
+    """Rows of a difference operator as padded (row, column, value) arrays."""
+
+    cols: np.ndarray   # (nrows, width) unknown index or -1
+    vals: np.ndarray   # (nrows, width)
+
+    def matrix(self, n_unknowns: int) -> sp.csr_matrix:
+        rows = np.repeat(np.arange(self.cols.shape[0]), self.cols.shape[1])
+        c = self.cols.ravel()
+        keep = c >= 0
+        return sp.csr_matrix((self.vals.ravel()[keep], (rows[keep], c[keep])),
+                             shape=(self.cols.shape[0], n_unknowns))
+
+
+class StokesOperator:
+    """Assembly of the streamfunction matrix A(eta) on a grid, for given boundaries.
+
+    Parameters
+    ----------
+    grid : Grid
+    top, bottom : {"free-slip", "no-slip"}
+        Mechanical condition on z = 1 and z = 0.
+
+    Attributes
+    ----------
+    n_unknowns : int
+        Number of free streamfunction nodes.
+    node_index : ndarray of int, shape (nz + 1, nx + 1)
+        Unknown number of each node, -1 where psi = 0 is imposed.
+    """
+
+    def __init__(self, grid: Grid, top: str = "free-slip", bottom: str = "free-slip"):
+        for name, value in (("top", top), ("bottom", bottom)):
+            if value not in FLOW_CONDITIONS:
+                raise ValueError(f"{name} = {value!r}: expected one of {FLOW_CONDITIONS}")
+        self.grid, self.top, self.bottom = grid, top, bottom
+        nx, nz = grid.nx, grid.nz
+        ncols = nx if grid.periodic else nx - 1
+        self._i0 = 0 if grid.periodic else 1
+        index = -np.ones(grid.node_shape, dtype=np.int64)
+        index[1:nz, self._i0:self._i0 + ncols] = np.arange((nz - 1) * ncols).reshape(nz - 1, ncols)
+        if grid.periodic:
+            index[:, nx] = index[:, 0]
+        self.node_index = index
+        self.n_unknowns = (nz - 1) * ncols
+        self._build_rows()
+        self._build_value_map()
+
+    # -- assembly ---------------------------------------------------------------------------
+    def _node(self, j, i):
+        """Unknown index of node (j, i) with periodic wrap; -1 on a wall."""
+        g = self.grid
+        if g.periodic:
+            i = np.mod(i, g.nx)
+        ok = (i >= 0) & (i <= g.nx) & (j >= 0) & (j <= g.nz)
+        out = -np.ones(np.broadcast(j, i).shape, dtype=np.int64)
+        jj, ii = np.broadcast_arrays(j, i)
+        out[ok] = self.node_index[jj[ok], ii[ok]]
+        return out
+
+    def _build_rows(self):
+        g = self.grid
+        dx2, dz2 = g.dx ** 2, g.dz ** 2
+        # rows of L: interior nodes, then no-slip wall nodes
+        jj, ii = np.nonzero(self.node_index >= 0)
+        if g.periodic:
+            keep = ii < g.nx
+            jj, ii = jj[keep], ii[keep]
+        order = np.argsort(self.node_index[jj, ii])
+        jj, ii = jj[order], ii[order]
+        c = self._node
+        cols = np.stack([c(jj, ii), c(jj - 1, ii), c(jj + 1, ii), c(jj, ii - 1), c(jj, ii + 1)], 1)
+        vals = np.tile([-2.0 / dz2 + 2.0 / dx2, 1.0 / dz2, 1.0 / dz2, -1.0 / dx2, -1.0 / dx2],
+                       (len(jj), 1))
+        weights = [np.ones(len(jj))]
+        row_j, row_i = [jj], [ii]
+        wall_i = np.arange(g.nx) if g.periodic else np.arange(1, g.nx)
+        for wall, j_wall, j_in in (("bottom", 0, 1), ("top", g.nz, g.nz - 1)):
+            if getattr(self, wall) != "no-slip":
+                continue
+            wc = np.full((len(wall_i), 5), -1, dtype=np.int64)
+            wc[:, 0] = c(np.full_like(wall_i, j_in), wall_i)
+            wv = np.zeros((len(wall_i), 5))
+            wv[:, 0] = 2.0 / dz2
+            cols = np.vstack([cols, wc])
+            vals = np.vstack([vals, wv])
+            weights.append(np.full(len(wall_i), 0.5))
+            row_j.append(np.full_like(wall_i, j_wall))
+            row_i.append(wall_i)
+        vals = np.where(cols >= 0, vals, 0.0)
+        self._L = _Rows(cols, vals)
+        self._L_weight = np.concatenate(weights)
+        self._L_node = (np.concatenate(row_j), np.concatenate(row_i))
+        # rows of B: every cell, psi_xz from its four corners
+        cj, ci = np.meshgrid(np.arange(g.nz), np.arange(g.nx), indexing="ij")
+        cj, ci = cj.ravel(), ci.ravel()
+        bcols = np.stack([c(cj, ci), c(cj, ci + 1), c(cj + 1, ci), c(cj + 1, ci + 1)], 1)
+        s = 1.0 / (g.dx * g.dz)
+        bvals = np.where(bcols >= 0, np.array([s, -s, -s, s]), 0.0)
+        self._B = _Rows(bcols, bvals)
+
+    def _build_value_map(self):
+        """A sparse map M with A.data = M @ [w eta_L ; 4 eta_cell], and A's fixed pattern."""
+        n = self.n_unknowns
+        blocks_r, blocks_c, blocks_v = [], [], []
+        offset = 0
+        for rows in (self._L, self._B):
+            cols, vals = rows.cols, rows.vals
+            nr, width = cols.shape
+            a = np.repeat(cols, width, axis=1)               # (nr, width^2)
+            b = np.tile(cols, (1, width))
+            v = np.repeat(vals, width, axis=1) * np.tile(vals, (1, width))
+            r = np.repeat(np.arange(nr) + offset, width * width).reshape(nr, width * width)
+            keep = (a >= 0) & (b >= 0) & (v != 0)
+            blocks_r.append(a[keep] * n + b[keep])
+            blocks_c.append(r[keep])
+            blocks_v.append(v[keep])
+            offset += nr
+        key = np.concatenate(blocks_r)
+        pattern, position = np.unique(key, return_inverse=True)
+        self._n_weights = offset
+        self.value_map = sp.csr_matrix(
+            (np.concatenate(blocks_v), (position, np.concatenate(blocks_c))),
+            shape=(len(pattern), offset))
+        self._pattern_rows = pattern // n
+        self._pattern_cols = pattern % n
+        # CSR structure of A (pattern sorted by row then column)
+        self._indptr = np.searchsorted(self._pattern_rows, np.arange(n + 1)).astype(np.int32)
+        self._indices = self._pattern_cols.astype(np.int32)
+
+    def viscosity_weights(self, eta_node: np.ndarray, eta_cell: np.ndarray) -> np.ndarray:
+        """The weights [w eta at the L rows ; 4 eta_cell] that the value map multiplies."""
+        jn, in_ = self._L_node
+        return np.concatenate([self._L_weight * eta_node[jn, in_], 4.0 * eta_cell.ravel()])
+
+    def matrix(self, eta_node: np.ndarray, eta_cell: np.ndarray) -> sp.csr_matrix:
+        """The symmetric positive definite matrix A(eta), shape (n_unknowns, n_unknowns).
+
+        Parameters
+        ----------
+        eta_node : ndarray, shape (nz + 1, nx + 1)
+            Viscosity at the corners.
+        eta_cell : ndarray, shape (nz, nx)
+            Viscosity at the cell centres.
+        """
+        return self.matrix_from_weights(self.viscosity_weights(eta_node, eta_cell))
+
+    def matrix_from_weights(self, weights: np.ndarray) -> sp.csr_matrix:
+        """A from viscosity weights (``viscosity_weights``).
+
+        A is linear in the weights, so this also gives dA for a change of the weights.
+        """
+        n = self.n_unknowns
+        return sp.csr_matrix((self.value_map @ weights, self._indices.copy(), self._indptr.copy()),
+                             shape=(n, n))
+
+    # -- vectors ----------------------------------------------------------------------------
+    def rhs(self, temperature: np.ndarray, rayleigh: float) -> np.ndarray:
+        """Right-hand side Ra (dT/dx) at the unknown nodes, shape (n_unknowns,)."""
+        return self.from_nodes(buoyancy_rhs(self.grid, temperature, rayleigh))
+
+    def to_nodes(self, solution: np.ndarray) -> np.ndarray:
+        """Scatter an unknown vector onto the full node array (zeros on walls)."""
+        psi = np.zeros(self.grid.node_shape)
+        mask = self.node_index >= 0
+        psi[mask] = solution[self.node_index[mask]]
+        return psi
+
+    def from_nodes(self, psi: np.ndarray) -> np.ndarray:
+        """Gather the unknowns from a full node array."""
+        out = np.empty(self.n_unknowns)
+        mask = self.node_index >= 0
+        out[self.node_index[mask]] = psi[mask]
+        return out
+
+
+def buoyancy_rhs(grid: Grid, temperature: np.ndarray, rayleigh: float) -> np.ndarray:
+    """Ra dT/dx on the nodes, shape (nz + 1, nx + 1), from cell temperatures (nz, nx).
+
+    dT/dx at a node is the mean of the x-differences of the two cell rows that meet
+    there; zero on the walls (where psi is imposed anyway).
+    """
+    g = grid
+    if g.periodic:
+        diff = (temperature - np.roll(temperature, 1, axis=1)) / g.dx   # at x_i, i = 0..nx-1
+        diff = np.concatenate([diff, diff[:, :1]], axis=1)
+    else:
+        diff = np.zeros((g.nz, g.nx + 1))
+        diff[:, 1:-1] = (temperature[:, 1:] - temperature[:, :-1]) / g.dx
+    out = np.zeros(g.node_shape)
+    out[1:-1] = 0.5 * (diff[1:] + diff[:-1])
+    return rayleigh * out
+
+
+def face_velocities(grid: Grid, psi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Face velocities from the node streamfunction.
+
+    u = d(psi)/dz on the vertical faces, shape (nz, nx + 1);
+    w = -d(psi)/dx on the horizontal faces, shape (nz + 1, nx).
+    The discrete divergence of (u, w) in every cell is zero to round-off.
+    """
+    u = (psi[1:, :] - psi[:-1, :]) / grid.dz
+    w = -(psi[:, 1:] - psi[:, :-1]) / grid.dx
+    return u, w
+
+
+def node_velocities(grid: Grid, psi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Velocity (u, w) at the cell centres, each (nz, nx), averaged from the faces."""
+    u, w = face_velocities(grid, psi)
+    return 0.5 * (u[:, 1:] + u[:, :-1]), 0.5 * (w[1:] + w[:-1])
+
+
+class TransformSolver:
+    """Exact fast solver of A psi = f for constant viscosity and free-slip top and bottom.
+
+    Then A = eta (D_xx + D_zz)^2 with the five-point Laplacian on psi = 0 walls, which
+    the type-I sine transform (walls) or the Fourier transform (periodic x)
+    diagonalises: psi_hat = f_hat / (eta (lambda_x + lambda_z)^2).  No factorisation.
+    """
+
+    def __init__(self, operator: StokesOperator, viscosity: float = 1.0):
+        g = operator.grid
+        if operator.top != "free-slip" or operator.bottom != "free-slip":
+            raise ValueError("the transform solver needs free-slip top and bottom")
+        self.operator = operator
+        self.viscosity = float(viscosity)
+        mz = np.arange(1, g.nz)
+        lam_z = -(4.0 / g.dz ** 2) * np.sin(np.pi * mz / (2 * g.nz)) ** 2
+        if g.periodic:
+            mx = np.arange(g.nx // 2 + 1)
+            lam_x = -(4.0 / g.dx ** 2) * np.sin(np.pi * mx / g.nx) ** 2
+        else:
+            mx = np.arange(1, g.nx)
+            lam_x = -(4.0 / g.dx ** 2) * np.sin(np.pi * mx / (2 * g.nx)) ** 2
+        self._denominator = self.viscosity * (lam_z[:, None] + lam_x[None, :]) ** 2
+        self._shape = (g.nz - 1, g.nx if g.periodic else g.nx - 1)
+
+    def solve(self, rhs: np.ndarray) -> np.ndarray:
+        f = rhs.reshape(self._shape)
+        if self.operator.grid.periodic:
+            fh = sfft.dst(sfft.rfft(f, axis=1), type=1, axis=0)
+            return sfft.irfft(sfft.idst(fh / self._denominator, type=1, axis=0),
+                              n=self._shape[1], axis=1).ravel()
+        fh = sfft.dstn(f, type=1)
+        return sfft.idstn(fh / self._denominator, type=1).ravel()

@@ -1,0 +1,1 @@
+"""Studies: the published cases, the benchmark harness, parameter sweeps."""

@@ -1,0 +1,487 @@
+"""Benchmark harness: published steady cases on a series of grids, side by side on local cores.
+
+For each case (a config in configs/, also shipped as package data in
+convsim/studies/cases/) and each grid n, one run ``api.run(cfg.replace(domain__nx=n,
+domain__nz=n))`` to steady state records Nu (top and bottom), vrms, q1, q2,
+wall time, steps, time per phase and peak memory.  From the three finest grids
+each quantity gets an observed order, a Richardson-extrapolated value and a
+grid convergence index (``convsim.analysis.convergence``); both the finest-grid and the
+extrapolated values are compared with the published ones
+(``convsim.studies.published``) against our acceptance tolerances.
+
+Runs go to a ``concurrent.futures.ProcessPoolExecutor`` (spawned workers, one
+run per worker process, so each run's peak memory is its own).  Each worker
+first makes a short untimed warm-up run on an 8 x 8 grid, loading the compiled
+kernels, so the timed run measures the solver and not the start-up.
+
+Peak memory: ``resource.getrusage(RUSAGE_SELF).ru_maxrss`` of the worker
+process after the run (the high-water resident set size, interpreter and
+libraries included), and the growth of that high-water mark over the run
+(the memory the run itself added above the warmed-up worker).
+
+Nothing is printed here; the CLI formats (``convsim.studies.bench_report``).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import hashlib
+import logging
+import math
+import os
+import platform
+import subprocess
+import sys
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from convsim import __version__
+from convsim.analysis import convergence as conv
+from convsim.errors import ConfigError
+from convsim.studies.published import ACCEPTANCE, CASE_SETUP, PUBLISHED, QUANTITIES, known_cases
+
+__all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
+           "BenchResult", "case_config_path", "repo_configs_dir", "package_cases_dir",
+           "parse_grids", "parse_cases", "plan", "run_task", "run_bench", "analyse_case",
+           "provenance"]
+
+log = logging.getLogger(__name__)
+
+DEFAULT_GRIDS = (32, 64, 128)
+MEMORY_METHOD = ("resource.getrusage(RUSAGE_SELF).ru_maxrss of the worker process (one run per "
+                 "spawned process): peak_rss_mib is the high-water resident set size after the "
+                 "run, interpreter and libraries included; run_rss_mib is its growth over the "
+                 "run, above the warmed-up worker")
+WARMUP = "an untimed 5-step run on an 8 x 8 grid in each worker first (loads compiled kernels)"
+
+
+# -- where the case configs live ----------------------------------------------------------------
+def package_cases_dir() -> Path:
+    """The case configs shipped inside the package (convsim/studies/cases/)."""
+    return Path(__file__).resolve().parent / "cases"
+
+
+def repo_configs_dir() -> Path | None:
+    """The repository's configs/ folder beside the package, if this is a source checkout."""
+    path = Path(__file__).resolve().parents[2] / "configs"
+    return path if path.is_dir() else None
+
+
+def case_config_path(case: str) -> Path:
+    """The config file of a published case: configs/ of the checkout, else the package copy."""
+    if case not in PUBLISHED:
+        raise ConfigError(f"case {case!r}: unknown; known cases: {', '.join(known_cases())}")
+    name = f"benchmark_case_{case}.toml"
+    repo = repo_configs_dir()
+    if repo is not None and (repo / name).is_file():
+        return repo / name
+    path = package_cases_dir() / name
+    if not path.is_file():
+        raise ConfigError(f"case {case!r}: config {name} found neither in configs/ nor in "
+                          f"{package_cases_dir()}")
+    return path
+
+
+# -- command-line style inputs --------------------------------------------------------------------
+def _grid_limits() -> tuple[int, int]:
+    from convsim.config import Domain
+    meta = {f.name: f.metadata for f in dataclasses.fields(Domain)}["nx"]
+    return int(meta["ge"]), int(meta["le"])
+
+
+def parse_grids(text) -> tuple:
+    """'32,64,128' (or a sequence of ints) -> sorted unique tuple; ConfigError on bad input."""
+    lo, hi = _grid_limits()
+    items = text.split(",") if isinstance(text, str) else list(text)
+    try:
+        grids = sorted({int(str(v).strip()) for v in items if str(v).strip()})
+    except ValueError:
+        raise ConfigError(f"--grids {text!r}: expected cell counts separated by commas, "
+                          "e.g. 32,64,128") from None
+    if not grids or any(n < lo or n > hi for n in grids):
+        raise ConfigError(f"--grids {text!r}: each grid must be an integer from {lo} to {hi}")
+    return tuple(grids)
+
+
+def parse_cases(names) -> tuple:
+    """Case names (empty: all known cases, in order); ConfigError names an unknown one."""
+    if not names:
+        return known_cases()
+    out = []
+    for name in names:
+        name = name.strip().lower()
+        if name not in PUBLISHED:
+            raise ConfigError(f"case {name!r}: unknown; known cases: {', '.join(known_cases())}")
+        if name not in out:
+            out.append(name)
+    return tuple(out)
+
+
+# -- one run -------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class BenchTask:
+    case: str
+    grid: int
+    config_path: str
+    overrides: tuple = ()
+    warmup: bool = True
+
+
+@dataclass
+class BenchRow:
+    """One case on one grid."""
+
+    case: str
+    grid: int
+    h: float                       # grid spacing 1 / nz (unit depth)
+    status: str
+    message: str
+    nusselt: float                 # top
+    nusselt_bottom: float
+    vrms: float
+    q1: float
+    q2: float
+    wall_seconds: float
+    steps: int
+    time: float
+    phase_seconds: dict
+    peak_rss_mib: float
+    run_rss_mib: float
+    upwelling: str                 # side of the hot upwelling: "x=0" or "x=1"
+    stage_steps: list              # [(Ra, steps)] per continuation stage and the target
+    relative_error: dict = field(default_factory=dict)
+
+    @property
+    def steps_per_second(self) -> float:
+        return self.steps / self.wall_seconds if self.wall_seconds > 0 else math.nan
+
+    def as_dict(self) -> dict:
+        d = dataclasses.asdict(self)
+        d["steps_per_second"] = self.steps_per_second
+        return d
+
+
+def _maxrss_mib() -> float:
+    import resource
+    kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss   # KiB on Linux
+    return kib / (1024.0 * 1024.0) if sys.platform == "darwin" else kib / 1024.0
+
+
+def _stage_steps(series: dict) -> list:
+    ra = series.get("rayleigh")
+    if ra is None or len(ra) == 0:
+        return []
+    out = []
+    for value in ra:
+        if out and out[-1][0] == float(value):
+            out[-1][1] += 1
+        else:
+            out.append([float(value), 1])
+    return [tuple(v) for v in out]
+
+
+def run_task(task: BenchTask) -> BenchRow:
+    """Run one case on one grid (the worker function; top level so that it pickles)."""
+    from convsim import api
+    from convsim.config import load_config
+    from convsim.model.linsolve import limit_blas_threads
+    limit_blas_threads(1)          # the parallel runs are the parallelism (two BLAS pools spin)
+    cfg = load_config(task.config_path, list(task.overrides))
+    if task.warmup:
+        warm = cfg.replace(domain__nx=8, domain__nz=8, stop__steady=False, stop__max_steps=5,
+                           stop__end_time=0.0, start__continuation=())
+        api.run(warm)
+    before = _maxrss_mib()
+    cfg = cfg.replace(domain__nx=task.grid, domain__nz=task.grid)
+    result = api.run(cfg)
+    peak = _maxrss_mib()
+    T = result.temperature
+    mid = T.shape[0] // 2
+    upwelling = "x=0" if T[mid, 0] >= T[mid, -1] else "x=1"
+    q = [float(v) for v in result.corner_gradients]
+    row = BenchRow(case=task.case, grid=task.grid, h=1.0 / task.grid, status=result.status,
+                   message=result.message, nusselt=float(result.nusselt_top),
+                   nusselt_bottom=float(result.nusselt_bottom), vrms=float(result.vrms),
+                   q1=q[0], q2=q[1], wall_seconds=float(result.wall_seconds),
+                   steps=int(result.steps), time=float(result.time),
+                   phase_seconds={k: float(v) for k, v in result.phase_seconds.items()},
+                   peak_rss_mib=peak, run_rss_mib=max(0.0, peak - before), upwelling=upwelling,
+                   stage_steps=_stage_steps(result.series))
+    row.relative_error = {qn: (getattr(row, qn) - pv.value) / pv.value
+                          for qn, pv in PUBLISHED[task.case].items()}
+    return row
+
+
+def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
+    nan = math.nan
+    log.error("%s grid %d failed: %s", task.case, task.grid, exc)
+    return BenchRow(case=task.case, grid=task.grid, h=1.0 / task.grid, status="error",
+                    message=f"{type(exc).__name__}: {exc}", nusselt=nan, nusselt_bottom=nan,
+                    vrms=nan, q1=nan, q2=nan, wall_seconds=nan, steps=0, time=nan,
+                    phase_seconds={}, peak_rss_mib=nan, run_rss_mib=nan, upwelling="",
+                    stage_steps=[], relative_error={q: nan for q in QUANTITIES})
+
+
+def plan(cases, grids, overrides=(), warmup=True) -> list:
+    """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy."""
+    cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0}   # rough relative cost, our guess
+    tasks = [BenchTask(c, n, str(case_config_path(c)), tuple(overrides), warmup)
+             for c in cases for n in grids]
+    return sorted(tasks, key=lambda t: -(t.grid ** 3) * cost.get(t.case, 1.0))
+
+
+# -- analysis ----------------------------------------------------------------------------------
+@dataclass
+class Check:
+    """One pass/fail test of a case against our acceptance (``published.ACCEPTANCE``)."""
+
+    quantity: str
+    kind: str            # steady | finest | extrapolated | order
+    value: float
+    limit: float
+    passed: bool
+    note: str = ""
+
+
+@dataclass
+class CaseSummary:
+    case: str
+    title: str
+    setup: str
+    config_path: str
+    config_sha256: str
+    rayleigh: float
+    continuation: tuple
+    settings: dict
+    rows: list
+    convergence: dict            # quantity -> ConvergenceEstimate or None
+    published: dict              # quantity -> value
+    checks: list
+    notes: list
+
+    @property
+    def passed(self) -> bool:
+        return all(c.passed for c in self.checks)
+
+    def _per_quantity(self, attr) -> dict:
+        return {q: (getattr(e, attr) if e is not None else math.nan)
+                for q, e in self.convergence.items()}
+
+    @property
+    def observed_order(self) -> dict:
+        return self._per_quantity("order")
+
+    @property
+    def extrapolated(self) -> dict:
+        return self._per_quantity("extrapolated")
+
+    @property
+    def gci_fine(self) -> dict:
+        return self._per_quantity("gci_fine")
+
+    @property
+    def extrapolated_error(self) -> dict:
+        return {q: (v - self.published[q]) / self.published[q] if math.isfinite(v) else math.nan
+                for q, v in self.extrapolated.items()}
+
+    @property
+    def finest(self):
+        return max(self.rows, key=lambda r: r.grid) if self.rows else None
+
+    def as_dict(self) -> dict:
+        return dict(
+            case=self.case, title=self.title, setup=self.setup, config=self.config_path,
+            config_sha256=self.config_sha256, rayleigh=self.rayleigh,
+            continuation=list(self.continuation), settings=self.settings,
+            rows=[r.as_dict() for r in sorted(self.rows, key=lambda r: r.grid)],
+            observed_order=self.observed_order, extrapolated=self.extrapolated,
+            extrapolated_relative_error=self.extrapolated_error, gci_fine=self.gci_fine,
+            convergence={q: (e.as_dict() if e is not None else None)
+                         for q, e in self.convergence.items()},
+            published=self.published,
+            published_citation={q: pv.citation for q, pv in PUBLISHED[self.case].items()},
+            checks=[dataclasses.asdict(c) for c in self.checks], passed=self.passed,
+            notes=self.notes)
+
+
+def _sci(v: float) -> str:
+    """1e5 for powers of ten, else the shortest %g."""
+    if v > 0 and float(f"1e{round(math.log10(v))}") == v:
+        return f"1e{round(math.log10(v))}"
+    return f"{v:g}"
+
+
+def _sha256(path) -> str:
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummary:
+    """Convergence study, comparison and checks of one case from its rows."""
+    from convsim.config import load_config, to_dict
+    cfg = load_config(config_path, list(overrides))
+    rows = sorted(rows, key=lambda r: r.grid)
+    published = {q: pv.value for q, pv in PUBLISHED[case].items()}
+    notes, checks = [], []
+    cont = tuple(cfg.start.continuation)
+    if cont:
+        notes.append("the config chains continuation stages itself (start.continuation = "
+                     f"{list(cont)}): each run first reaches steady state at Ra = "
+                     + ", then ".join(_sci(r) for r in cont)
+                     + f" on the same grid, then continues to Ra = {_sci(cfg.physics.rayleigh)}; "
+                     "wall time and steps include those stages")
+    for r in rows:
+        checks.append(Check("all", "steady", float(r.grid), math.nan, r.status == "steady",
+                            f"grid {r.grid}: {r.status}: {r.message}"))
+        if r.upwelling == "x=1":
+            notes.append(f"grid {r.grid}: the upwelling is at x = 1, not x = 0 as in the "
+                         "published solution; q1 and q2 change roles")
+    steady_rows = [r for r in rows if r.status == "steady"]
+    if len(steady_rows) < len(rows):
+        notes.append("runs that did not reach steady state are left out of the convergence study")
+    convergence = {}
+    for q in QUANTITIES:
+        if len(steady_rows) >= 3:
+            convergence[q] = conv.estimate_finest([r.h for r in steady_rows],
+                                                  [getattr(r, q) for r in steady_rows])
+        else:
+            convergence[q] = None
+    if len(steady_rows) < 3:
+        notes.append(f"{len(steady_rows)} steady grid(s): an observed order and an extrapolated "
+                     "value need three")
+    finest = rows[-1] if rows else None
+    for q in QUANTITIES:
+        acc = ACCEPTANCE[q]
+        if finest is not None:
+            err = finest.relative_error[q]
+            checks.append(Check(q, "finest", abs(err), acc.finest, abs(err) <= acc.finest,
+                                f"grid {finest.grid}"))
+        est = convergence[q]
+        if est is None:
+            checks.append(Check(q, "extrapolated", math.nan, acc.extrapolated, False,
+                                "fewer than three steady grids"))
+            continue
+        if math.isfinite(est.extrapolated):
+            err = abs(est.extrapolated - published[q]) / abs(published[q])
+            checks.append(Check(q, "extrapolated", err, acc.extrapolated,
+                                err <= acc.extrapolated, est.behaviour))
+        else:
+            checks.append(Check(q, "extrapolated", math.nan, acc.extrapolated, False,
+                                est.note or est.behaviour))
+        if acc.min_order > 0:
+            ok = math.isfinite(est.order) and est.order >= acc.min_order
+            checks.append(Check(q, "order", est.order, acc.min_order, ok, est.behaviour))
+    settings = to_dict(cfg)
+    return CaseSummary(case=case, title=settings.get("title", case), setup=CASE_SETUP[case],
+                       config_path=str(config_path), config_sha256=_sha256(config_path),
+                       rayleigh=float(cfg.physics.rayleigh), continuation=cont,
+                       settings=settings, rows=rows, convergence=convergence,
+                       published=published, checks=checks, notes=notes)
+
+
+# -- the whole bench -----------------------------------------------------------------------------
+def provenance(command: str = "") -> dict:
+    """Machine and software versions of this bench run."""
+    import numpy
+    import scipy
+    versions = {"python": platform.python_version(), "numpy": numpy.__version__,
+                "scipy": scipy.__version__, "convsim": __version__}
+    for name in ("numba", "h5py", "matplotlib"):
+        try:
+            versions[name] = __import__(name).__version__
+        except Exception:                       # pragma: no cover - optional in the report
+            versions[name] = "not installed"
+    cpu = platform.processor() or ""
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.lower().startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    commit = ""
+    try:
+        root = Path(__file__).resolve().parents[2]
+        commit = subprocess.run(["git", "-C", str(root), "describe", "--always", "--dirty"],
+                                capture_output=True, text=True, timeout=10).stdout.strip()
+    except Exception:
+        pass
+    return dict(date=_dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                platform=platform.platform(), machine=platform.machine(), cpu=cpu,
+                cpu_count=os.cpu_count(), versions=versions, git=commit, command=command)
+
+
+@dataclass
+class BenchResult:
+    cases: list                  # CaseSummary, in the order asked
+    grids: tuple
+    jobs: int
+    overrides: tuple
+    wall_seconds: float
+    provenance: dict
+    memory_method: str = MEMORY_METHOD
+    warmup: str = WARMUP
+
+    @property
+    def passed(self) -> bool:
+        return all(c.passed for c in self.cases)
+
+    def as_dict(self) -> dict:
+        return dict(grids=list(self.grids), jobs=self.jobs, overrides=list(self.overrides),
+                    wall_seconds=self.wall_seconds, passed=self.passed,
+                    memory_method=self.memory_method, warmup=self.warmup,
+                    acceptance={q: dataclasses.asdict(a) for q, a in ACCEPTANCE.items()},
+                    acceptance_note="our acceptance tolerances, not published numbers",
+                    provenance=self.provenance, cases=[c.as_dict() for c in self.cases])
+
+
+def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=(),
+              progress=None, command: str = "", warmup: bool = True) -> BenchResult:
+    """Run cases x grids on local cores and analyse them.
+
+    Parameters
+    ----------
+    cases : case names (empty: all known).
+    grids : cell counts n (each run on n x n).
+    jobs : worker processes (default ``os.cpu_count()``).
+    overrides : ``section.key=value`` strings applied to every case config.
+    progress : callable(BenchRow, done, total), optional, called as runs finish.
+    command : the command line, recorded in the provenance.
+
+    Returns
+    -------
+    BenchResult
+    """
+    import multiprocessing
+    import time
+    cases = parse_cases(cases)
+    grids = parse_grids(grids)
+    jobs = int(jobs or os.cpu_count() or 1)
+    if jobs < 1:
+        raise ConfigError(f"--jobs {jobs}: must be at least 1")
+    tasks = plan(cases, grids, overrides, warmup)
+    from convsim.config import load_config
+    for c in cases:                                  # bad overrides fail here, not in a worker
+        load_config(case_config_path(c), list(overrides))
+    t0 = time.perf_counter()
+    rows = []
+    ctx = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(max_workers=min(jobs, len(tasks)), mp_context=ctx,
+                             max_tasks_per_child=1) as pool:
+        futures = {pool.submit(run_task, t): t for t in tasks}
+        for fut in as_completed(futures):
+            try:
+                row = fut.result()
+            except Exception as exc:      # a crashed run is a row with status "error"
+                row = _error_row(futures[fut], exc)
+            rows.append(row)
+            log.info("%s grid %d: %s in %.1f s", row.case, row.grid, row.status,
+                     row.wall_seconds)
+            if progress is not None:
+                progress(row, len(rows), len(tasks))
+    wall = time.perf_counter() - t0
+    summaries = [analyse_case(c, [r for r in rows if r.case == c], case_config_path(c),
+                              overrides) for c in cases]
+    return BenchResult(cases=summaries, grids=grids, jobs=jobs, overrides=tuple(overrides),
+                       wall_seconds=wall, provenance=provenance(command))

@@ -1,0 +1,157 @@
+"""One case of a sweep: its config, its run on a worker, its record.
+
+``run_case(CaseTask) -> record`` is what the back ends execute (a plain, picklable
+function of plain data); it never raises: an exception becomes status ``failed``
+with the message in ``error``.  Besides the run's own diagnostics the record
+holds what the regime classification needs (``convsim.analysis.fitting``): the rms
+velocity of the interior band and the viscosity contrast of the case.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import logging
+import os
+import socket
+import time
+import tomllib
+import traceback
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from convsim.config import Config, parse_config, to_dict, to_toml
+from convsim.studies.sweep_table import FAILED
+
+__all__ = ["CaseTask", "run_case", "case_config", "config_digest", "interior_rms_velocity",
+           "law_viscosity_contrast", "INTERIOR_BAND", "base_record"]
+
+log = logging.getLogger(__name__)
+
+INTERIOR_BAND = (0.2, 0.8)   # depth band of interior_vrms, z in layer depths (our choice)
+
+
+def case_config(base: Config, params, fixed=()) -> Config:
+    """The base config with the fixed keys and the case's parameters set, fully validated."""
+    data = to_dict(base)
+    for key, value in list(fixed) + list(params):
+        section, name = key.split(".")
+        data.setdefault(section, {})[name] = value
+    return parse_config(data, source="case")
+
+
+def config_digest(config: Config) -> str:
+    """SHA-256 (first 16 hex digits) of the config's full TOML text."""
+    return hashlib.sha256(to_toml(config).encode("utf-8")).hexdigest()[:16]
+
+
+# -- one case (runs on a worker) ---------------------------------------------------------------
+def interior_rms_velocity(grid, psi: np.ndarray, band=INTERIOR_BAND) -> float:
+    """rms velocity of the cells whose centres lie in the depth band z0 <= z <= z1.
+
+    v_int = sqrt(mean over those cells of (u_c^2 + w_c^2)), with u_c, w_c the
+    cell-centre averages of the face velocities; units kappa / d.
+    """
+    from convsim.model.stokes import node_velocities
+    u, w = node_velocities(grid, psi)
+    z = grid.z_cell
+    rows = (z >= band[0]) & (z <= band[1])
+    if not rows.any():
+        return float("nan")
+    return float(np.sqrt(np.mean(u[rows] ** 2 + w[rows] ** 2)))
+
+
+def law_viscosity_contrast(law, t_low: float, t_high: float, samples: int = 65) -> float:
+    """max / min of eta(T, z) over t_low <= T <= t_high, 0 <= z <= 1 (sampled, corners included).
+
+    Rounded to 12 significant digits, so that a contrast of 1e3 set in the config is
+    1000.0 here and not 999.9999999999998 (thresholds compare against it).
+    """
+    from convsim.model.rheology import viscosity
+    T, z = np.meshgrid(np.linspace(t_low, t_high, samples), np.linspace(0.0, 1.0, samples))
+    eta = viscosity(law, T, z)
+    return float(f"{eta.max() / eta.min():.12g}")
+
+
+@dataclass(frozen=True)
+class CaseTask:
+    """Everything a worker needs to run one case (plain, picklable data)."""
+
+    case_id: str
+    index: int
+    params: tuple
+    base_toml: str
+    fixed: tuple
+    run_file: str          # absolute path of the run file
+    run_file_name: str     # relative to the sweep folder, for the table
+    start_file: str = ""   # continuation: the run file to start from
+    started_from: str = ""
+    config_hash: str = ""
+    threads: int = 1       # BLAS threads on the worker (0: leave alone)
+
+
+def _limit_threads(n: int):
+    if n <= 0:
+        return None
+    from convsim.model.linsolve import limit_blas_threads
+    return limit_blas_threads(n)
+
+
+def base_record(task: CaseTask) -> dict:
+    rec = {"case_id": task.case_id, "index": task.index}
+    rec.update(dict(task.params))
+    rec.update(run_file=task.run_file_name, started_from=task.started_from,
+               config_hash=task.config_hash,
+               worker=f"{socket.gethostname()}:{os.getpid()}", error="", message="")
+    return rec
+
+
+def run_case(task: CaseTask) -> dict:
+    """Run one case and return its record; an exception becomes status 'failed', never raises."""
+    from convsim import api
+    t0 = time.perf_counter()
+    rec = base_record(task)
+    limiter = _limit_threads(task.threads)
+    try:
+        base = parse_config(tomllib.loads(task.base_toml), source="base config")
+        cfg = case_config(base, task.params, task.fixed)
+        rec.update(rayleigh=cfg.physics.rayleigh, nx=cfg.domain.nx, nz=cfg.domain.nz,
+                   aspect=cfg.domain.aspect, top_flow=cfg.boundaries.top_flow,
+                   viscosity_law=cfg.viscosity.law)
+        if task.start_file:
+            cfg = cfg.replace(start__kind="snapshot", start__file=task.start_file,
+                              start__continuation=())
+        Path(task.run_file).parent.mkdir(parents=True, exist_ok=True)
+        result = api.run(cfg, task.run_file, overwrite=True)
+        rec.update(_result_columns(cfg, result))
+    except Exception as exc:          # any failure of one case is data, not a crash
+        rec.update(status=FAILED, error=f"{type(exc).__name__}: {exc}")
+        log.debug("case %s failed:\n%s", task.case_id, traceback.format_exc())
+    finally:
+        if limiter is not None:
+            limiter.unregister()
+    rec["case_seconds"] = time.perf_counter() - t0
+    return rec
+
+
+def _result_columns(cfg: Config, result) -> dict:
+    """The final diagnostics of a run as table columns."""
+    from convsim.model.rheology import ViscosityLaw
+    b = cfg.boundaries
+    if b.top_heat == "temperature" and b.bottom_heat == "temperature":
+        t_low, t_high = sorted((b.top_value, b.bottom_value))
+    else:
+        t_low, t_high = float(result.temperature.min()), float(result.temperature.max())
+    law = ViscosityLaw(**{f.name: getattr(cfg.viscosity, f.name)
+                          for f in dataclasses.fields(ViscosityLaw)})
+    eta = np.asarray(result.viscosity)
+    return dict(status=result.status, message=result.message,
+                nusselt_top=float(result.nusselt_top), nusselt_bottom=float(result.nusselt_bottom),
+                vrms=float(result.vrms), surface_vrms=float(result.surface_vrms),
+                interior_vrms=interior_rms_velocity(result.grid, result.psi),
+                mean_temperature=float(result.mean_temperature), steps=int(result.steps),
+                time=float(result.time), wall_seconds=float(result.wall_seconds),
+                viscosity_contrast=law_viscosity_contrast(law, t_low, t_high),
+                viscosity_contrast_field=float(eta.max() / eta.min()))
