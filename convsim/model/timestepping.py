@@ -33,9 +33,10 @@ import numpy as np
 from convsim.model import diagnostics as diag
 from convsim.model.energy import DiffusionSolver, ThermalBoundaries, advection
 from convsim.model.grid import Grid
-from convsim.model.linsolve import LaggedFactorSolver, SolveReport, make_factorizer, available_factorizers
+from convsim.model.linsolve import SolveReport
 from convsim.model.rheology import ViscosityLaw, viscosity
-from convsim.model.stokes import StokesOperator, TransformSolver, face_velocities
+from convsim.model.solvers import StokesProblem, make_stokes_solver
+from convsim.model.stokes import StokesOperator, face_velocities
 
 __all__ = ["ModelState", "StepReport", "Model", "MAX_REJECTIONS", "StepFailed"]
 
@@ -54,7 +55,7 @@ class ModelState:
     previous_temperature: np.ndarray | None = None   # T^{n-1}
     previous_tendency: np.ndarray | None = None      # N^{n-1}
     previous_dt: float = 0.0
-    factor_weights: np.ndarray | None = None         # viscosity weights of the Stokes factor
+    solver: dict = field(default_factory=dict)       # the Stokes solver's cache (opaque arrays)
 
 
 @dataclass
@@ -97,8 +98,9 @@ class Model:
         A TVD limiter name, or 'upwind'.
     time_scheme : {'sbdf2', 'euler'}
     cfl, max_dt : float
-    stokes_solver : {'auto', 'transform', 'cholmod', 'superlu'}
+    stokes_solver : 'auto' or a name of ``convsim.model.solvers.SOLVERS``
     factor_reuse : {'adaptive', 'always'}
+        For a factor back end: lag the factor as a CG preconditioner, or refactor.
     """
 
     def __init__(self, grid: Grid, rayleigh: float, thermal: ThermalBoundaries,
@@ -115,21 +117,9 @@ class Model:
         self.diffusion = DiffusionSolver(grid, thermal)
         self._x_node, self._z_node = grid.node_mesh()
         self._z_cell = grid.cell_mesh()[1]
-        transform_ok = law.is_constant and top_flow == bottom_flow == "free-slip"
-        if stokes_solver == "auto":
-            stokes_solver = "transform" if transform_ok else available_factorizers()[0]
-        if stokes_solver == "transform":
-            if not transform_ok:
-                from convsim.errors import ConfigError
-                raise ConfigError("numerics.stokes_solver = 'transform': needs constant viscosity "
-                                  "and free-slip top and bottom; allowed here: 'auto', 'cholmod', "
-                                  "'superlu'")
-            self._transform = TransformSolver(self.stokes)
-            self._lagged = None
-        else:
-            self._transform = None
-            self._lagged = LaggedFactorSolver(make_factorizer(stokes_solver), factor_reuse)
-        self.stokes_solver = stokes_solver
+        problem = StokesProblem(self.stokes, self.viscosities, uniform=law.is_constant)
+        self.flow_solver = make_stokes_solver(stokes_solver, problem, factor_reuse)
+        self.stokes_solver = self.flow_solver.name
 
     # -- pieces -----------------------------------------------------------------------------
     def viscosities(self, T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -140,66 +130,63 @@ class Model:
         t_node = self.grid.cell_to_node(T, tb_n, tt_n)
         return viscosity(self.law, t_node, self._z_node), viscosity(self.law, T, self._z_cell)
 
-    def restore_factor(self, weights: np.ndarray | None) -> None:
-        """Rebuild the Stokes factor a saved run was using (for a bit-for-bit restart)."""
-        if weights is not None and self._lagged is not None:
-            self._lagged.refactor(self.stokes.matrix_from_weights(weights), weights)
-
     def solve_flow(self, T: np.ndarray, psi_guess: np.ndarray | None = None
                    ) -> tuple[np.ndarray, SolveReport]:
         """Streamfunction (nz + 1, nx + 1) of the Stokes flow driven by T."""
-        b = self.stokes.rhs(T, self.rayleigh)
-        if self._transform is not None:
-            t0 = time.perf_counter()
-            x = self._transform.solve(b)
-            return self.stokes.to_nodes(x), SolveReport(solve_seconds=time.perf_counter() - t0)
-        eta_n, eta_c = self.viscosities(T)
-        weights = self.stokes.viscosity_weights(eta_n, eta_c)
-        A = self.stokes.matrix_from_weights(weights)
-        x0 = None if psi_guess is None else self.stokes.from_nodes(psi_guess)
-        x, report = self._lagged.solve(A, b, x0, weights)
-        return self.stokes.to_nodes(x), report
+        op = self.stokes
+        x0 = None if psi_guess is None else op.from_nodes(psi_guess)
+        x, report = self.flow_solver.solve(T, op.rhs(T, self.rayleigh), x0)
+        return op.to_nodes(x), report
 
     def linearised_flow(self, T: np.ndarray):
         """The streamfunction of T and its derivative with respect to T.
 
         Returns ``psi`` (nz + 1, nx + 1) and a function ``v -> dpsi`` giving the
         change of psi per unit change of T in direction v:
-        A dpsi = Ra dv/dx - (dA/deta . deta/dT v) psi, solved with one factor of A(T)
-        kept apart from the time stepper's (so restarts stay bit for bit).  Exact
-        derivatives matter: a finite difference of two separately factorised solves
-        would be swamped by their rounding (condition number ~ (n^4) x viscosity contrast).
+        A dpsi = Ra dv/dx - (dA/deta . deta/dT v) psi (``StokesSolver.linearised``).
         """
         op = self.stokes
-        if self._transform is not None:
-            psi = op.to_nodes(self._transform.solve(op.rhs(T, self.rayleigh)))
-            return psi, lambda v: op.to_nodes(self._transform.solve(op.rhs(v, self.rayleigh)))
-        factor = make_factorizer(self.stokes_solver)
-        eta_n, eta_c = self.viscosities(T)
-        factor.factor(self.stokes.matrix_from_weights(op.viscosity_weights(eta_n, eta_c)))
-        x = factor.solve(op.rhs(T, self.rayleigh))
+        x, dsolve = self.flow_solver.linearised(T, op.rhs(T, self.rayleigh))
+        return op.to_nodes(x), lambda v: op.to_nodes(dsolve(v, op.rhs(v, self.rayleigh)))
 
-        def derivative(v):
-            scale = float(np.abs(v).max())
-            if scale == 0.0:
-                return np.zeros(self.grid.node_shape)
-            h = 1e-5 / scale
-            up_n, up_c = self.viscosities(T + h * v)
-            dn_n, dn_c = self.viscosities(T - h * v)
-            dweights = op.viscosity_weights((up_n - dn_n) / (2 * h), (up_c - dn_c) / (2 * h))
-            rhs = op.rhs(v, self.rayleigh) - self.stokes.matrix_from_weights(dweights) @ x
-            return op.to_nodes(factor.solve(rhs))
+    def initial_state(self, T: np.ndarray, time_: float = 0.0, step: int = 0, *,
+                      psi: np.ndarray | None = None, psi_guess: np.ndarray | None = None
+                      ) -> ModelState:
+        """The state of temperature T with no history (a start, or after a jump).
 
-        return op.to_nodes(x), derivative
-
-    @property
-    def factor_weights(self):
-        return None if self._lagged is None else self._lagged.factored_weights
-
-    def initial_state(self, T: np.ndarray, time_: float = 0.0, step: int = 0) -> ModelState:
-        psi, _ = self.solve_flow(T)
+        The flow ``psi`` is solved from T (from ``psi_guess`` where the solver iterates)
+        unless it is given.
+        """
+        if psi is None:
+            psi, _ = self.solve_flow(T, psi_guess)
         return ModelState(time=time_, step=step, temperature=T.copy(), psi=psi,
-                          factor_weights=self.factor_weights)
+                          solver=self.flow_solver.state())
+
+    def restart_record(self, state: ModelState) -> dict:
+        """The state as a flat {name: array or number} for the run file's restart group."""
+        out = dict(temperature=state.temperature, psi=state.psi,
+                   previous_temperature=state.previous_temperature,
+                   previous_tendency=state.previous_tendency, time=state.time, step=state.step,
+                   previous_dt=state.previous_dt)
+        out.update({f"solver_{k}": v for k, v in state.solver.items()})
+        return out
+
+    def resume(self, record: dict) -> ModelState:
+        """The state of ``restart_record``, with the Stokes solver's cache rebuilt (bit for bit)."""
+        solver = {k[len("solver_"):]: v for k, v in record.items() if k.startswith("solver_")}
+        if not solver and record.get("factor_weights") is not None:   # files before the registry
+            solver = {"factor_weights": record["factor_weights"]}
+        self.flow_solver.restore(solver)
+
+        def optional(key):
+            value = record.get(key)
+            return None if value is None else np.array(value)
+
+        return ModelState(time=float(record["time"]), step=int(record["step"]),
+                          temperature=np.array(record["temperature"]), psi=np.array(record["psi"]),
+                          previous_temperature=optional("previous_temperature"),
+                          previous_tendency=optional("previous_tendency"),
+                          previous_dt=float(record["previous_dt"]), solver=solver)
 
     def tendency(self, T: np.ndarray, psi: np.ndarray) -> np.ndarray:
         """Explicit part N = -div(u T) + H, shape (nz, nx)."""
@@ -265,7 +252,7 @@ class Model:
                      * self.grid.dx * self.grid.dz / dt)
         new = ModelState(time=state.time + dt, step=state.step + 1, temperature=T_new,
                          psi=psi_new, previous_temperature=T, previous_tendency=N,
-                         previous_dt=dt, factor_weights=self.factor_weights)
+                         previous_dt=dt, solver=self.flow_solver.state())
         report = self.report(new, dt, heat_rate, rejections, solve)
         timings["diagnose"] = time.perf_counter() - t0
         report.seconds = timings

@@ -209,16 +209,6 @@ class Simulation:
                     viscosity_profile=diag.horizontal_mean(eta_c),
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], step=state.step)
 
-    @staticmethod
-    def _restart(state: ModelState, extra: dict) -> dict:
-        out = dict(temperature=state.temperature, psi=state.psi,
-                   previous_temperature=state.previous_temperature,
-                   previous_tendency=state.previous_tendency,
-                   factor_weights=state.factor_weights, time=state.time, step=state.step,
-                   previous_dt=state.previous_dt)
-        out.update(extra)
-        return out
-
     def _emit(self, method, *args):
         for obs in self.observers:
             getattr(obs, method)(*args)
@@ -246,13 +236,7 @@ class Simulation:
             r = resume.state
             stage = int(r["stage"])
             model = self.model.with_rayleigh(stages[stage])
-            state = ModelState(time=float(r["time"]), step=int(r["step"]),
-                               temperature=np.array(r["temperature"]), psi=np.array(r["psi"]),
-                               previous_temperature=r.get("previous_temperature"),
-                               previous_tendency=r.get("previous_tendency"),
-                               previous_dt=float(r["previous_dt"]),
-                               factor_weights=r.get("factor_weights"))
-            model.restore_factor(state.factor_weights)
+            state = model.resume(r)
             next_snapshot = float(r["next_snapshot"])
             settled = int(r["settled"])
             newton_wait, newton_next = int(r["newton_wait"]), int(r["newton_next"])
@@ -269,7 +253,7 @@ class Simulation:
                          window=np.array(window, dtype=float).reshape(-1, 2))
             cols = {c: np.array([row[i] for row in series_rows]) for i, c in enumerate(SERIES_COLUMNS)}
             data = SnapshotData(time=st.time, step=st.step, fields=self._fields(st), series=cols,
-                                restart=self._restart(st, extra), status=status_now,
+                                restart={**model.restart_record(st), **extra}, status=status_now,
                                 wall_seconds=time.perf_counter() - wall0)
             series_rows.clear()
             self._emit("on_snapshot", data)
@@ -327,10 +311,8 @@ class Simulation:
                              model.rayleigh, state.step, stages[stage + 1])
                     stage += 1
                     model = self.model.with_rayleigh(stages[stage])
-                    state = ModelState(time=state.time, step=state.step,
-                                       temperature=state.temperature,
-                                       psi=model.solve_flow(state.temperature, state.psi)[0],
-                                       factor_weights=model.factor_weights)
+                    state = model.initial_state(state.temperature, state.time, state.step,
+                                                psi_guess=state.psi)
                     settled, window = 0, []
                     newton_wait, newton_next = NEWTON_FIRST_WAIT, state.step + NEWTON_FIRST_WAIT
                     newton_done = False
@@ -344,8 +326,7 @@ class Simulation:
                         log.info("newton: steady equations solved at step %d in %d iterations "
                                  "(%d residual evaluations)", state.step, nrep.iterations,
                                  nrep.residual_evaluations)
-                        state = ModelState(time=state.time, step=state.step, temperature=T_n,
-                                           psi=psi_n, factor_weights=model.factor_weights)
+                        state = model.initial_state(T_n, state.time, state.step, psi=psi_n)
                         newton_done = True
                         settled, window = 0, []
                     else:
