@@ -56,6 +56,7 @@ from matplotlib import ticker
 from matplotlib.figure import Figure
 
 __all__ = ["COLUMN_WIDTH", "PAGE_WIDTH", "TEMPERATURE_CMAP", "VISCOSITY_CMAP", "DIVERGING_CMAP",
+           "DYE_CMAP", "FIELD_CMAPS",
            "LINE_COLORS", "LINE_STYLES", "MARKERS", "GUIDE_COLOR", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
            "save_file", "metadata_for", "to_rgba_array", "symmetric_limits", "figure_width",
            "light_grid", "log_label", "log_ticks"]
@@ -69,8 +70,12 @@ PAGE_WIDTH = 7.2
 TEMPERATURE_CMAP = "cividis"
 #: Sequential map for viscosity fields (drawn on a log scale when they vary).
 VISCOSITY_CMAP = "viridis"
+#: Sequential map for passive fields (a dye); the colour map of each advected field is named
+#: in its declaration (``convsim.model.fields``) and looked up in :data:`FIELD_CMAPS`.
+DYE_CMAP = "magma"
 #: Diverging map for anomalies (use with :func:`symmetric_limits`).
 DIVERGING_CMAP = "coolwarm"
+FIELD_CMAPS = {"temperature": TEMPERATURE_CMAP, "viscosity": VISCOSITY_CMAP, "dye": DYE_CMAP}
 #: Line colours, in order: blue, vermillion, bluish green, orange, reddish purple, sky blue,
 #: black from matplotlib's ``okabe_ito`` map (its yellow is left out: too light on white).
 LINE_COLORS = tuple(matplotlib.colors.to_hex(matplotlib.colormaps["okabe_ito"].colors[i])

@@ -10,7 +10,9 @@ Layout (root group):
 - coordinates ``x`` (cell centres), ``z``, ``x_node`` (cell corners), ``z_node``,
   ``time`` (one entry per snapshot, unlimited) and ``record`` (one entry per row
   of the diagnostic time series, unlimited);
-- snapshot fields over (time, ...): ``temperature``, ``viscosity`` (cells),
+- snapshot fields over (time, ...): every advected field of the run (``temperature``,
+  and ``dye`` where [tracer] is enabled; declared in ``convsim.model.fields.ADVECTED``,
+  named in the root attribute ``advected_fields``), ``viscosity`` (cells),
   ``streamfunction`` (corners), ``velocity_x`` (vertical faces: z, x_node),
   ``velocity_z`` (horizontal faces: z_node, x), profiles over (time, z), corner
   gradients ``q1`` .. ``q4`` and ``step`` over (time,);
@@ -39,13 +41,14 @@ import h5py
 import numpy as np
 
 from convsim.errors import OutputExistsError, SnapshotError
+from convsim.model.fields import ADVECTED
 
 __all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
-           "check_writable"]
+           "check_writable", "stored_fields"]
 
-# name: (dimensions after time, units, long_name)
+# name: (dimensions after time, units, long_name); the advected fields from their declarations
 FIELDS = {
-    "temperature": (("z", "x"), "1", "temperature (T - T_top) / contrast, cell centres"),
+    **{name: (("z", "x"), d.units, d.long_name) for name, d in ADVECTED.items()},
     "viscosity": (("z", "x"), "1", "viscosity over the reference viscosity, cell centres"),
     "streamfunction": (("z_node", "x_node"), "1", "streamfunction psi (u = dpsi/dz, w = -dpsi/dx) in kappa"),
     "velocity_x": (("z", "x_node"), "1", "horizontal velocity on vertical faces, units kappa/d"),
@@ -141,8 +144,13 @@ class RunFileWriter:
             raise SnapshotError(f"run file {str(self.path)!r}: not found")
 
     # -- creation -----------------------------------------------------------------------------
-    def create(self, grid, config_text: str, title: str, version: str) -> None:
-        """Write a new file with the grid and metadata (replaces an old one, checked before)."""
+    def create(self, grid, config_text: str, title: str, version: str,
+               advected=("temperature",)) -> None:
+        """Write a new file with the grid and metadata (replaces an old one, checked before).
+
+        ``advected``: names of the run's advected fields (``ADVECTED``); the others get no
+        dataset.
+        """
         if self.append:
             return
         tmp = self.path.with_name(self.path.name + ".part")
@@ -157,6 +165,7 @@ class RunFileWriter:
             f.attrs["wall_seconds"] = 0.0
             f.attrs["aspect"] = grid.aspect
             f.attrs["periodic"] = int(grid.periodic)
+            f.attrs["advected_fields"] = " ".join(advected)
             for name, values in (("x", grid.x_cell), ("z", grid.z_cell), ("x_node", grid.x_node),
                                  ("z_node", grid.z_node)):
                 d = f.create_dataset(name, data=values)
@@ -170,11 +179,14 @@ class RunFileWriter:
                 self._coordinate(d, name, "1")
             f["time"].attrs["axis"] = "T"
             for name, (dims, units, long_name) in FIELDS.items():
+                if name in ADVECTED and name not in advected:
+                    continue
                 shape = tuple(len(f[d]) for d in dims)
                 d = f.create_dataset(name, shape=(0,) + shape, maxshape=(None,) + shape,
                                      dtype="i8" if name == "step" else "f8",
                                      chunks=(1,) + shape if shape else (256,))
                 self._attach(f, d, ("time",) + dims, units, long_name)
+                d.attrs.update(ADVECTED[name].cf if name in ADVECTED else {})
             for name, (units, long_name) in SERIES.items():
                 d = f.create_dataset(name, shape=(0,), maxshape=(None,),
                                      dtype="i8" if name in ("series_step", "stokes_iterations") else "f8",
@@ -206,7 +218,7 @@ class RunFileWriter:
                 n = f["time"].shape[0]
                 f["time"].resize((n + 1,))
                 f["time"][n] = time
-                for name in FIELDS:
+                for name in stored_fields(f):
                     d = f[name]
                     d.resize((n + 1,) + d.shape[1:])
                     d[n] = fields[name]
@@ -266,6 +278,11 @@ class RunFile:
     def config_text(self) -> str:
         return self.attrs.get("config", "")
 
+    @property
+    def advected(self) -> list[str]:
+        """Names of the run's advected fields (the temperature in files before the attribute)."""
+        return str(self.attrs.get("advected_fields", "temperature")).split()
+
 
 def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> RunFile:
     """Read a run file: metadata, the series, and the fields of one snapshot (default the last)."""
@@ -282,7 +299,7 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
             if not 0 <= index < count:
                 raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
                                     f"{count} (0 to {count - 1})")
-            fields = {name: f[name][index] for name in FIELDS}
+            fields = {name: f[name][index] for name in stored_fields(f)}
             series = {name: f[name][:] for name in SERIES}
             state = {}
             if restart and "restart" in f:
@@ -299,13 +316,19 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 
 
-def iter_fields(path: str | Path, names=tuple(FIELDS)):
+def stored_fields(f) -> list[str]:
+    """Names of the snapshot fields an open run file holds (``FIELDS`` order)."""
+    return [name for name in FIELDS if name in f]
+
+
+def iter_fields(path: str | Path, names=None):
     """Yield ``(index, time, {name: array})`` for every snapshot, the file opened once.
 
-    For animations and sweeps over snapshots: reads only the named fields, not the series.
+    For animations and sweeps over snapshots: reads only the named fields (default: all the
+    file holds), not the series.
     """
     path = Path(path)
-    unknown = [n for n in names if n not in FIELDS]
+    unknown = [n for n in names or () if n not in FIELDS]
     if unknown:
         raise SnapshotError(f"fields {unknown}: unknown; allowed: {', '.join(FIELDS)}")
     if not path.is_file():
@@ -313,8 +336,9 @@ def iter_fields(path: str | Path, names=tuple(FIELDS)):
     try:
         with open_run_file(path) as f:
             times = f["time"][:]
+            chosen = stored_fields(f) if names is None else list(names)
             for index, when in enumerate(times):
-                yield index, float(when), {name: f[name][index] for name in names}
+                yield index, float(when), {name: f[name][index] for name in chosen}
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 
@@ -329,7 +353,7 @@ class RunFileObserver:
         from convsim import __version__
         if not resumed:
             self.writer.create(simulation.grid, simulation.config_text, simulation.config.title,
-                               __version__)
+                               __version__, [f.name for f in simulation.model.fields])
 
     def on_step(self, report) -> None:
         pass

@@ -31,7 +31,10 @@ import numpy as np
 
 from convsim.model import diagnostics as diag
 from convsim.config import Config, to_toml
+from convsim.errors import ConfigError
+from convsim.model import dye
 from convsim.model.energy import ThermalBoundaries
+from convsim.model.fields import dye_field
 from convsim.model.grid import Grid
 from convsim.model.rheology import ViscosityLaw
 from convsim.model.steady import newton_steady
@@ -203,7 +206,7 @@ class Simulation:
         eta_n, eta_c = m.viscosities(state.temperature)
         u, w = face_velocities(self.grid, state.psi)
         q = diag.corner_gradients(self.grid, state.temperature, m.thermal)
-        return dict(temperature=state.temperature, viscosity=eta_c, streamfunction=state.psi,
+        return dict(state.fields, viscosity=eta_c, streamfunction=state.psi,
                     velocity_x=u, velocity_z=w,
                     temperature_profile=diag.horizontal_mean(state.temperature),
                     viscosity_profile=diag.horizontal_mean(eta_c),
@@ -311,8 +314,7 @@ class Simulation:
                              model.rayleigh, state.step, stages[stage + 1])
                     stage += 1
                     model = self.model.with_rayleigh(stages[stage])
-                    state = model.initial_state(state.temperature, state.time, state.step,
-                                                psi_guess=state.psi)
+                    state = model.jump(state)
                     settled, window = 0, []
                     newton_wait, newton_next = NEWTON_FIRST_WAIT, state.step + NEWTON_FIRST_WAIT
                     newton_done = False
@@ -326,7 +328,7 @@ class Simulation:
                         log.info("newton: steady equations solved at step %d in %d iterations "
                                  "(%d residual evaluations)", state.step, nrep.iterations,
                                  nrep.residual_evaluations)
-                        state = model.initial_state(T_n, state.time, state.step, psi=psi_n)
+                        state = model.jump(state, T_n, psi_n)
                         newton_done = True
                         settled, window = 0, []
                     else:
@@ -406,4 +408,22 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     limiter = "upwind" if n.advection == "upwind" else n.limiter
     return Model(grid, config.physics.rayleigh, thermal, law, config.physics.internal_heating,
                  b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
-                 n.stokes_solver, n.factor_reuse)
+                 n.stokes_solver, n.factor_reuse, fields=tracer_fields(config.tracer, grid))
+
+
+def tracer_fields(t, grid: Grid) -> tuple:
+    """The dye's declaration from the [tracer] table (none when it is not enabled); an
+    expression is checked and tried on the grid here, so a bad one is a config error."""
+    if not t.enabled:
+        return ()
+    if t.kind == "layer":
+        start = dye.layer(t.layer_bottom, t.layer_top)
+    elif t.kind == "blob":
+        start = dye.blob(t.blob_x, t.blob_z, t.blob_radius)
+    else:
+        try:
+            start = dye.expression(t.expression)
+            start(grid)
+        except ValueError as exc:
+            raise ConfigError(f"tracer.expression = {t.expression!r}: {exc}") from None
+    return (dye_field(t.diffusivity, start),)
