@@ -17,7 +17,8 @@ import time
 import numpy as np
 
 from convsim.config import Config
-from convsim.run.controller import build_model, initial_temperature
+from convsim.run.build import build_model
+from convsim.run.initial import initial_temperature
 
 
 def measure(law, n, steps):

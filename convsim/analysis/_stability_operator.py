@@ -39,6 +39,7 @@ import scipy.linalg as sla
 from scipy.optimize import brentq, minimize_scalar
 
 from convsim.errors import ConfigError
+from convsim.model.energy import conductive_coefficients
 
 __all__ = ["Layer", "StabilityProblem", "conductive_profile", "conductive_gradient",
            "chebyshev", "default_points", "RA_INFINITE", "FLOW_CONDITIONS",
@@ -117,17 +118,9 @@ class Layer:
 
 
 def _profile_coefficients(layer: Layer) -> tuple[float, float]:
-    """(a, b) of T0 = -H z^2/2 + a z + b."""
-    H = layer.internal_heating
-    if layer.top_heat == "temperature" and layer.bottom_heat == "temperature":
-        b = layer.bottom_value
-        a = layer.top_value - b + 0.5 * H
-    elif layer.bottom_heat == "flux":        # -T0'(0) = q_bottom, T0(1) = T_top
-        a = -layer.bottom_value
-        b = layer.top_value + 0.5 * H - a
-    else:                                    # -T0'(1) = q_top, T0(0) = T_bottom
-        a = H - layer.top_value
-        b = layer.bottom_value
+    """(a, b) of T0 = -H z^2/2 + a z + b (the model's one conductive profile)."""
+    b, a = conductive_coefficients(layer.top_heat, layer.top_value, layer.bottom_heat,
+                                   layer.bottom_value, layer.internal_heating)
     return a, b
 
 

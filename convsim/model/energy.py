@@ -28,7 +28,8 @@ import scipy.fft as sfft
 from convsim.model import kernels
 from convsim.model.grid import Grid
 
-__all__ = ["ThermalBoundaries", "pad_temperature", "advection", "DiffusionSolver",
+__all__ = ["ThermalBoundaries", "conductive_coefficients", "conductive_profile",
+           "pad_temperature", "advection", "DiffusionSolver",
            "boundary_heat_flux", "THERMAL_CONDITIONS", "LIMITERS"]
 
 THERMAL_CONDITIONS = ("temperature", "flux")
@@ -48,6 +49,33 @@ class ThermalBoundaries:
         for kind in (self.top_kind, self.bottom_kind):
             if kind not in THERMAL_CONDITIONS:
                 raise ValueError(f"thermal condition {kind!r}: expected one of {THERMAL_CONDITIONS}")
+
+
+def conductive_coefficients(top_kind: str, top_value: float, bottom_kind: str,
+                            bottom_value: float, heating: float) -> tuple[float, float]:
+    """(T0, s) of the steady conductive profile T(z) = T0 + s z - H z^2 / 2.
+
+    It solves T'' = -H on 0 <= z <= 1 with each wall at a fixed temperature
+    (value = T) or a fixed upward heat flux (value = q = -dT/dz); at least one wall
+    must fix the temperature.  Both fixed: T(0) = Tb, T(1) = Tt.  Flux at the top:
+    T(0) = Tb, -T'(1) = q.  Flux at the bottom: -T'(0) = q, T(1) = Tt.
+    """
+    H = heating
+    if bottom_kind == "temperature" and top_kind == "temperature":
+        return bottom_value, top_value - bottom_value + 0.5 * H
+    if bottom_kind == "temperature":
+        return bottom_value, H - top_value
+    slope = -bottom_value
+    return top_value - slope + 0.5 * H, slope
+
+
+def conductive_profile(z: np.ndarray, bc: ThermalBoundaries, heating: float) -> np.ndarray:
+    """The steady conductive temperature T(z) = T0 + s z - H z^2 / 2 at heights z
+    (see ``conductive_coefficients``), in units of the temperature contrast."""
+    t0, slope = conductive_coefficients(bc.top_kind, bc.top_value, bc.bottom_kind,
+                                        bc.bottom_value, heating)
+    z = np.asarray(z, dtype=float)
+    return t0 + slope * z - 0.5 * heating * z * z
 
 
 def pad_temperature(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> np.ndarray:
