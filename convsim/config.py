@@ -222,18 +222,36 @@ class Config:
     title: str = ""
 
     def replace(self, **tables) -> "Config":
-        """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``)."""
-        changes = {}
+        """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``).
+
+        Validated exactly like a config file: the changed config is written out as a
+        mapping and read back by ``parse_config`` (unknown keys, types, ranges, choices and
+        the rules between keys), so bad values raise ``ConfigError`` naming the key.
+        """
+        data = to_dict(self)
         for name, value in tables.items():
             if "__" in name:
                 section, key = name.split("__", 1)
-                current = changes.get(section, getattr(self, section))
-                changes[section] = dataclasses.replace(current, **{key: value})
+                table = data.setdefault(section, {})
+                if not isinstance(table, dict):
+                    raise ConfigError(f"{section}: not a table")
+                table[key] = _plain(value)
+            elif dataclasses.is_dataclass(value):
+                data[name] = {k: _plain(v) for k, v in dataclasses.asdict(value).items()}
+            elif value is None:
+                data.pop(name, None)
             else:
-                changes[name] = value
-        new = dataclasses.replace(self, **changes)
-        _check_consistency(new)
-        return new
+                data[name] = _plain(value)
+        return parse_config(data, source="Config.replace")
+
+
+def _plain(value):
+    """A numpy scalar as the Python number it holds; lists and tuples element by element."""
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if hasattr(value, "item") and hasattr(value, "dtype") and getattr(value, "ndim", 1) == 0:
+        return value.item()
+    return value
 
 
 TABLES = {f.name: f.default_factory for f in dataclasses.fields(Config)
