@@ -109,8 +109,8 @@ class Simulation:
                 decision = self._loop(p)
             except KeyboardInterrupt:      # not in the main thread: no deferred handler there
                 decision = Decision("interrupted", f"interrupted at step {p.state.step}")
-        if p.state.step != p.last_snapshot_step:
-            self._snapshot(p, decision.status)
+            if p.state.step != p.last_snapshot_step:     # a signal now stops nothing half-written
+                self._snapshot(p, decision.status)
         result = final_result(p.model, p.state, decision, time.perf_counter() - p.wall0,
                               Series.columns(p.series.all_rows), p.phase)
         if decision.status == "diverged":
