@@ -28,10 +28,8 @@ from __future__ import annotations
 
 import logging
 import math
-import multiprocessing
 import os
 import time
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -39,6 +37,7 @@ from scipy.optimize import brentq
 
 from convsim.config import Config
 from convsim.errors import ConfigError
+from convsim.pool import process_pool
 
 __all__ = ["RateFit", "RunBracket", "DEFAULT_FACTORS", "fit_growth_rate",
            "critical_from_rates", "bracket_configs", "default_grid", "onset_from_config",
@@ -236,20 +235,11 @@ def _run_one(cfg: Config) -> dict:
                 vrms=np.asarray(result.series["vrms"]))
 
 
-def _one_thread_per_worker() -> None:
-    """Worker initializer: one BLAS thread each (the runs themselves are the parallelism)."""
-    from convsim.model.linsolve import limit_blas_threads
-    limit_blas_threads(1)
-
-
 def _run_all(configs, jobs: int) -> list[dict]:
     if jobs <= 1 or len(configs) == 1:
         return [_run_one(c) for c in configs]
     # fork where there is one: a spawned worker would re-run the caller's main script
-    methods = multiprocessing.get_all_start_methods()
-    ctx = multiprocessing.get_context("fork" if "fork" in methods else "spawn")
-    with ProcessPoolExecutor(max_workers=min(jobs, len(configs)), mp_context=ctx,
-                             initializer=_one_thread_per_worker) as pool:
+    with process_pool(min(jobs, len(configs)), start="fork-if-available") as pool:
         return list(pool.map(_run_one, configs))
 
 

@@ -41,8 +41,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def emit_json(obj) -> None:
-    """Print one JSON object on stdout."""
-    print(json.dumps(obj, indent=2, sort_keys=False, default=float))
+    """Print one JSON object on stdout (strict JSON: NaN as null, ``convsim.files.jsonio``)."""
+    from convsim.files.jsonio import dumps
+    print(dumps(obj), end="")
 
 
 # -- run --------------------------------------------------------------------------------------
@@ -381,8 +382,9 @@ def _add_fit(p):
 
 def _run_fit(args) -> int:
     import csv
-    import os
     from pathlib import Path
+    from convsim.files.atomic import atomic_path
+    from convsim.files.jsonio import write_json
     from convsim.figures import sweep as figures_sweep
     from convsim.errors import OutputExistsError
     from convsim.analysis.fitting import RegimeThresholds, fit_report
@@ -433,16 +435,12 @@ def _run_fit(args) -> int:
                          f"{thresholds.stagnant_contrast:g}; conductive: Nu < "
                          f"{thresholds.conductive_nusselt:g}"),
         y_label=f"viscosity contrast ({args.contrast_column})")
-    tmp = out / f"regimes.csv.tmp{os.getpid()}"
-    with open(tmp, "w", newline="", encoding="utf-8") as fh:
+    with atomic_path(out / "regimes.csv") as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
         writer = csv.DictWriter(fh, fieldnames=list(rows[0]) if rows else ["case_id"])
         writer.writeheader()
         writer.writerows(rows)
-    os.replace(tmp, out / "regimes.csv")
     report["outputs"] = [str(p) for p in paths]
-    tmp = out / f"fit.json.tmp{os.getpid()}"
-    tmp.write_text(json.dumps(report, indent=1, default=float) + "\n", encoding="utf-8")
-    os.replace(tmp, out / "fit.json")
+    write_json(out / "fit.json", report, indent=1)
     if args.json:
         emit_json(report)
         return 0
@@ -603,7 +601,8 @@ def _run_onset(args) -> int:
     if out is not None:
         from convsim.figures.onset import plot_growth_rates, plot_neutral_curve
         out.mkdir(parents=True, exist_ok=True)
-        (out / "onset.json").write_text(json.dumps(payload, indent=2) + "\n", encoding="utf-8")
+        from convsim.files.jsonio import write_json
+        write_json(out / "onset.json", payload)
         plot_neutral_curve(result, out / "onset_neutral_curve.png")
         if runs is not None:
             plot_growth_rates(runs, out / "onset_growth_rates.png")

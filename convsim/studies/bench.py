@@ -33,13 +33,14 @@ import os
 import platform
 import subprocess
 import sys
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import as_completed
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
+from convsim.pool import process_pool
 from convsim.studies.published import ACCEPTANCE, CASE_SETUP, PUBLISHED, QUANTITIES, known_cases
 
 __all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
@@ -186,8 +187,6 @@ def run_task(task: BenchTask) -> BenchRow:
     """Run one case on one grid (the worker function; top level so that it pickles)."""
     from convsim import api
     from convsim.config import load_config
-    from convsim.model.linsolve import limit_blas_threads
-    limit_blas_threads(1)          # the parallel runs are the parallelism (two BLAS pools spin)
     cfg = load_config(task.config_path, list(task.overrides))
     if task.warmup:
         warm = cfg.replace(domain__nx=8, domain__nz=8, stop__steady=False, stop__max_steps=5,
@@ -453,7 +452,6 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
     -------
     BenchResult
     """
-    import multiprocessing
     import time
     cases = parse_cases(cases)
     grids = parse_grids(grids)
@@ -466,9 +464,7 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
         load_config(case_config_path(c), list(overrides))
     t0 = time.perf_counter()
     rows = []
-    ctx = multiprocessing.get_context("spawn")
-    with ProcessPoolExecutor(max_workers=min(jobs, len(tasks)), mp_context=ctx,
-                             max_tasks_per_child=1) as pool:
+    with process_pool(min(jobs, len(tasks)), max_tasks_per_child=1) as pool:
         futures = {pool.submit(run_task, t): t for t in tasks}
         for fut in as_completed(futures):
             try:

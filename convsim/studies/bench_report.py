@@ -8,12 +8,13 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 from pathlib import Path
 
 from convsim.analysis.convergence import SAFETY_FACTOR
 from convsim.errors import OutputExistsError
+from convsim.files.atomic import atomic_write_text
+from convsim.files.jsonio import plain, write_json
 from convsim.studies.published import ACCEPTANCE, DEFINITIONS, PUBLISHED, QUANTITIES
 
 __all__ = ["REPORT_FILES", "report_paths", "check_outputs", "write_report", "markdown",
@@ -30,16 +31,8 @@ LABEL = {"nusselt": "Nu", "vrms": "vrms", "q1": "q1", "q2": "q2"}
 
 
 def jsonable(obj):
-    """A copy with NaN and infinities as None (strict JSON)."""
-    if isinstance(obj, float):
-        return obj if math.isfinite(obj) else None
-    if isinstance(obj, dict):
-        return {str(k): jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [jsonable(v) for v in obj]
-    if hasattr(obj, "item") and not isinstance(obj, (str, bytes)):   # numpy scalars
-        return jsonable(obj.item())
-    return obj
+    """A copy with NaN and infinities as None (strict JSON): ``convsim.files.jsonio.plain``."""
+    return plain(obj)
 
 
 def report_paths(out) -> list:
@@ -332,9 +325,9 @@ def write_report(bench: dict, out, overwrite: bool = False) -> list:
     check_outputs(out, overwrite)
     out.mkdir(parents=True, exist_ok=True)
     data = jsonable(bench)
-    (out / "bench.json").write_text(json.dumps(data, indent=2) + "\n")
-    (out / "rows.csv").write_text(rows_csv(data))
-    (out / "report.md").write_text(markdown(data) + "\n")
+    write_json(out / "bench.json", data)
+    atomic_write_text(out / "rows.csv", rows_csv(data))
+    atomic_write_text(out / "report.md", markdown(data) + "\n")
     figures_bench.convergence_figure(data, out / "convergence")
     figures_bench.cost_figure(data, out / "cost")
     return report_paths(out)

@@ -115,7 +115,8 @@ from convsim.errors import ConfigError, OutputExistsError
 from convsim.studies.sweep_backends import BACKENDS, make_backend
 from convsim.studies.sweep_case import (INTERIOR_BAND, CaseTask, base_record, case_config, config_digest,
                          interior_rms_velocity, law_viscosity_contrast, run_case)
-from convsim.studies.sweep_table import FAILED, atomic_write_text, read_record, write_record, write_table
+from convsim.files.atomic import atomic_write_text
+from convsim.studies.sweep_table import FAILED, read_record, write_record, write_table
 
 __all__ = ["Axis", "Continuation", "SweepSpec", "Case", "CaseTask", "SweepProgress",
            "SweepOutcome", "load_sweep", "parse_sweep", "expand_cases", "case_id",
