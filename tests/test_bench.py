@@ -23,12 +23,14 @@ ROOT = Path(__file__).resolve().parent.parent
 
 # -- configs -------------------------------------------------------------------------------------
 @pytest.mark.parametrize("case", published.known_cases())
-def test_package_case_configs_identical_to_repo_configs(case):
+def test_each_case_config_has_one_source(case):
+    """The package copy is the case file; configs/ only links to it (no second copy to drift)."""
     name = f"benchmark_case_{case}.toml"
     shipped = bench.package_cases_dir() / name
     repo = ROOT / "configs" / name
-    assert shipped.read_bytes() == repo.read_bytes(), \
-        f"convsim/studies/cases/{name} differs from configs/{name}: copy configs/ into convsim/studies/cases/"
+    assert bench.case_config_path(case) == shipped
+    assert repo.is_symlink() and repo.resolve() == shipped.resolve(), \
+        f"configs/{name} must be a link to convsim/studies/cases/{name}, not a copy"
 
 
 def test_case_config_path_and_unknown_case():

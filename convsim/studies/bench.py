@@ -1,7 +1,7 @@
 """Benchmark harness: published steady cases on a series of grids, side by side on local cores.
 
-For each case (a config in configs/, also shipped as package data in
-convsim/studies/cases/) and each grid n, one run ``api.run(cfg.replace(domain__nx=n,
+For each case (a config shipped as package data in convsim/studies/cases/; the
+repository's configs/ links to it) and each grid n, one run ``api.run(cfg.replace(domain__nx=n,
 domain__nz=n))`` to steady state records Nu (top and bottom), vrms, q1, q2,
 wall time, steps, time per phase and peak memory.  From the three finest grids
 each quantity gets an observed order, a Richardson-extrapolated value and a
@@ -44,7 +44,7 @@ from convsim.pool import process_pool
 from convsim.studies.published import ACCEPTANCE, CASE_SETUP, PUBLISHED, QUANTITIES, known_cases
 
 __all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
-           "BenchResult", "case_config_path", "repo_configs_dir", "package_cases_dir",
+           "BenchResult", "case_config_path", "package_cases_dir",
            "parse_grids", "parse_cases", "plan", "run_task", "run_bench", "analyse_case",
            "provenance"]
 
@@ -64,24 +64,14 @@ def package_cases_dir() -> Path:
     return Path(__file__).resolve().parent / "cases"
 
 
-def repo_configs_dir() -> Path | None:
-    """The repository's configs/ folder beside the package, if this is a source checkout."""
-    path = Path(__file__).resolve().parents[2] / "configs"
-    return path if path.is_dir() else None
-
-
 def case_config_path(case: str) -> Path:
-    """The config file of a published case: configs/ of the checkout, else the package copy."""
+    """The config file of a published case: the package copy, the one source
+    (``configs/benchmark_case_*.toml`` of the repository are links to it)."""
     if case not in PUBLISHED:
         raise ConfigError(f"case {case!r}: unknown; known cases: {', '.join(known_cases())}")
-    name = f"benchmark_case_{case}.toml"
-    repo = repo_configs_dir()
-    if repo is not None and (repo / name).is_file():
-        return repo / name
-    path = package_cases_dir() / name
+    path = package_cases_dir() / f"benchmark_case_{case}.toml"
     if not path.is_file():
-        raise ConfigError(f"case {case!r}: config {name} found neither in configs/ nor in "
-                          f"{package_cases_dir()}")
+        raise ConfigError(f"case {case!r}: config {path.name} not found in {package_cases_dir()}")
     return path
 
 
