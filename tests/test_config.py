@@ -1,5 +1,6 @@
 """Config schema: round trip, overrides, the README reference covers every key."""
 
+import dataclasses
 import tomllib
 from pathlib import Path
 
@@ -71,3 +72,14 @@ def test_replace_takes_numpy_numbers_and_whole_tables():
                            stop=Config().stop.__class__(max_steps=7))
     assert cfg.domain.nx == 8 and type(cfg.domain.nx) is int and cfg.stop.max_steps == 7
     assert Config().replace() == Config()
+
+
+def test_choice_names_are_declared_once():
+    """The config offers exactly the names the model implements."""
+    from convsim.model import choices, kernels
+    from convsim.config import Boundaries, Numerics
+    assert set(kernels.LIMITER_CODES) == set(choices.LIMITERS) | {"upwind"}
+    meta = {f.name: f.metadata["choices"] for f in dataclasses.fields(Numerics)}
+    assert meta["limiter"] is choices.LIMITERS and meta["time_scheme"] is choices.TIME_SCHEMES
+    meta = {f.name: f.metadata["choices"] for f in dataclasses.fields(Boundaries)}
+    assert meta["top_heat"] is meta["bottom_heat"] is choices.THERMAL_CONDITIONS

@@ -39,6 +39,7 @@ import scipy.linalg as sla
 from scipy.optimize import brentq, minimize_scalar
 
 from convsim.errors import ConfigError
+from convsim.model.choices import FLOW_CONDITIONS, THERMAL_CONDITIONS as HEAT_CONDITIONS
 from convsim.model.energy import conductive_coefficients
 
 __all__ = ["Layer", "StabilityProblem", "conductive_profile", "conductive_gradient",
@@ -47,8 +48,6 @@ __all__ = ["Layer", "StabilityProblem", "conductive_profile", "conductive_gradie
 
 log = logging.getLogger("convsim.analysis.stability")
 
-FLOW_CONDITIONS = ("free-slip", "no-slip")
-HEAT_CONDITIONS = ("temperature", "flux")
 
 #: A neutral Rayleigh number above this is reported as infinite (no steady instability).
 RA_INFINITE = 1.0e30

@@ -26,13 +26,13 @@ import numpy as np
 import scipy.fft as sfft
 
 from convsim.model import kernels
+from convsim.model.choices import THERMAL_CONDITIONS
 from convsim.model.grid import Grid
 
 __all__ = ["ThermalBoundaries", "conductive_coefficients", "conductive_profile",
            "pad_temperature", "advection", "DiffusionSolver",
            "boundary_heat_flux", "THERMAL_CONDITIONS", "LIMITERS"]
 
-THERMAL_CONDITIONS = ("temperature", "flux")
 LIMITERS = tuple(kernels.LIMITER_CODES)
 
 
