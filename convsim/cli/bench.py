@@ -42,7 +42,7 @@ def _run_bench(args) -> int:
 
     def progress(row, done, total):
         print(f"[{done}/{total}] case {row.case} grid {row.grid}: {row.status}, Nu "
-              f"{row.nusselt:.6g}, vrms {row.vrms:.6g}, {row.steps} steps, "
+              f"{row.nusselt_top:.6g}, vrms {row.vrms:.6g}, {row.steps} steps, "
               f"{row.wall_seconds:.1f} s", file=sys.stderr, flush=True)
 
     command = "convsim bench " + " ".join(shlex.quote(a) for a in _bench_argv(args))

@@ -129,7 +129,7 @@ class BenchRow:
     h: float                       # grid spacing 1 / nz (unit depth)
     status: str
     message: str
-    nusselt: float                 # top
+    nusselt_top: float                 # top
     nusselt_bottom: float
     vrms: float
     q1: float
@@ -191,7 +191,7 @@ def run_task(task: BenchTask) -> BenchRow:
     upwelling = "x=0" if T[mid, 0] >= T[mid, -1] else "x=1"
     q = [float(v) for v in result.corner_gradients]
     row = BenchRow(case=task.case, grid=task.grid, h=1.0 / task.grid, status=result.status,
-                   message=result.message, nusselt=float(result.nusselt_top),
+                   message=result.message, nusselt_top=float(result.nusselt_top),
                    nusselt_bottom=float(result.nusselt_bottom), vrms=float(result.vrms),
                    q1=q[0], q2=q[1], wall_seconds=float(result.wall_seconds),
                    steps=int(result.steps), time=float(result.time),
@@ -207,7 +207,7 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
     nan = math.nan
     log.error("%s grid %d failed: %s", task.case, task.grid, exc)
     return BenchRow(case=task.case, grid=task.grid, h=1.0 / task.grid, status="error",
-                    message=f"{type(exc).__name__}: {exc}", nusselt=nan, nusselt_bottom=nan,
+                    message=f"{type(exc).__name__}: {exc}", nusselt_top=nan, nusselt_bottom=nan,
                     vrms=nan, q1=nan, q2=nan, wall_seconds=nan, steps=0, time=nan,
                     phase_seconds={}, peak_rss_mib=nan, run_rss_mib=nan, upwelling="",
                     stage_steps=[], relative_error={q: nan for q in QUANTITIES})

@@ -23,11 +23,11 @@ __all__ = ["REPORT_FILES", "report_paths", "check_outputs", "write_report", "mar
 REPORT_FILES = ("report.md", "rows.csv", "bench.json", "convergence.png", "convergence.pdf",
                 "cost.png", "cost.pdf")
 PHASES = ("advect", "diffuse", "stokes", "factor", "diagnose")
-CSV_COLUMNS = ("case", "grid", "h", "status", "nusselt", "nusselt_bottom", "vrms", "q1", "q2",
+CSV_COLUMNS = ("case", "grid", "h", "status", "nusselt_top", "nusselt_bottom", "vrms", "q1", "q2",
                "rel_err_nusselt", "rel_err_vrms", "rel_err_q1", "rel_err_q2", "wall_seconds",
                "steps", "steps_per_second", "time", "upwelling", "peak_rss_mib", "run_rss_mib") \
     + tuple(f"{p}_seconds" for p in PHASES)
-LABEL = {"nusselt": "Nu", "vrms": "vrms", "q1": "q1", "q2": "q2"}
+LABEL = {"nusselt_top": "Nu", "vrms": "vrms", "q1": "q1", "q2": "q2"}
 
 
 def jsonable(obj):
@@ -97,9 +97,9 @@ def markdown(bench: dict) -> str:
         ext, err, order = c["extrapolated"], c["extrapolated_relative_error"], c["observed_order"]
         fin = c["rows"][-1] if c["rows"] else None
         rows.append([c["case"], _g(c["rayleigh"], 3),
-                     _g(fin["nusselt"]) if fin else "-",
-                     _pct(fin["relative_error"]["nusselt"]) if fin else "-",
-                     _g(ext["nusselt"]), _pct(err["nusselt"]), _g(order["nusselt"], 3),
+                     _g(fin["nusselt_top"]) if fin else "-",
+                     _pct(fin["relative_error"]["nusselt_top"]) if fin else "-",
+                     _g(ext["nusselt_top"]), _pct(err["nusselt_top"]), _g(order["nusselt_top"], 3),
                      _g(ext["vrms"]), _pct(err["vrms"]), _g(order["vrms"], 3),
                      "pass" if c["passed"] else "FAIL"])
     L += _table(["case", "Ra", "Nu finest", "err", "Nu extrap.", "err", "p(Nu)",
@@ -165,13 +165,13 @@ def _case_section(c: dict) -> list:
         L += [f"Note: {note}.", ""]
     pub = c["published"]
     L += ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES)
-          + " (" + PUBLISHED[c["case"]]["nusselt"].citation + ").", ""]
+          + " (" + PUBLISHED[c["case"]]["nusselt_top"].citation + ").", ""]
     rows = []
     for r in c["rows"]:
         e = r["relative_error"]
-        rows.append([r["grid"], r["status"], r["steps"], _g(r["nusselt"]),
+        rows.append([r["grid"], r["status"], r["steps"], _g(r["nusselt_top"]),
                      _g(r["nusselt_bottom"]), _g(r["vrms"]), _g(r["q1"]), _g(r["q2"]),
-                     _pct(e["nusselt"]), _pct(e["vrms"]), _pct(e["q1"]), _pct(e["q2"]),
+                     _pct(e["nusselt_top"]), _pct(e["vrms"]), _pct(e["q1"]), _pct(e["q2"]),
                      _g(r["wall_seconds"], 4)])
     L += _table(["grid", "status", "steps", "Nu top", "Nu bottom", "vrms", "q1", "q2",
                  "err Nu", "err vrms", "err q1", "err q2", "wall s"], rows)
@@ -239,7 +239,7 @@ def _performance(bench: dict) -> list:
         for r in c["rows"]:
             e = r["relative_error"]
             rows.append([c["case"], r["grid"], r["status"], _g(r["wall_seconds"], 4),
-                         _pct(e["nusselt"]).lstrip("+-"), _pct(e["vrms"]).lstrip("+-")])
+                         _pct(e["nusselt_top"]).lstrip("+-"), _pct(e["vrms"]).lstrip("+-")])
     L += _table(["case", "grid", "status", "wall s", "abs. err Nu", "abs. err vrms"], rows)
     L += ["![convergence](convergence.png)", "",
           "Relative error against grid spacing, one line per quantity, with a slope-2 guide "
@@ -300,16 +300,16 @@ def terminal_table(bench: dict) -> str:
     for c in bench["cases"]:
         for r in c["rows"]:
             e = r["relative_error"]
-            lines.append(f"{c['case']:<5}{r['grid']:>5} {r['status']:<9}{_g(r['nusselt']):>11}"
-                         f"{_pct(e['nusselt'], 2):>9}{_g(r['vrms']):>11}{_pct(e['vrms'], 2):>9}"
+            lines.append(f"{c['case']:<5}{r['grid']:>5} {r['status']:<9}{_g(r['nusselt_top']):>11}"
+                         f"{_pct(e['nusselt_top'], 2):>9}{_g(r['vrms']):>11}{_pct(e['vrms'], 2):>9}"
                          f"{_g(r['q1'], 6):>10}{_g(r['q2'], 5):>9}{r['steps']:>8}"
                          f"{_g(r['wall_seconds'], 4):>9}")
         ext, err, p = c["extrapolated"], c["extrapolated_relative_error"], c["observed_order"]
-        lines.append(f"{'':<5}{'ext':>5} {'':<9}{_g(ext['nusselt']):>11}"
-                     f"{_pct(err['nusselt'], 2):>9}{_g(ext['vrms']):>11}{_pct(err['vrms'], 2):>9}"
-                     f"   p(Nu) {_g(p['nusselt'], 3)}  p(vrms) {_g(p['vrms'], 3)}  "
+        lines.append(f"{'':<5}{'ext':>5} {'':<9}{_g(ext['nusselt_top']):>11}"
+                     f"{_pct(err['nusselt_top'], 2):>9}{_g(ext['vrms']):>11}{_pct(err['vrms'], 2):>9}"
+                     f"   p(Nu) {_g(p['nusselt_top'], 3)}  p(vrms) {_g(p['vrms'], 3)}  "
                      + ("pass" if c["passed"] else "FAIL"))
-        lines.append(f"{'':<5}{'pub':>5} {'':<9}{_g(c['published']['nusselt']):>11}{'':>9}"
+        lines.append(f"{'':<5}{'pub':>5} {'':<9}{_g(c['published']['nusselt_top']):>11}{'':>9}"
                      f"{_g(c['published']['vrms']):>11}{'':>9}{_g(c['published']['q1'], 6):>10}"
                      f"{_g(c['published']['q2'], 5):>9}")
     lines.append(f"verdict: {'PASS' if bench['passed'] else 'FAIL'} "
