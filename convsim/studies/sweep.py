@@ -115,7 +115,7 @@ from convsim.errors import ConfigError, OutputExistsError
 from convsim.studies.sweep_backends import BACKENDS, make_backend
 from convsim.studies.sweep_case import (INTERIOR_BAND, CaseTask, base_record, case_config, config_digest,
                          interior_rms_velocity, law_viscosity_contrast, run_case)
-from convsim.files.atomic import atomic_write_text
+from convsim.files.jsonio import write_json
 from convsim.studies.sweep_table import FAILED, read_record, write_record, write_table
 
 __all__ = ["Axis", "Continuation", "SweepSpec", "Case", "CaseTask", "SweepProgress",
@@ -485,129 +485,164 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
     SweepOutcome
     """
     t0 = time.perf_counter()
-    folder = Path(out).absolute()
-    cases_dir = folder / "cases"
+    run = _SweepRun(spec, _sweep_folder(out), progress)
+    run.load_records(out, overwrite)
+    write_json(run.folder / "sweep.json", _definition(spec), indent=1)
+    skipped = run.report_skipped()
+    engine = None if run.all_done() else make_backend(backend, runner, jobs=jobs,
+                                                      scheduler=scheduler)
     try:
-        cases_dir.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise ConfigError(f"--out {str(out)!r}: cannot create the sweep folder ({exc.strerror})")\
-            from None
-    cases = expand_cases(spec)
-    base_toml = to_toml(spec.base_config)
-    digests = {}
-    for case in cases:
-        try:
-            digests[case.case_id] = config_digest(case_config(spec.base_config, case.params,
-                                                              spec.fixed))
-        except ConfigError:               # the worker reports it as the case's failure
-            digests[case.case_id] = "invalid"
-    records: dict = {}
-    for case in cases:
-        rec = read_record(cases_dir / f"{case.case_id}.json")
-        if rec is None or rec.get("status") in RETRY_STATUSES:
-            continue
-        if rec.get("config_hash") != digests[case.case_id]:
-            if not overwrite:
-                raise OutputExistsError(
-                    f"sweep folder {str(out)!r}: case {case.case_id} there was run with another "
-                    f"config; pass --overwrite to run it again or --out for another folder")
-            continue
-        records[case.case_id] = rec
-    atomic_write_text(folder / "sweep.json", json.dumps(_definition(spec), indent=1) + "\n")
-    total, done = len(cases), 0
-    for case in cases:
-        if case.case_id in records:
-            done += 1
-            if progress is not None:
-                progress(SweepProgress(done, total, case.case_id,
-                                       records[case.case_id]["status"], True))
-    skipped = done
-    chains: dict = {}
-    for case in sorted(cases, key=lambda c: (c.chain, c.position)):
-        chains.setdefault(case.chain, deque()).append(case)
-    by_chain = {chain: list(q) for chain, q in chains.items()}
-    accept = spec.continuation.accept if spec.continuation else ()
-
-    def task_for(case: Case) -> CaseTask:
-        start_file, started_from = "", ""
-        if spec.continuation is not None:
-            best = None
-            for other in by_chain[case.chain]:
-                rec = records.get(other.case_id)
-                if rec is None or rec.get("status") not in accept:
-                    continue
-                path = folder / rec["run_file"]
-                if not path.is_file():
-                    continue
-                rank = (abs(other.position - case.position), other.position)
-                if best is None or rank < best[0]:
-                    best = (rank, other.case_id, path)
-            if best is not None:
-                started_from, start_file = best[1], str(best[2])
-        name = f"cases/{case.case_id}.h5"
-        return CaseTask(case_id=case.case_id, index=case.index, params=case.params,
-                        base_toml=base_toml, fixed=spec.fixed, run_file=str(folder / name),
-                        run_file_name=name, start_file=start_file, started_from=started_from,
-                        config_hash=digests[case.case_id])
-
-    if all(c.case_id in records for c in cases):
-        engine = None                   # nothing to run: no pool, no connection
-    else:
-        engine = make_backend(backend, runner, jobs=jobs, scheduler=scheduler)
-    busy: dict = {}                 # chain -> task in flight
-    tasks: dict = {}
-    executed = 0
-    last_table = time.perf_counter()
-
-    def fill() -> None:
-        nonlocal executed
-        for chain, queue in chains.items():
-            if chain in busy:
-                continue
-            while queue:
-                case = queue.popleft()
-                if case.case_id in records:
-                    continue
-                task = task_for(case)
-                tasks[case.case_id] = task
-                engine.submit(task)
-                busy[chain] = task
-                executed += 1
-                break
-
-    chain_of = {c.case_id: c.chain for c in cases}
-    try:
-        fill()
-        while busy:
-            cid, outcome = engine.next_done()
-            task = tasks.pop(cid)
-            rec = outcome if isinstance(outcome, dict) else _failure_record(task, outcome)
-            if rec["status"] == FAILED:
-                log.warning("case %s failed: %s", cid, rec.get("error", ""))
-            write_record(cases_dir / f"{cid}.json", rec)
-            records[cid] = rec
-            busy.pop(chain_of[cid], None)
-            done += 1
-            if progress is not None:
-                progress(SweepProgress(done, total, cid, rec["status"], False))
-            fill()
-            if time.perf_counter() - last_table > TABLE_EVERY_SECONDS:
-                write_table([records[c.case_id] for c in cases if c.case_id in records],
-                            spec.param_keys, folder)
-                last_table = time.perf_counter()
+        run.execute(engine)
     except BaseException:
         if engine is not None:
             engine.close(cancel=True)
-        write_table([records[c.case_id] for c in cases if c.case_id in records],
-                    spec.param_keys, folder)
+        run.write_table()
         raise
     if engine is not None:
         engine.close()
-    ordered = [records[c.case_id] for c in cases if c.case_id in records]
-    csv_path, h5_path = write_table(ordered, spec.param_keys, folder)
+    ordered = run.ordered()
+    csv_path, h5_path = run.write_table()
     failed = sum(1 for r in ordered if r["status"] == FAILED)
-    return SweepOutcome(records=ordered, executed=executed, skipped=skipped, failed=failed,
-                        table_csv=csv_path, table_h5=h5_path, folder=folder,
+    return SweepOutcome(records=ordered, executed=run.executed, skipped=skipped, failed=failed,
+                        table_csv=csv_path, table_h5=h5_path, folder=run.folder,
                         backend=engine.name if engine else "none",
                         workers=engine.workers if engine else 0,
                         wall_seconds=time.perf_counter() - t0)
+
+
+def _sweep_folder(out) -> Path:
+    folder = Path(out).absolute()
+    try:
+        (folder / "cases").mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ConfigError(f"--out {str(out)!r}: cannot create the sweep folder ({exc.strerror})")\
+            from None
+    return folder
+
+
+class _SweepRun:
+    """The bookkeeping of one sweep run: the records so far, the chains, the cases in flight.
+
+    Cases of one continuation chain run one after the other (each may start from its
+    nearest finished neighbour); different chains run side by side.
+    """
+
+    def __init__(self, spec: SweepSpec, folder: Path, progress: Callable | None):
+        self.spec, self.folder, self.progress = spec, folder, progress
+        self.cases_dir = folder / "cases"
+        self.cases = expand_cases(spec)
+        self.base_toml = to_toml(spec.base_config)
+        self.digests = {c.case_id: self._digest(c) for c in self.cases}
+        self.records: dict = {}
+        self.chains: dict = {}
+        for case in sorted(self.cases, key=lambda c: (c.chain, c.position)):
+            self.chains.setdefault(case.chain, deque()).append(case)
+        self.by_chain = {chain: list(q) for chain, q in self.chains.items()}
+        self.chain_of = {c.case_id: c.chain for c in self.cases}
+        self.busy: dict = {}            # chain -> task in flight
+        self.tasks: dict = {}
+        self.executed = self.done = 0
+
+    def _digest(self, case: Case) -> str:
+        try:
+            return config_digest(case_config(self.spec.base_config, case.params, self.spec.fixed))
+        except ConfigError:               # the worker reports it as the case's failure
+            return "invalid"
+
+    def load_records(self, out, overwrite: bool) -> None:
+        """The finished cases of an earlier run of this sweep (resuming)."""
+        for case in self.cases:
+            rec = read_record(self.cases_dir / f"{case.case_id}.json")
+            if rec is None or rec.get("status") in RETRY_STATUSES:
+                continue
+            if rec.get("config_hash") != self.digests[case.case_id]:
+                if not overwrite:
+                    raise OutputExistsError(
+                        f"sweep folder {str(out)!r}: case {case.case_id} there was run with "
+                        f"another config; pass --overwrite to run it again or --out for another "
+                        f"folder")
+                continue
+            self.records[case.case_id] = rec
+
+    def report_skipped(self) -> int:
+        for case in self.cases:
+            if case.case_id in self.records:
+                self._count(case.case_id, self.records[case.case_id]["status"], True)
+        return self.done
+
+    def _count(self, cid: str, status: str, skipped: bool) -> None:
+        self.done += 1
+        if self.progress is not None:
+            self.progress(SweepProgress(self.done, len(self.cases), cid, status, skipped))
+
+    def all_done(self) -> bool:
+        return all(c.case_id in self.records for c in self.cases)
+
+    def ordered(self) -> list:
+        return [self.records[c.case_id] for c in self.cases if c.case_id in self.records]
+
+    def write_table(self):
+        return write_table(self.ordered(), self.spec.param_keys, self.folder)
+
+    def _start_from(self, case: Case) -> tuple[str, str]:
+        """(case_id, run file) of the nearest finished case of the chain to start from."""
+        if self.spec.continuation is None:
+            return "", ""
+        best = None
+        for other in self.by_chain[case.chain]:
+            rec = self.records.get(other.case_id)
+            if rec is None or rec.get("status") not in self.spec.continuation.accept:
+                continue
+            path = self.folder / rec["run_file"]
+            if not path.is_file():
+                continue
+            rank = (abs(other.position - case.position), other.position)
+            if best is None or rank < best[0]:
+                best = (rank, other.case_id, path)
+        return ("", "") if best is None else (best[1], str(best[2]))
+
+    def task_for(self, case: Case) -> CaseTask:
+        started_from, start_file = self._start_from(case)
+        name = f"cases/{case.case_id}.h5"
+        return CaseTask(case_id=case.case_id, index=case.index, params=case.params,
+                        base_toml=self.base_toml, fixed=self.spec.fixed,
+                        run_file=str(self.folder / name), run_file_name=name,
+                        start_file=start_file, started_from=started_from,
+                        config_hash=self.digests[case.case_id])
+
+    def fill(self, engine) -> None:
+        """Submit the next unfinished case of every chain that has none in flight."""
+        for chain, queue in self.chains.items():
+            if chain in self.busy:
+                continue
+            while queue:
+                case = queue.popleft()
+                if case.case_id in self.records:
+                    continue
+                task = self.task_for(case)
+                self.tasks[case.case_id] = task
+                engine.submit(task)
+                self.busy[chain] = task
+                self.executed += 1
+                break
+
+    def execute(self, engine) -> None:
+        """Run until no chain has work left; records each case as it finishes."""
+        if engine is None:
+            return
+        last_table = time.perf_counter()
+        self.fill(engine)
+        while self.busy:
+            cid, outcome = engine.next_done()
+            task = self.tasks.pop(cid)
+            rec = outcome if isinstance(outcome, dict) else _failure_record(task, outcome)
+            if rec["status"] == FAILED:
+                log.warning("case %s failed: %s", cid, rec.get("error", ""))
+            write_record(self.cases_dir / f"{cid}.json", rec)
+            self.records[cid] = rec
+            self.busy.pop(self.chain_of[cid], None)
+            self._count(cid, rec["status"], False)
+            self.fill(engine)
+            if time.perf_counter() - last_table > TABLE_EVERY_SECONDS:
+                self.write_table()
+                last_table = time.perf_counter()
