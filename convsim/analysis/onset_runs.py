@@ -80,6 +80,23 @@ class RateFit:
     status: str
 
 
+def _usable_samples(t, vrms) -> tuple[np.ndarray, np.ndarray]:
+    """Finite samples with vrms > 0 at strictly increasing times, without slivers (a last
+    step cut to the end time: a gap under 1e-3 of the median)."""
+    t = np.asarray(t, dtype=float)
+    v = np.asarray(vrms, dtype=float)
+    ok = np.isfinite(t) & np.isfinite(v) & (v > 0.0)
+    t, v = t[ok], v[ok]
+    if t.size:
+        later_than_all = np.concatenate([[True], t[1:] > np.maximum.accumulate(t)[:-1]])
+        t, v = t[later_than_all], v[later_than_all]
+    if t.size > 2:
+        gaps = np.diff(t)
+        wide = np.concatenate([[True], gaps >= 1e-3 * np.median(gaps)])
+        t, v = t[wide], v[wide]
+    return t, v
+
+
 def fit_growth_rate(t, vrms, *, growth_limit: float = 1.0e3, rate_scale: float = 1.0,
                     settle_tolerance: float = 1.0e-3, min_samples: int = 10) -> RateFit:
     """Exponential growth (or decay) rate of the rms velocity over its linear phase.
@@ -111,17 +128,7 @@ def fit_growth_rate(t, vrms, *, growth_limit: float = 1.0e3, rate_scale: float =
     -------
     RateFit
     """
-    t = np.asarray(t, dtype=float)
-    v = np.asarray(vrms, dtype=float)
-    ok = np.isfinite(t) & np.isfinite(v) & (v > 0.0)
-    t, v = t[ok], v[ok]
-    if t.size:                                # strictly increasing times only
-        later_than_all = np.concatenate([[True], t[1:] > np.maximum.accumulate(t)[:-1]])
-        t, v = t[later_than_all], v[later_than_all]
-    if t.size > 2:                            # drop slivers (a last step cut to the end time)
-        gaps = np.diff(t)
-        wide = np.concatenate([[True], gaps >= 1e-3 * np.median(gaps)])
-        t, v = t[wide], v[wide]
+    t, v = _usable_samples(t, vrms)
     if t.size < 3:
         return RateFit(math.nan, math.nan, math.nan, math.nan, int(t.size), "no-data")
     above = np.nonzero(v > growth_limit * v[0])[0]
@@ -412,10 +419,46 @@ def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=Non
     -------
     RunBracket
     """
-    from convsim.analysis.stability import StabilityProblem
-
     if onset is None:
         onset = onset_from_config(config)
+    plan = _plan_bracket(config, onset, factors, grid, amplitude, end_time, max_dt,
+                         growth_limit, richardson, jobs)
+    configs = []
+    for g in plan.grids:
+        configs += bracket_configs(config, plan.rayleigh, plan.mode, grid=g, amplitude=amplitude,
+                                   end_time=plan.end_time, max_dt=plan.max_dt)
+    t0 = time.perf_counter()
+    outputs = _run_all(configs, plan.jobs)
+    wall = time.perf_counter() - t0
+    log.info("onset runs: %d runs in %.2f s on %d workers", len(configs), wall, plan.jobs)
+    theory = _theory_rates(onset, plan)
+    common = dict(theory_rates=theory[0], theory_curve=theory[1], wall_seconds=wall,
+                  max_dt=float(min(plan.max_dt, config.numerics.max_dt)))
+    m = len(plan.rayleigh)
+    coarse = _assemble(plan, outputs[m:], plan.grids[1], common) if richardson else None
+    return _assemble(plan, outputs[:m], plan.grids[0], common, coarse)
+
+
+@dataclass(frozen=True)
+class _BracketPlan:
+    """The checked settings of a run bracket."""
+
+    box_rayleigh: float
+    mode: int
+    wavenumber: float
+    rayleigh: np.ndarray
+    grids: list
+    amplitude: float
+    growth_limit: float
+    rate_scale: float
+    end_time: float
+    max_dt: float
+    jobs: int
+
+
+def _plan_bracket(config, onset, factors, grid, amplitude, end_time, max_dt, growth_limit,
+                  richardson, jobs) -> _BracketPlan:
+    """Check the settings of ``run_bracket`` and fill in the defaults."""
     box_ra, mode, k = onset.box_critical_rayleigh, onset.box_mode, onset.box_wavenumber
     if mode is None or not math.isfinite(box_ra):
         raise ConfigError("onset: the eigen-solver finds no instability in this box, so there "
@@ -430,9 +473,7 @@ def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=Non
     max_dt = 0.02 / rate_scale if max_dt is None else max_dt
     _check_positive("end_time", end_time)
     _check_positive("max_dt", max_dt)
-    if grid is None:
-        grid = default_grid(config.domain.aspect)
-    nx, nz = (int(g) for g in grid)
+    nx, nz = (int(g) for g in (default_grid(config.domain.aspect) if grid is None else grid))
     if not (4 <= nx <= 4096 and 4 <= nz <= 4096):
         raise ConfigError(f"grid = {grid!r}: expected (nx, nz) with 4 <= nx, nz <= 4096")
     if jobs is None:
@@ -440,58 +481,53 @@ def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=Non
             else (os.cpu_count() or 1)
     if isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1:
         raise ConfigError(f"jobs = {jobs!r}: expected a whole number >= 1")
-    rayleigh = np.array(sorted(box_ra * f for f in factors))
     grids = [(nx, nz)]
     if richardson:
         if nx % 2 or nz % 2 or nz < 16:
             raise ConfigError(f"grid = {nx}x{nz}: Richardson extrapolation needs even nx and "
                               "nz, nz >= 16 (the coarse grid halves both)")
         grids.append((nx // 2, nz // 2))
-    configs = []
-    for g in grids:
-        configs += bracket_configs(config, rayleigh, mode, grid=g, amplitude=amplitude,
-                                   end_time=end_time, max_dt=max_dt)
-    t0 = time.perf_counter()
-    outputs = _run_all(configs, jobs)
-    wall = time.perf_counter() - t0
-    log.info("onset runs: %d runs in %.2f s on %d workers", len(configs), wall, jobs)
+    return _BracketPlan(box_ra, int(mode), float(k), np.array(sorted(box_ra * f for f in factors)),
+                        grids, float(amplitude), float(growth_limit), rate_scale, float(end_time),
+                        float(max_dt), jobs)
 
+
+def _theory_rates(onset, plan: _BracketPlan):
+    """The eigen-solver's growth rate at each Ra of the plan, and a curve over the range."""
+    from convsim.analysis.stability import StabilityProblem
     problem = StabilityProblem(onset.layer, onset.points)
 
     def theory(ra):
-        return float(np.max(problem.growth_rates(float(ra), k).real))
-    theory_rates = np.array([theory(ra) for ra in rayleigh])
-    lo, hi = rayleigh[0], rayleigh[-1]
+        return float(np.max(problem.growth_rates(float(ra), plan.wavenumber).real))
+    lo, hi = plan.rayleigh[0], plan.rayleigh[-1]
     pad = 0.05 * (hi - lo)
     curve_ra = np.linspace(lo - pad, hi + pad, 41)
-    curve = (curve_ra, np.array([theory(ra) for ra in curve_ra]))
+    return (np.array([theory(ra) for ra in plan.rayleigh]),
+            (curve_ra, np.array([theory(ra) for ra in curve_ra])))
 
-    def assemble(chunk, g, coarse=None):
-        fits = tuple(fit_growth_rate(o["time"], o["vrms"], growth_limit=growth_limit,
-                                     rate_scale=rate_scale) for o in chunk)
-        for f, o, ra in zip(fits, chunk, rayleigh):
-            if o["status"] != "end-time":
-                log.warning("onset run at Ra = %.6g ended '%s': %s", ra, o["status"],
-                            o["message"])
-            if f.status != "ok":
-                log.warning("onset run at Ra = %.6g: rate fit '%s' (%d samples in the "
-                            "linear phase)", ra, f.status, f.samples)
-        rates = np.array([f.rate for f in fits])
-        ra_c, method = critical_from_rates(rayleigh, rates)
-        extra = {}
-        if coarse is not None:
-            ra_x = (4.0 * ra_c - coarse.critical_rayleigh) / 3.0
-            extra = dict(coarse=coarse, extrapolated_rayleigh=ra_x,
-                         extrapolated_difference=ra_x / box_ra - 1.0)
-        return RunBracket(rayleigh=rayleigh, rates=rates,
-                          stderr=np.array([f.stderr for f in fits]), theory_rates=theory_rates,
-                          fits=fits, run_status=tuple(o["status"] for o in chunk),
-                          critical_rayleigh=ra_c, method=method, eigen_critical_rayleigh=box_ra,
-                          relative_difference=ra_c / box_ra - 1.0, mode=int(mode),
-                          wavenumber=float(k), grid=g, amplitude=float(amplitude),
-                          end_time=float(end_time), max_dt=float(min(max_dt,
-                                                                      config.numerics.max_dt)),
-                          theory_curve=curve, wall_seconds=wall, **extra)
-    m = len(rayleigh)
-    coarse = assemble(outputs[m:], grids[1]) if richardson else None
-    return assemble(outputs[:m], grids[0], coarse)
+
+def _assemble(plan: _BracketPlan, chunk, grid, common: dict, coarse=None) -> RunBracket:
+    """The bracket of one grid from its runs' outputs (``coarse``: for the extrapolation)."""
+    fits = tuple(fit_growth_rate(o["time"], o["vrms"], growth_limit=plan.growth_limit,
+                                 rate_scale=plan.rate_scale) for o in chunk)
+    for f, o, ra in zip(fits, chunk, plan.rayleigh):
+        if o["status"] != "end-time":
+            log.warning("onset run at Ra = %.6g ended '%s': %s", ra, o["status"], o["message"])
+        if f.status != "ok":
+            log.warning("onset run at Ra = %.6g: rate fit '%s' (%d samples in the linear phase)",
+                        ra, f.status, f.samples)
+    rates = np.array([f.rate for f in fits])
+    ra_c, method = critical_from_rates(plan.rayleigh, rates)
+    box_ra = plan.box_rayleigh
+    extra = {}
+    if coarse is not None:
+        ra_x = (4.0 * ra_c - coarse.critical_rayleigh) / 3.0
+        extra = dict(coarse=coarse, extrapolated_rayleigh=ra_x,
+                     extrapolated_difference=ra_x / box_ra - 1.0)
+    return RunBracket(rayleigh=plan.rayleigh, rates=rates,
+                      stderr=np.array([f.stderr for f in fits]), fits=fits,
+                      run_status=tuple(o["status"] for o in chunk), critical_rayleigh=ra_c,
+                      method=method, eigen_critical_rayleigh=box_ra,
+                      relative_difference=ra_c / box_ra - 1.0, mode=plan.mode,
+                      wavenumber=plan.wavenumber, grid=grid, amplitude=plan.amplitude,
+                      end_time=plan.end_time, **common, **extra)
