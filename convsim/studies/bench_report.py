@@ -78,6 +78,15 @@ def _other_seconds(row: dict) -> float:
 # -- markdown ---------------------------------------------------------------------------------
 def markdown(bench: dict) -> str:
     """The report text from ``BenchResult.as_dict()``."""
+    L = _header(bench) + _summary(bench) + _acceptance(bench)
+    for c in bench["cases"]:
+        L += _case_section(c)
+    L += _performance(bench)
+    L += _method(bench)
+    return "\n".join(L + _provenance(bench["provenance"]))
+
+
+def _header(bench: dict) -> list:
     prov = bench["provenance"]
     L = ["# convsim benchmark report", ""]
     verdict = "PASS" if bench["passed"] else "FAIL"
@@ -90,8 +99,10 @@ def markdown(bench: dict) -> str:
     if bench["overrides"]:
         L += ["Config overrides applied to every case: "
               + ", ".join(f"`{o}`" for o in bench["overrides"]) + ".", ""]
-    # summary
-    L += ["## Summary", ""]
+    return L
+
+
+def _summary(bench: dict) -> list:
     rows = []
     for c in bench["cases"]:
         ext, err, order = c["extrapolated"], c["extrapolated_relative_error"], c["observed_order"]
@@ -102,10 +113,13 @@ def markdown(bench: dict) -> str:
                      _g(ext["nusselt_top"]), _pct(err["nusselt_top"]), _g(order["nusselt_top"], 3),
                      _g(ext["vrms"]), _pct(err["vrms"]), _g(order["vrms"], 3),
                      "pass" if c["passed"] else "FAIL"])
-    L += _table(["case", "Ra", "Nu finest", "err", "Nu extrap.", "err", "p(Nu)",
-                 "vrms extrap.", "err", "p(vrms)", "verdict"], rows)
-    # acceptance and sources
-    L += ["## Acceptance (ours, not published numbers)", ""]
+    return ["## Summary", ""] + _table(["case", "Ra", "Nu finest", "err", "Nu extrap.", "err",
+                                        "p(Nu)", "vrms extrap.", "err", "p(vrms)", "verdict"], rows)
+
+
+def _acceptance(bench: dict) -> list:
+    """Our acceptance rule, then the published sources and definitions."""
+    L = ["## Acceptance (ours, not published numbers)", ""]
     L += _table(["quantity", "finest grid: abs. rel. error at most",
                  "extrapolated: abs. rel. error at most", "observed order at least"],
                 [[LABEL[q], _pct(a.finest, 2).lstrip("+"), _pct(a.extrapolated, 2).lstrip("+"),
@@ -119,29 +133,31 @@ def markdown(bench: dict) -> str:
         for q in QUANTITIES:
             pv = PUBLISHED[case["case"]][q]
             sources[pv.source.key] = pv.source
-    for s in sources.values():
-        L += [f"- {s.citation}." + (f" **{s.note}.**" if s.note else "")]
+    for src in sources.values():
+        L += [f"- {src.citation}." + (f" **{src.note}.**" if src.note else "")]
     L += [""]
     L += [f"- {d}." for d in DEFINITIONS.values()]
     L += ["- In convsim, q1 is `RunResult.corner_gradients[0]` at (0, 1) and q2 is "
           "`corner_gradients[1]` at (1, 1); each row records the side of the upwelling.", ""]
-    # cases
-    for c in bench["cases"]:
-        L += _case_section(c)
-    L += _performance(bench)
-    L += _method(bench)
-    L += ["## Provenance", ""]
+    return L
+
+
+def _provenance(prov: dict) -> list:
     v = prov["versions"]
-    L += [f"- date (UTC): {prov['date']}",
-          f"- platform: {prov['platform']} ({prov['machine']})",
-          f"- CPU: {prov['cpu'] or 'unknown'}; CPU count {prov['cpu_count']}",
-          "- versions: " + ", ".join(f"{k} {val}" for k, val in v.items()),
-          f"- source: git {prov['git'] or 'unknown'}",
-          f"- command: `{prov['command'] or 'convsim bench'}`", ""]
-    return "\n".join(L)
+    return ["## Provenance", "",
+            f"- date (UTC): {prov['date']}",
+            f"- platform: {prov['platform']} ({prov['machine']})",
+            f"- CPU: {prov['cpu'] or 'unknown'}; CPU count {prov['cpu_count']}",
+            "- versions: " + ", ".join(f"{k} {val}" for k, val in v.items()),
+            f"- source: git {prov['git'] or 'unknown'}",
+            f"- command: `{prov['command'] or 'convsim bench'}`", ""]
 
 
 def _case_section(c: dict) -> list:
+    return _case_setup(c) + _case_runs(c) + _case_convergence(c) + _case_checks(c)
+
+
+def _case_setup(c: dict) -> list:
     s = c["settings"]
     b, st, stop, num, visc = (s.get("boundaries", {}), s.get("start", {}), s.get("stop", {}),
                               s.get("numerics", {}), s.get("viscosity", {}))
@@ -163,8 +179,12 @@ def _case_section(c: dict) -> list:
          f"CFL {num.get('cfl')}, Stokes solver {num.get('stokes_solver')}", ""]
     for note in c["notes"]:
         L += [f"Note: {note}.", ""]
+    return L
+
+
+def _case_runs(c: dict) -> list:
     pub = c["published"]
-    L += ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES)
+    L = ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES)
           + " (" + PUBLISHED[c["case"]]["nusselt_top"].citation + ").", ""]
     rows = []
     for r in c["rows"]:
@@ -181,7 +201,12 @@ def _case_section(c: dict) -> list:
               + "; ".join(f"grid {r['grid']}: " + ", ".join(f"Ra {ra:.0e} {n} steps"
                                                            for ra, n in r["stage_steps"])
                           for r in staged) + ".", ""]
-    L += ["Convergence from the three finest steady grids:", ""]
+    return L
+
+
+def _case_convergence(c: dict) -> list:
+    pub = c["published"]
+    L = ["Convergence from the three finest steady grids:", ""]
     rows = []
     for q in QUANTITIES:
         est = c["convergence"].get(q)
@@ -200,7 +225,11 @@ def _case_section(c: dict) -> list:
                      _g(est["asymptotic_ratio"], 4)])
     L += _table(["quantity", "behaviour", "order p", "extrapolated", "GCI fine",
                  "published in f1 +- GCI", "err extrap.", "asymptotic ratio"], rows)
-    L += ["Checks:", ""]
+    return L
+
+
+def _case_checks(c: dict) -> list:
+    L = ["Checks:", ""]
     for ch in c["checks"]:
         mark = "pass" if ch["passed"] else "FAIL"
         if ch["kind"] == "steady":
