@@ -254,6 +254,49 @@ def _flatten(table: dict, prefix: str = "") -> dict:
     return out
 
 
+def _parse_axes(raw_axes, fixed: dict, source: str) -> list:
+    """The [[axis]] tables: a config key each (not also in [fixed], not twice) and its values."""
+    if not isinstance(raw_axes, list) or not raw_axes:
+        raise ConfigError(f"{source}: expected at least one [[axis]] table")
+    axes = []
+    for i, raw in enumerate(raw_axes):
+        where = f"axis[{i}]"
+        if not isinstance(raw, dict):
+            raise ConfigError(f"{source}: {where} must be a table")
+        _check_keys(raw, AXIS_KEYS, where)
+        field = _config_field(raw.get("key"), f"{where}.key")
+        key = raw["key"]
+        if key in fixed:
+            raise ConfigError(f"{where}.key = {key!r}: also set in [fixed]; keep one")
+        if any(a.key == key for a in axes):
+            raise ConfigError(f"{where}.key = {key!r}: used by two axes")
+        values = _axis_values(raw, field, where)
+        if len({json.dumps(v, sort_keys=True) for v in values}) != len(values):
+            raise ConfigError(f"{where}.values = {list(values)!r}: repeated values")
+        axes.append(Axis(key, values))
+    return axes
+
+
+def _parse_continuation(raw_c, axes: list, source: str):
+    """The optional [continuation] table: the axis to chain along and the accepted statuses."""
+    if raw_c is None:
+        return None
+    if not isinstance(raw_c, dict):
+        raise ConfigError(f"{source}: [continuation] must be a table")
+    _check_keys(raw_c, CONTINUATION_KEYS, "continuation")
+    axis = raw_c.get("axis")
+    keys = [a.key for a in axes]
+    if axis not in keys:
+        raise ConfigError(f"continuation.axis = {axis!r}: expected one of the axis keys "
+                          f"{', '.join(keys)}{_suggest(str(axis), keys)}")
+    accept = raw_c.get("accept", ["steady"])
+    if (not isinstance(accept, list) or not accept
+            or any(a not in RUN_STATUSES for a in accept)):
+        raise ConfigError(f"continuation.accept = {accept!r}: expected a list of run "
+                          f"statuses from {', '.join(RUN_STATUSES)}")
+    return Continuation(axis, tuple(accept))
+
+
 def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") -> SweepSpec:
     """A ``SweepSpec`` from the TOML mapping of a sweep file (paths relative to ``folder``)."""
     from convsim.config import load_config
@@ -275,45 +318,11 @@ def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") 
     fixed = _flatten(fixed_raw)
     for key in fixed:
         _config_field(key, "fixed key")
-    raw_axes = data.get("axis", [])
-    if not isinstance(raw_axes, list) or not raw_axes:
-        raise ConfigError(f"{source}: expected at least one [[axis]] table")
-    axes = []
-    for i, raw in enumerate(raw_axes):
-        where = f"axis[{i}]"
-        if not isinstance(raw, dict):
-            raise ConfigError(f"{source}: {where} must be a table")
-        _check_keys(raw, AXIS_KEYS, where)
-        field = _config_field(raw.get("key"), f"{where}.key")
-        key = raw["key"]
-        if key in fixed:
-            raise ConfigError(f"{where}.key = {key!r}: also set in [fixed]; keep one")
-        if any(a.key == key for a in axes):
-            raise ConfigError(f"{where}.key = {key!r}: used by two axes")
-        values = _axis_values(raw, field, where)
-        if len({json.dumps(v, sort_keys=True) for v in values}) != len(values):
-            raise ConfigError(f"{where}.values = {list(values)!r}: repeated values")
-        axes.append(Axis(key, values))
+    axes = _parse_axes(data.get("axis", []), fixed, source)
     if combine == "zip" and len({len(a.values) for a in axes}) > 1:
         raise ConfigError(f"{source}: combine = 'zip' needs axes of equal length, got "
                           + ", ".join(f"{a.key}: {len(a.values)}" for a in axes))
-    continuation = None
-    raw_c = data.get("continuation")
-    if raw_c is not None:
-        if not isinstance(raw_c, dict):
-            raise ConfigError(f"{source}: [continuation] must be a table")
-        _check_keys(raw_c, CONTINUATION_KEYS, "continuation")
-        axis = raw_c.get("axis")
-        keys = [a.key for a in axes]
-        if axis not in keys:
-            raise ConfigError(f"continuation.axis = {axis!r}: expected one of the axis keys "
-                              f"{', '.join(keys)}{_suggest(str(axis), keys)}")
-        accept = raw_c.get("accept", ["steady"])
-        if (not isinstance(accept, list) or not accept
-                or any(a not in RUN_STATUSES for a in accept)):
-            raise ConfigError(f"continuation.accept = {accept!r}: expected a list of run "
-                              f"statuses from {', '.join(RUN_STATUSES)}")
-        continuation = Continuation(axis, tuple(accept))
+    continuation = _parse_continuation(data.get("continuation"), axes, source)
     title = data.get("title", "")
     if not isinstance(title, str):
         raise ConfigError(f"{source}: title = {title!r}: expected a string")
