@@ -52,7 +52,8 @@ class ProgressBar:
         self.bar.close()
 
 
-EXIT_FOR_STATUS = {"steady": 0, "end-time": 0, "step-limit": 0, "diverged": 3, "interrupted": 130}
+#: Exit status of ``convsim run`` for the statuses that are not a normal end (0).
+EXIT_FOR_STATUS = {"diverged": 3, "interrupted": 130}
 
 
 @command("run", "run a config: a convecting box to steady state or an end time")
@@ -98,7 +99,7 @@ def _run(args):
     if result.status == "diverged":
         print(f"convsim: run diverged: {result.message}; the last good state is in "
               f"{result.output}", file=sys.stderr)
-    return EXIT_FOR_STATUS[result.status]
+    return EXIT_FOR_STATUS.get(result.status, 0)
 
 
 def _check_restart_config(path, cfg):

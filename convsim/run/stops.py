@@ -26,8 +26,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Decision", "StopRule", "RULES", "register", "rules_from_config", "EndTime",
-           "StepLimit", "SteadyState", "Interrupted", "runaway", "SETTLE_STEPS"]
+__all__ = ["Decision", "StopRule", "RULES", "register", "rules_from_config", "run_statuses",
+           "EndTime", "StepLimit", "SteadyState", "Interrupted", "runaway", "SETTLE_STEPS"]
 
 SETTLE_STEPS = 20
 TIME_ROUNDING = 1e-12      # relative: a time this close to a target has reached it
@@ -43,7 +43,12 @@ class Decision:
 
 
 class StopRule:
-    """Base class: a rule that never stops and keeps no state."""
+    """Base class: a rule that never stops and keeps no state.
+
+    ``status``: the run status of the rule's decisions (listed by ``run_statuses``).
+    """
+
+    status = ""
 
     def observe(self, report) -> Decision | None:
         return None
@@ -70,6 +75,11 @@ def register(cls):
     return cls
 
 
+def run_statuses() -> tuple:
+    """Every status a run can end with: one per registered rule, then interrupted, diverged."""
+    return tuple(cls.status for cls in RULES) + (Interrupted.status, "diverged")
+
+
 def rules_from_config(stop) -> list:
     """The rules the config's [stop] table asks for, in the order they are consulted."""
     made = (cls.from_config(stop) for cls in RULES)
@@ -81,6 +91,8 @@ class SteadyState(StopRule):
     """Steady when, for ``settle`` consecutive steps, max|dT/dt| <= tol * max(Nu, 1), the
     relative drift (peak to peak) of Nu and vrms over those steps <= tol and the heat
     imbalance (bottom inflow + heating - top outflow, relative) <= tol."""
+
+    status = "steady"
 
     def __init__(self, tolerance: float, settle: int = SETTLE_STEPS):
         self.tolerance, self.settle = float(tolerance), int(settle)
@@ -105,7 +117,7 @@ class SteadyState(StopRule):
                  and abs(report.heat_imbalance) <= tol and bool(np.all(drift <= tol)))
         self.settled = self.settled + 1 if quiet else 0
         if self.settled >= self.settle:
-            return Decision("steady", f"steady at step {report.step} (tolerance {tol:g})",
+            return Decision(self.status, f"steady at step {report.step} (tolerance {tol:g})",
                             ends_stage=True)
         return None
 
@@ -122,6 +134,8 @@ class SteadyState(StopRule):
 class EndTime(StopRule):
     """Stop at the end time; the last step is cut to land on it."""
 
+    status = "end-time"
+
     def __init__(self, end_time: float):
         self.end_time = float(end_time)
 
@@ -134,13 +148,15 @@ class EndTime(StopRule):
 
     def observe(self, report) -> Decision | None:
         if report.time >= self.end_time * (1 - TIME_ROUNDING):
-            return Decision("end-time", f"reached end time {self.end_time:g}")
+            return Decision(self.status, f"reached end time {self.end_time:g}")
         return None
 
 
 @register
 class StepLimit(StopRule):
     """Stop after a number of steps (counted from the start of the run, over restarts)."""
+
+    status = "step-limit"
 
     def __init__(self, max_steps: int):
         self.max_steps = int(max_steps)
@@ -151,19 +167,21 @@ class StepLimit(StopRule):
 
     def observe(self, report) -> Decision | None:
         if report.step >= self.max_steps:
-            return Decision("step-limit", f"reached the step limit {self.max_steps}")
+            return Decision(self.status, f"reached the step limit {self.max_steps}")
         return None
 
 
 class Interrupted(StopRule):
     """Stop when the interrupt flag (``run.interrupt.DeferredInterrupt``) is set."""
 
+    status = "interrupted"
+
     def __init__(self, flag):
         self.flag = flag
 
     def observe(self, report) -> Decision | None:
         if self.flag.requested:
-            return Decision("interrupted", f"interrupted at step {report.step}")
+            return Decision(self.status, f"interrupted at step {report.step}")
         return None
 
 

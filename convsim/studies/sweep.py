@@ -116,6 +116,7 @@ from convsim.studies.sweep_backends import BACKENDS, make_backend
 from convsim.studies.sweep_case import (INTERIOR_BAND, CaseTask, base_record, case_config, config_digest,
                          interior_rms_velocity, law_viscosity_contrast, run_case)
 from convsim.files.jsonio import write_json
+from convsim.run.stops import run_statuses
 from convsim.studies.sweep_table import FAILED, read_record, write_record, write_table
 
 __all__ = ["Axis", "Continuation", "SweepSpec", "Case", "CaseTask", "SweepProgress",
@@ -128,7 +129,6 @@ log = logging.getLogger(__name__)
 SWEEP_KEYS = ("title", "base", "combine", "fixed", "axis", "continuation")
 AXIS_KEYS = ("key", "values", "start", "stop", "count", "spacing")
 CONTINUATION_KEYS = ("axis", "accept")
-RUN_STATUSES = ("steady", "end-time", "step-limit", "diverged", "interrupted")
 RETRY_STATUSES = (FAILED, "interrupted")    # a rerun runs these cases again
 
 
@@ -290,10 +290,11 @@ def _parse_continuation(raw_c, axes: list, source: str):
         raise ConfigError(f"continuation.axis = {axis!r}: expected one of the axis keys "
                           f"{', '.join(keys)}{_suggest(str(axis), keys)}")
     accept = raw_c.get("accept", ["steady"])
+    statuses = run_statuses()
     if (not isinstance(accept, list) or not accept
-            or any(a not in RUN_STATUSES for a in accept)):
+            or any(a not in statuses for a in accept)):
         raise ConfigError(f"continuation.accept = {accept!r}: expected a list of run "
-                          f"statuses from {', '.join(RUN_STATUSES)}")
+                          f"statuses from {', '.join(statuses)}")
     return Continuation(axis, tuple(accept))
 
 

@@ -107,3 +107,8 @@ def test_a_new_rule_is_one_registered_class(monkeypatch):
 
     assert isinstance(rules_from_config(Config().stop)[-1], Never)
     assert Never().time_limit() == math.inf and Never().restart_state() == {}
+
+
+def test_every_status_is_declared_once_by_its_rule():
+    assert stops.run_statuses() == ("steady", "end-time", "step-limit", "interrupted", "diverged")
+    assert all(cls.status for cls in stops.RULES)
