@@ -58,7 +58,7 @@ def steady_residual(model, T: np.ndarray, psi_guess=None):
         psi, _ = model.solve_flow(T, psi_guess)
     except ArithmeticError:
         return np.full_like(T, np.nan), psi_guess
-    return model.tendency(T, psi) + model.diffusion.apply(T), psi
+    return model.explicit_term(T, psi) + model.diffusion.apply(T), psi
 
 
 def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
@@ -127,7 +127,7 @@ class _PseudoTransient:
         K - C(u) of the Jacobian (the preconditioner)."""
         model, K = self.model, self.K
         psi, dflow = model.linearised_flow(T)
-        base = model.tendency(T, psi)
+        base = model.explicit_term(T, psi)
         f = (base + model.diffusion.apply(T)).ravel()
         u, w = face_velocities(model.grid, psi)
         local = (K - upwind_matrix(model.grid, u, w)).tocsc()
@@ -138,7 +138,7 @@ class _PseudoTransient:
             if vn == 0.0:
                 return np.zeros_like(v)
             eps = 1e-7 * (1.0 + float(np.abs(T).max())) / vn
-            moved = model.tendency(T + eps * vv, psi + eps * dflow(vv))
+            moved = model.explicit_term(T + eps * vv, psi + eps * dflow(vv))
             self.evaluations += 1
             return ((moved - base) / eps).ravel() + K @ v
         return f, psi, jv, local
