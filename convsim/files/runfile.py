@@ -86,8 +86,6 @@ COORDINATES = {
     "record": "index of the time-series record",
 }
 
-RESTART_KEYS = ("temperature", "psi", "previous_temperature", "previous_tendency",
-                "factor_weights")
 
 
 def open_run_file(path, mode: str = "r"):

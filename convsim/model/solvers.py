@@ -36,14 +36,13 @@ from typing import Callable
 import numpy as np
 
 from convsim.errors import ConfigError, SolverError
+from convsim.model.choices import FACTOR_REUSE
 from convsim.model.linsolve import (LaggedFactorSolver, SolveReport, available_factorizers,
                                     make_factorizer)
 from convsim.model.stokes import StokesOperator, TransformSolver
 
-__all__ = ["StokesProblem", "StokesSolver", "SOLVERS", "make_stokes_solver", "suitable_solvers",
-           "FACTOR_REUSE"]
+__all__ = ["StokesProblem", "StokesSolver", "SOLVERS", "make_stokes_solver", "suitable_solvers"]
 
-FACTOR_REUSE = ("adaptive", "always")
 FD_STEP = 1e-5      # relative step of the central difference of eta(T) along v
 
 

@@ -4,7 +4,7 @@ Plain data (arrays and numbers), so that a run continues bit for bit from it:
 ``to_record`` flattens it into {name: array or number} for the run file's
 restart group and ``from_record`` reads it back.  Record keys, for every
 advected field f (see ``convsim.model.fields``): ``f`` (f^n), ``previous_f``
-(f^{n-1}), ``previous_tendency_f`` (N_f^{n-1}); then ``psi``, ``time``,
+(f^{n-1}), ``previous_explicit_f`` (N_f^{n-1}); then ``psi``, ``time``,
 ``step``, ``previous_dt`` and the Stokes solver's cache as ``solver_*`` (opaque
 here: only the solver reads it).
 """
@@ -33,8 +33,8 @@ class ModelState:
         Streamfunction of the fields at t_n.
     previous : dict or None
         Field name -> values at t_{n-1} (None: no history, the next step is first order).
-    previous_tendency : dict or None
-        Field name -> explicit tendency N^{n-1} = -div(u f) + S at t_{n-1}.
+    previous_explicit : dict or None
+        Field name -> explicit term N^{n-1} = -div(u f) + S at t_{n-1}.
     previous_dt : float
         t_n - t_{n-1} (0: none).
     solver : dict
@@ -46,7 +46,7 @@ class ModelState:
     fields: dict
     psi: np.ndarray
     previous: dict | None = None
-    previous_tendency: dict | None = None
+    previous_explicit: dict | None = None
     previous_dt: float = 0.0
     solver: dict = field(default_factory=dict)
 
@@ -62,8 +62,8 @@ def to_record(state: ModelState) -> dict:
     for name, values in state.fields.items():
         out[name] = values
         out[f"previous_{name}"] = None if state.previous is None else state.previous[name]
-        out[f"previous_tendency_{name}"] = (None if state.previous_tendency is None
-                                            else state.previous_tendency[name])
+        out[f"previous_explicit_{name}"] = (None if state.previous_explicit is None
+                                            else state.previous_explicit[name])
     out.update(psi=state.psi, time=state.time, step=state.step, previous_dt=state.previous_dt)
     out.update({f"solver_{k}": v for k, v in state.solver.items()})
     return out
@@ -72,8 +72,8 @@ def to_record(state: ModelState) -> dict:
 def _legacy(record: dict) -> dict:
     """Keys of run files written before the fields had names (temperature only)."""
     record = dict(record)
-    if "previous_tendency" in record and "previous_tendency_temperature" not in record:
-        record["previous_tendency_temperature"] = record.pop("previous_tendency")
+    if "previous_tendency" in record and "previous_explicit_temperature" not in record:
+        record["previous_explicit_temperature"] = record.pop("previous_tendency")
     if "factor_weights" in record and not any(k.startswith("solver_") for k in record):
         record["solver_factor_weights"] = record.pop("factor_weights")
     return record
@@ -91,12 +91,12 @@ def from_record(record: dict, names) -> ModelState:
         raise KeyError(f"restart state lacks the advected field(s) {', '.join(missing)}")
     fields = {n: np.array(record[n]) for n in names}
     previous = {n: record.get(f"previous_{n}") for n in names}
-    tendency = {n: record.get(f"previous_tendency_{n}") for n in names}
-    history = all(v is not None for v in (*previous.values(), *tendency.values()))
+    explicit = {n: record.get(f"previous_explicit_{n}") for n in names}
+    history = all(v is not None for v in (*previous.values(), *explicit.values()))
     solver = {k[len("solver_"):]: v for k, v in record.items() if k.startswith("solver_")}
     return ModelState(
         time=float(record["time"]), step=int(record["step"]), fields=fields,
         psi=np.array(record["psi"]),
         previous={n: np.array(v) for n, v in previous.items()} if history else None,
-        previous_tendency={n: np.array(v) for n, v in tendency.items()} if history else None,
+        previous_explicit={n: np.array(v) for n, v in explicit.items()} if history else None,
         previous_dt=float(record["previous_dt"]), solver=solver)

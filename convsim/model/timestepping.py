@@ -3,12 +3,14 @@
 One step, from the state (f^n for every advected field f, psi^n) at time t_n
 (psi^n already solved from the fields at t_n; see ``convsim.model.fields``):
 
-1. explicit tendency N_f^n = -div(u^n f^n) + S_f for every field (``energy.advection``,
-   the numba TVD kernel; S_f the uniform source, the internal heating H for T);
+1. explicit term N_f^n = -div(u^n f^n) + S_f for every field (``energy.advection``,
+   the numba TVD kernel; S_f the uniform source, the internal heating H for T; the
+   tendency dT/dt is the whole right side, its largest value ``StepReport.tendency_max``);
 2. dt from the Courant number of u^n, capped by ``max_dt`` and by a growth of at
    most 25 % over the previous step;
 3. implicit-explicit update of every field (diffusion implicit, advection and
-   sources explicit).  Second-order SBDF with step ratio r = dt_n / dt_{n-1}:
+   sources explicit).  Second-order SBDF with step ratio r = dt_n / dt_{n-1} (w is the
+   vertical velocity):
 
        (1+2r)/(1+r) f^{n+1} - (1+r) f^n + r^2/(1+r) f^{n-1}
            = dt_n [ (1+r) N^n - r N^{n-1} + kappa_f lap f^{n+1} ],
@@ -222,12 +224,12 @@ class Model:
         self.flow_solver.restore(state.solver)
         return state
 
-    def tendency(self, T: np.ndarray, psi: np.ndarray) -> np.ndarray:
+    def explicit_term(self, T: np.ndarray, psi: np.ndarray) -> np.ndarray:
         """Explicit part of the temperature equation N = -div(u T) + H, shape (nz, nx)."""
         u, w = face_velocities(self.grid, psi)
-        return self._field_tendency(self.fields[0], T, u, w)
+        return self._explicit_term_of(self.fields[0], T, u, w)
 
-    def _field_tendency(self, f: FieldDeclaration, values, u, w) -> np.ndarray:
+    def _explicit_term_of(self, f: FieldDeclaration, values, u, w) -> np.ndarray:
         """N_f = -div(u f) + S_f for one declared field, shape (nz, nx)."""
         return advection(self.grid, values, u, w, f.boundaries, self.limiter) + f.source
 
@@ -243,7 +245,7 @@ class Model:
         name = f.name
         if c.history:
             rhs = (c.a1 * state.fields[name] - c.a2 * state.previous[name]
-                   + dt * (c.b1 * N[name] - c.b2 * state.previous_tendency[name]))
+                   + dt * (c.b1 * N[name] - c.b2 * state.previous_explicit[name]))
         else:
             rhs = state.fields[name] + dt * N[name]
         if f.diffusivity == 0.0:
@@ -275,7 +277,7 @@ class Model:
         timings = {}
         t0 = time.perf_counter()
         u, w = face_velocities(self.grid, state.psi)
-        N = {f.name: self._field_tendency(f, state.fields[f.name], u, w) for f in self.fields}
+        N = {f.name: self._explicit_term_of(f, state.fields[f.name], u, w) for f in self.fields}
         timings["advect"] = time.perf_counter() - t0
         dt = self.courant_dt(state.psi)
         if state.previous_dt > 0.0:
@@ -296,7 +298,7 @@ class Model:
         heat_rate = ((c.a0 * T_new.sum() - c.a1 * T.sum() + c.a2 * previous_sum)
                      * self.grid.dx * self.grid.dz / dt)
         new = ModelState(time=state.time + dt, step=state.step + 1, fields=fields, psi=psi_new,
-                         previous=state.fields, previous_tendency=N, previous_dt=dt,
+                         previous=state.fields, previous_explicit=N, previous_dt=dt,
                          solver=self.flow_solver.state())
         report = self.report(new, dt, heat_rate, rejections, solve)
         timings["diagnose"] = time.perf_counter() - t0
