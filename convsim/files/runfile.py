@@ -41,6 +41,7 @@ import h5py
 import numpy as np
 
 from convsim.errors import OutputExistsError, SnapshotError
+from convsim.model.diagnostics import DIAGNOSTICS
 from convsim.model.fields import ADVECTED
 
 __all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
@@ -62,19 +63,13 @@ FIELDS = {
     "step": ((), "1", "time step number of the snapshot"),
 }
 
+# the step's own columns, then every declared diagnostic (units, long_name, CF attributes)
 SERIES = {
     "series_time": ("1", "time of the record, units d^2/kappa"),
     "series_step": ("1", "time step number"),
     "dt": ("1", "time step size, units d^2/kappa"),
     "rayleigh": ("1", "Rayleigh number in force"),
-    "nusselt_top": ("1", "Nusselt number at the top"),
-    "nusselt_bottom": ("1", "Nusselt number at the bottom"),
-    "vrms": ("1", "root-mean-square velocity, units kappa/d"),
-    "surface_vrms": ("1", "rms horizontal velocity at the top, units kappa/d"),
-    "mean_temperature": ("1", "mean temperature"),
-    "energy_residual": ("1", "heat budget misfit over the top heat flow"),
-    "tendency_max": ("1", "max |dT/dt|"),
-    "stokes_iterations": ("1", "conjugate-gradient iterations of the Stokes solve"),
+    **{name: (d.units, d.long_name) for name, d in DIAGNOSTICS.items()},
 }
 
 COORDINATES = {
@@ -186,10 +181,12 @@ class RunFileWriter:
                 self._attach(f, d, ("time",) + dims, units, long_name)
                 d.attrs.update(ADVECTED[name].cf if name in ADVECTED else {})
             for name, (units, long_name) in SERIES.items():
+                kind = DIAGNOSTICS[name].dtype if name in DIAGNOSTICS else "f8"
                 d = f.create_dataset(name, shape=(0,), maxshape=(None,),
-                                     dtype="i8" if name in ("series_step", "stokes_iterations") else "f8",
+                                     dtype="i8" if name == "series_step" else kind,
                                      chunks=(4096,))
                 self._attach(f, d, ("record",), units, long_name)
+                d.attrs.update(DIAGNOSTICS[name].cf if name in DIAGNOSTICS else {})
                 if name != "series_time":
                     d.attrs["coordinates"] = "series_time"  # CF auxiliary coordinate
         os.replace(tmp, self.path)
@@ -225,7 +222,7 @@ class RunFileWriter:
                     m = f["record"].shape[0]
                     f["record"].resize((m + rows,))
                     f["record"][m:] = np.arange(m, m + rows)
-                    for name in SERIES:
+                    for name in (n for n in SERIES if n in f):
                         d = f[name]
                         d.resize((m + rows,))
                         d[m:] = series[name]
@@ -298,7 +295,7 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
                 raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
                                     f"{count} (0 to {count - 1})")
             fields = {name: f[name][index] for name in stored_fields(f)}
-            series = {name: f[name][:] for name in SERIES}
+            series = {name: f[name][:] for name in SERIES if name in f}
             state = {}
             if restart and "restart" in f:
                 g = f["restart"]

@@ -33,7 +33,7 @@ The time loop itself belongs to ``convsim.run.controller``.
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import field, make_dataclass
 from typing import NamedTuple
 
 import numpy as np
@@ -54,25 +54,20 @@ MAX_REJECTIONS = 6
 GROWTH_LIMIT = 1.25
 
 
-@dataclass
-class StepReport:
-    """Diagnostics of the state reached by one step, and what the step cost."""
+StepReport = make_dataclass(
+    "StepReport",
+    [("step", int), ("time", float), ("dt", float)]
+    + [(name, float) for name in diag.DIAGNOSTICS]
+    + [("rejections", int, 0), ("refactored", bool, False),
+       ("seconds", dict, field(default_factory=dict))])
+StepReport.__doc__ = """Diagnostics of the state reached by one step, and what the step cost.
 
-    step: int
-    time: float
-    dt: float
-    nusselt_top: float
-    nusselt_bottom: float
-    vrms: float
-    surface_vrms: float
-    mean_temperature: float
-    energy_residual: float                 # heat budget misfit of the step (round-off)
-    heat_imbalance: float                  # bottom inflow + heating - top outflow (0 when steady)
-    tendency_max: float                    # max |T^{n+1} - T^n| / dt
-    rejections: int = 0
-    stokes_iterations: int = 0
-    refactored: bool = False
-    seconds: dict = field(default_factory=dict)   # wall time per phase
+Fields: ``step``, ``time``, ``dt``; one per declared diagnostic
+(``convsim.model.diagnostics.DIAGNOSTICS``: nusselt_top, nusselt_bottom, vrms, ...);
+``rejections`` (halvings of dt), ``refactored`` (the Stokes factor was renewed) and
+``seconds`` (wall time per phase: advect, diffuse, stokes, factor, diagnose).
+"""
+StepReport.__module__ = __name__
 
 
 class StepFailed(RuntimeError):
@@ -312,20 +307,19 @@ class Model:
 
     def report(self, state: ModelState, dt: float, heat_rate: float, rejections: int = 0,
                solve: SolveReport | None = None) -> StepReport:
-        g, T = self.grid, state.temperature
-        nu_top, nu_bottom = diag.nusselt_numbers(g, T, self.thermal)
-        change = (np.abs(T - state.previous["temperature"]).max() / dt
-                  if state.previous is not None and dt > 0 else float("nan"))
+        """The declared diagnostics of the state a step of size dt reached."""
         solve = solve or SolveReport()
-        residual, imbalance = diag.heat_budget(g, heat_rate, T, self.thermal, self.internal_heating)
-        return StepReport(
-            step=state.step, time=state.time, dt=dt, nusselt_top=nu_top,
-            nusselt_bottom=nu_bottom, vrms=diag.rms_velocity(g, state.psi),
-            surface_vrms=diag.surface_rms_velocity(g, state.psi),
-            mean_temperature=float(T.mean()),
-            energy_residual=residual, heat_imbalance=imbalance,
-            tendency_max=float(change), rejections=rejections,
-            stokes_iterations=solve.iterations, refactored=solve.refactored)
+        previous = None if state.previous is None else state.previous["temperature"]
+        sample = diag.Sample(self.grid, self.thermal, self.internal_heating, state.temperature,
+                             state.psi, previous, dt, heat_rate, solve.iterations)
+        return StepReport(step=state.step, time=state.time, dt=dt, **diag.evaluate(sample),
+                          rejections=rejections, refactored=solve.refactored)
+
+    def diagnostics(self, state: ModelState) -> dict:
+        """The declared diagnostics that depend on the state alone (a final state, a jump)."""
+        sample = diag.Sample(self.grid, self.thermal, self.internal_heating, state.temperature,
+                             state.psi)
+        return diag.evaluate(sample, state_only=True)
 
     def with_rayleigh(self, rayleigh: float) -> "Model":
         """The same model at another Rayleigh number (for continuation)."""
