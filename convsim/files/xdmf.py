@@ -127,7 +127,7 @@ def write_xdmf(run_path: str | Path, output: str | Path | None = None, *,
         raise SnapshotError(f"XDMF output {str(output)!r}: must be in the folder of the run file "
                             f"{str(run_path)!r} (the data are referenced by relative path)")
     text = xdmf_text(run_path)
-    check_writable(output, overwrite)
+    check_writable(output, overwrite, other="")    # `convsim xdmf` has no --out
     part = output.with_name(output.name + ".part")
     part.write_text(text, encoding="utf-8")
     part.replace(output)
