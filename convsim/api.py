@@ -13,7 +13,8 @@ import numpy as np
 from convsim.config import Config, load_config
 from convsim.errors import ConfigError
 from convsim.model.grid import Grid, interpolate_cells
-from convsim.run.controller import ResumePoint, RunResult, Simulation, build_model
+from convsim.run.build import build_model
+from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
 from convsim.views import open_run
@@ -68,8 +69,8 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         scales = scales_from_body(config.body)
     observers = list(observers)
     if progress:
-        from convsim.run.progress import RunProgress
-        observers.append(RunProgress(config, always=True))
+        from convsim.run.progress import ProgressDisplay
+        observers.append(ProgressDisplay(config, always=True))
     resume = None
     if restart is not None:
         saved = read_run(restart, restart=True)

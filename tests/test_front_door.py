@@ -147,13 +147,13 @@ class _Report:
 
 def test_progress_measures_time_or_decades_of_residual():
     from convsim.config import parse_config
-    from convsim.run.progress import RunProgress
-    timed = RunProgress(parse_config({"stop": {"end_time": 0.5}}), always=True)
+    from convsim.run.progress import ProgressDisplay
+    timed = ProgressDisplay(parse_config({"stop": {"end_time": 0.5}}), always=True)
     timed.on_start(None, False)
     timed.on_step(_Report(10, 0.2, 1.0))
     assert timed.bar.total == 0.5 and timed.bar.n == pytest.approx(0.2)
     timed.on_finish(None)
-    steady = RunProgress(parse_config({"stop": {"steady_tolerance": 1e-6}}), always=True)
+    steady = ProgressDisplay(parse_config({"stop": {"steady_tolerance": 1e-6}}), always=True)
     steady.on_start(None, False)
     steady.on_step(_Report(1, 0.0, 1e-1))     # five decades to go
     steady.on_step(_Report(2, 0.0, 1e-3))

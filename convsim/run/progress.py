@@ -21,10 +21,10 @@ import math
 import sys
 import time
 
-__all__ = ["RunProgress"]
+__all__ = ["ProgressDisplay"]
 
 
-class RunProgress:
+class ProgressDisplay:
     """Observer showing a run's progress against its stop rule.
 
     Parameters
