@@ -15,6 +15,7 @@ from convsim.errors import ConvsimError
 from convsim.cli.common import COMMANDS
 # the command groups register themselves, in the order `convsim --help` lists them
 from convsim.cli import run, rayleigh, sweep, onset, files, bench  # noqa: F401,E402
+from convsim.cli import scenario, compare  # noqa: F401,E402
 
 
 class _Parser(argparse.ArgumentParser):

@@ -1,0 +1,75 @@
+"""`convsim scenario` (starting configs) and `convsim compare` (two runs side by side).
+
+Outside references: the Rayleigh number of the ice-shell scenario by hand,
+Ra = rho g alpha dT d^3 / (kappa eta) = 920 * 1.3 * 1.6e-4 * 170 * (2e4)^3 / (1.5e-6 * 1e18)
+= 173.4997 (ice values: common practice); a run compared with itself differs by zero.
+"""
+
+from __future__ import annotations
+
+import json
+import tomllib
+
+import numpy as np
+import pytest
+
+from convsim.cli import main
+
+
+def test_ice_shell_scenario_is_a_valid_config_with_its_rayleigh_number(tmp_path, capsys):
+    from convsim.config import load_config
+    out = tmp_path / "ice.toml"
+    assert main(["scenario", "ice-shell", "--out", str(out)]) == 0
+    cfg = load_config(out)
+    assert cfg.physics.rayleigh == pytest.approx(173.4997, rel=1e-5)
+    assert cfg.body is not None and "Quellis" in cfg.title
+    assert "# Ra = rho g alpha dT d^3" in out.read_text()
+    assert main(["scenario", "ice-shell", "--out", str(out)]) == 2       # exists
+    assert "--overwrite" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("name", ["rocky-mantle", "case-1a", "case-2a"])
+def test_every_scenario_parses(name, capsys):
+    from convsim.config import parse_config
+    assert main(["scenario", name]) == 0
+    cfg = parse_config(tomllib.loads(capsys.readouterr().out))
+    if name.startswith("case"):
+        assert cfg.body is None and "Blankenbach" in cfg.title
+    else:
+        from convsim.units import scales_from_body
+        assert cfg.physics.rayleigh == pytest.approx(scales_from_body(cfg.body).rayleigh(),
+                                                     rel=1e-5)
+
+
+def test_unknown_scenario_is_one_line_exit_2(capsys):
+    assert main(["scenario", "mars"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "ice-shell" in err[0]
+
+
+def test_a_run_compared_with_itself_differs_by_nothing(constant_run, capsys):
+    assert main(["compare", str(constant_run), str(constant_run), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["temperature_difference"]["max_abs"] == 0.0
+    assert all(d["relative_difference"] in (0.0, None) for d in data["diagnostics"].values())
+
+
+def test_compare_across_grids_interpolates_and_draws_the_difference(constant_run, tmp_path,
+                                                                    capsys):
+    from convsim import api
+    from convsim.analysis.compare import compare_runs
+    from convsim.config import load_config
+    from convsim.figures.compare import comparison_figure
+    from conftest import CONFIGS
+    other = tmp_path / "other.h5"
+    api.run(load_config(CONFIGS / "benchmark_case_1a.toml",
+                        ["domain.nx=16", "domain.nz=16", "stop.max_steps=200"]), other)
+    comparison = compare_runs(constant_run, other)
+    assert comparison.interpolated and comparison.difference.shape == (12, 12)
+    fig = comparison_figure(comparison)
+    (image,) = [im for ax in fig.axes for im in ax.images
+                if im.get_label() == "temperature difference"]
+    np.testing.assert_array_equal(np.asarray(image.get_array()), comparison.difference)
+    out = tmp_path / "cmp.png"
+    assert main(["compare", str(constant_run), str(other), "--out", str(out)]) == 0
+    assert out.is_file() and "Nu top" in capsys.readouterr().out
