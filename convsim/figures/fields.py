@@ -340,7 +340,7 @@ def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | N
         else:
             draw_anomaly(ax_2, run, pres, shading=shading)
         ax_pt, ax_pe = middle.subplots(1, 2, sharey=True)
-        draw_profiles(ax_pt, ax_pe, run, pres, cfg)
+        draw_profiles(ax_pt, ax_pe, run, pres, cfg, statistics)
         ax_nu, ax_v = bottom.subplots(1, 2)
         draw_series(ax_nu, ax_v, run, pres, statistics)
         ax_nu.tick_params(labelbottom=True)
@@ -413,7 +413,7 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
     else:
         log.info("viscosity uniform (%g): no viscosity field figure",
                  run.fields["viscosity"].flat[0])
-    makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres)
+    makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres, statistics=stats)
     makers[f"{stem}_series"] = lambda: series_figure(run, pres=pres, statistics=stats)
     makers[f"{stem}_summary{tag}"] = lambda: summary_figure(run, arrows=arrows, pres=pres,
                                                             shading=shading, statistics=stats)

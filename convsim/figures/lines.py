@@ -69,7 +69,7 @@ def velocity_profile(run: RunFile) -> np.ndarray:
     return np.sqrt(np.mean(u * u + w * w, axis=1))
 
 
-def draw_profiles(ax_t, ax_2, run: RunFile, pres: Presentation, config=None):
+def draw_profiles(ax_t, ax_2, run: RunFile, pres: Presentation, config=None, statistics=None):
     """T(z) with its wall values, and eta(z) (or the rms velocity); returns the two Line2D."""
     z, T, eta = wall_profiles(run, config)
     (lt,) = ax_t.plot(pres.temperature(T), pres.length(z), color=style.LINE_COLORS[1],
@@ -95,22 +95,55 @@ def draw_profiles(ax_t, ax_2, run: RunFile, pres: Presentation, config=None):
         ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
         ax.grid(True, linewidth=0.3, color="0.85")
     ax_2.tick_params(labelleft=False)
-    ax_t.set_title("horizontal means at " + pres.time_text(run.times[run.snapshot]), loc="left")
+    stats = run_statistics(run) if statistics is None else statistics
+    ax_t.set_title("horizontal means at " + pres.time_text(run.times[run.snapshot])
+                   + ("; dashed: time means" if _draw_mean_profiles(ax_t, ax_2, run, pres, stats)
+                      else ""), loc="left")
     return lt, l2
 
 
 def run_statistics(run: RunFile) -> dict:
-    """``{quantity: {"mean", "ci95", "from_time"}}`` from the run file, or {} without them."""
-    from convsim.files import runfile
-    reader = getattr(runfile, "read_statistics", None)
-    if reader is None:
-        return {}
-    try:
-        with runfile.open_run_file(run.path) as f:
-            found = reader(f) or {}
-    except (OSError, KeyError, ValueError, TypeError):
+    """The time means of a time-dependent run: ``{quantity: {"mean", "ci95", "from_time"}}``.
+
+    From ``run.statistics`` when the reader provides it, else from the file's group
+    ``statistics`` (``convsim.files.runfile.read_statistics``); {} for a steady run or a
+    file without statistics.
+    """
+    found = getattr(run, "statistics", None)
+    if found is None:
+        from convsim.files import runfile
+        reader = getattr(runfile, "read_statistics", None)
+        if reader is None:
+            return {}
+        try:
+            with runfile.open_run_file(run.path) as f:
+                found = reader(f) or {}
+        except (OSError, KeyError, ValueError, TypeError):
+            return {}
+    if not found or found.get("settled") in (None, "steady"):
         return {}
     return dict(found.get("statistics") or {})
+
+
+def _draw_mean_profiles(ax_t, ax_2, run: RunFile, pres: Presentation, statistics) -> bool:
+    """Time-mean profiles (dashed, with 95 % bands) over the instantaneous ones; True if drawn."""
+    drawn = False
+    for ax, name, convert, colour in ((ax_t, "temperature_profile", pres.temperature, 1),
+                                      (ax_2, "viscosity_profile", pres.viscosity, 0)):
+        if name not in statistics or ax.get_lines()[0].get_label() == "rms velocity":
+            continue
+        m = np.asarray(statistics[name]["mean"], float)
+        h = np.asarray(statistics[name]["ci95"], float)
+        h = np.where(np.isfinite(h), h, 0.0)
+        z = pres.length(run.z)
+        ax.fill_betweenx(z, convert(m - h), convert(m + h), color=style.LINE_COLORS[colour],
+                         alpha=0.2, linewidth=0)
+        ax.plot(convert(m), z, color=style.LINE_COLORS[colour], linestyle="--",
+                label="time mean from " + pres.time_text(statistics[name]["from_time"]))
+        drawn = True
+    if drawn:
+        ax_t.legend(loc="best")
+    return drawn
 
 
 def _mark_mean(ax, t_shown, stat, convert, color):
@@ -165,13 +198,13 @@ def draw_series(ax_nu, ax_v, run: RunFile, pres: Presentation, statistics=None):
     return top, bottom, vrms
 
 
-def profiles_figure(run: RunFile, *, pres: Presentation | None = None):
+def profiles_figure(run: RunFile, *, pres: Presentation | None = None, statistics=None):
     """Horizontally averaged temperature and viscosity (or rms velocity) against height."""
     pres = presentation_for(run) if pres is None else pres
     with style.context():
         fig = style.new_figure(style.COLUMN_WIDTH, 2.7)
         ax_t, ax_2 = fig.subplots(1, 2, sharey=True)
-        draw_profiles(ax_t, ax_2, run, pres)
+        draw_profiles(ax_t, ax_2, run, pres, statistics=statistics)
     return style.freeze_layout(fig)
 
 
