@@ -73,3 +73,27 @@ def test_compare_across_grids_interpolates_and_draws_the_difference(constant_run
     out = tmp_path / "cmp.png"
     assert main(["compare", str(constant_run), str(other), "--out", str(out)]) == 0
     assert out.is_file() and "Nu top" in capsys.readouterr().out
+
+
+def test_sweep_given_a_run_config_says_so(capsys):
+    from conftest import CONFIGS
+    assert main(["sweep", str(CONFIGS / "benchmark_case_1a.toml")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "a run config" in err[0] and "convsim run" in err[0]
+
+
+def test_bench_with_two_grids_judges_the_finest_and_does_not_fail_for_the_order(capsys):
+    """Two grids cannot give an order (common practice: three are needed for p)."""
+    from convsim.studies import bench, bench_report
+    rows = [_row(n, err) for n, err in ((16, -0.0059), (32, -0.00085))]
+    summary = bench.analyse_case("1a", rows, bench.case_config_path("1a"))
+    assert summary.passed
+    result = bench.BenchResult([summary], (16, 32), 1, (), 1.0, bench.provenance())
+    table = bench_report.terminal_table(bench_report.jsonable(result.as_dict()))
+    assert "not measurable with 2 grid(s)" in table and "FAIL" not in table
+
+
+def _row(n, err):
+    from test_bench import _rows
+    (row,) = _rows("1a", (n,), lambda f0, h, i: f0 * (1.0 + err))
+    return row
