@@ -97,3 +97,20 @@ def _row(n, err):
     from test_bench import _rows
     (row,) = _rows("1a", (n,), lambda f0, h, i: f0 * (1.0 + err))
     return row
+
+
+def test_fit_legend_reads_ra_and_the_group_not_raw_keys():
+    from convsim.analysis.fitting import fit_power_law
+    from convsim.figures import sweep as figures_sweep
+    ra = np.array([1e4, 3e4, 1e5])
+    nu = 0.27 * ra ** 0.31
+    series = [(figures_sweep.group_label("viscosity.thermal_contrast", 1000.0), ra, nu,
+               fit_power_law(ra, nu)),
+              (figures_sweep.group_label("viscosity.thermal_contrast", 1.0), ra[:2], nu[:2],
+               fit_power_law(ra[:2], nu[:2]))]
+    fig = figures_sweep.scaling_plot(series, x_label="Ra", y_label="Nu", x_symbol="Ra")
+    texts = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert all("viscosity.thermal_contrast" not in t and "x^" not in t for t in texts)
+    assert "Delta" in texts[0] and "1000" in texts[0] and "Ra" in texts[0]
+    assert "no interval" in texts[1]
+    assert not figures_sweep.varies([1.0, 1.0]) and figures_sweep.varies([1.0, 100.0])

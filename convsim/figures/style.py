@@ -189,6 +189,8 @@ def light_grid(ax) -> None:
 
 def log_label(value: float) -> str:
     """A tick label: plain for 1e-3 <= v < 1e4, else m x 10^k in mathtext."""
+    if value == 0.0 or not math.isfinite(value):
+        return f"{value:g}"
     if 1.0e-3 <= abs(value) < 1.0e4:
         return f"{value:g}"
     exponent = math.floor(math.log10(abs(value)) + 1e-9)
