@@ -481,20 +481,47 @@ def physical_quantities(values: dict, scales: Scales, boundaries=None) -> dict:
     convert = {"velocity": scales.velocity_to_cm_per_yr,
                "temperature": scales.temperature_to_kelvin, "length": scales.length_to_km,
                "time": scales.time_to_myr, "heat_flow": scales.heat_flux_to_mw_m2}
-    out = {}
-    if values.get("nusselt_top") is not None and values.get("nusselt_bottom") is not None:
-        flows = wall_heat_flows(float(values["nusselt_top"]), float(values["nusselt_bottom"]),
-                                boundaries)
-        for wall, q in flows.items():
-            out[f"heat_flow_{wall}"] = {
-                "value": float(convert["heat_flow"](q)), "units": PHYSICAL_UNITS["heat_flow"],
-                "doc": f"mean upward heat flow through the {wall}"}
-    for key, name, kind, doc in _PHYSICAL:
+    spread = {"velocity": scales.velocity_to_cm_per_yr, "length": scales.length_to_km,
+              "temperature": lambda d: d * scales.temperature_contrast,
+              "heat_flow": scales.heat_flux_to_mw_m2}         # half-widths: linear parts only
+    stats = values.get("statistics") or {}
+    if values.get("settled") in (None, "steady"):
+        stats = {}                      # a steady run: its final values are the answer
+
+    def entry(kind, value, doc, half=None, start=None):
+        out = {"value": float(convert[kind](value)), "units": PHYSICAL_UNITS[kind], "doc": doc}
+        if half is not None and math.isfinite(half):
+            out["ci95"] = float(spread[kind](half))
+            out["doc"] += (f", time mean from t = {float(scales.time_to_myr(start)):.4g} Myr "
+                           f"with its 95 % half-width ci95")
+        return out
+
+    def pick(key):
+        est = stats.get(key) or {}
+        if est.get("mean") is not None:
+            return float(est["mean"]), est.get("ci95"), est.get("from_time")
         value = values.get(key)
-        if value is None or isinstance(value, (bool, str)):
+        ok = value is not None and not isinstance(value, (bool, str))
+        return (float(value) if ok else None), None, None
+
+    out = {}
+    (nu_top, h_top, t0), (nu_bottom, h_bottom, _) = pick("nusselt_top"), pick("nusselt_bottom")
+    if nu_top is not None and nu_bottom is not None:
+        flows = wall_heat_flows(nu_top, nu_bottom, boundaries)
+        b = boundaries
+        fixed_t = b is None or (b.top_heat == "temperature" and b.bottom_heat == "temperature")
+        contrast = 1.0 if b is None else (b.bottom_value - b.top_value)
+        for wall, q in flows.items():
+            half = h_top if wall == "top" else h_bottom
+            half = half * abs(contrast) if half is not None and fixed_t else None
+            out[f"heat_flow_{wall}"] = entry("heat_flow", q,
+                                             f"mean upward heat flow through the {wall}",
+                                             half, t0)
+    for key, name, kind, doc in _PHYSICAL:
+        value, half, start = pick(key)
+        if value is None:
             continue
-        out[name] = {"value": float(convert[kind](float(value))), "units": PHYSICAL_UNITS[kind],
-                     "doc": doc}
+        out[name] = entry(kind, value, doc, None if kind == "time" else half, start)
     return out
 
 

@@ -159,3 +159,26 @@ def test_progress_measures_time_or_decades_of_residual():
     steady.on_step(_Report(2, 0.0, 1e-3))
     assert steady.bar.total == pytest.approx(5.0) and steady.bar.n == pytest.approx(2.0)
     steady.on_finish(None)
+
+
+def test_time_dependent_answers_are_time_means_with_intervals():
+    """A statistically steady run: the physical answers are its time means, the half-widths
+    scaled by the same factors (hand calculation with TESSALY's scales)."""
+    from convsim.units import Scales, physical_quantities
+    scales = Scales(depth=2.0e6, temperature_contrast=2000.0, gravity=10.0, density=4000.0,
+                    expansivity=3e-5, diffusivity=1e-6, conductivity=4.0,
+                    reference_viscosity=1e22, surface_temperature=300.0)
+    values = {"nusselt_top": 9.0, "nusselt_bottom": 9.5, "vrms": 100.0, "time": 0.2,
+              "settled": "statistically-steady",
+              "statistics": {"nusselt_top": {"mean": 10.0, "ci95": 0.5, "from_time": 0.1},
+                             "vrms": {"mean": 120.0, "ci95": 4.0, "from_time": 0.1}}}
+    phys = physical_quantities(values, scales)
+    assert phys["heat_flow_top"]["value"] == pytest.approx(10.0 * HEAT_FLOW_MW_M2)
+    assert phys["heat_flow_top"]["ci95"] == pytest.approx(0.5 * HEAT_FLOW_MW_M2)
+    assert phys["vrms"]["value"] == pytest.approx(120.0 * VELOCITY_CM_YR, rel=1e-5)
+    assert phys["vrms"]["ci95"] == pytest.approx(4.0 * VELOCITY_CM_YR, rel=1e-5)
+    assert "ci95" not in phys["heat_flow_bottom"]          # no statistics for it: final value
+    assert phys["heat_flow_bottom"]["value"] == pytest.approx(9.5 * HEAT_FLOW_MW_M2)
+    values["settled"] = "steady"
+    assert physical_quantities(values, scales)["heat_flow_top"]["value"] == pytest.approx(
+        9.0 * HEAT_FLOW_MW_M2)
