@@ -7,6 +7,7 @@ import pint
 
 from convsim import api
 from convsim.files.info import describe_run
+from convsim.files.runfile import cf_attributes
 from convsim.model import diagnostics as diag
 from convsim.model.energy import ThermalBoundaries
 from convsim.model.grid import Grid
@@ -80,7 +81,9 @@ def test_every_diagnostic_reaches_the_run_file_json_and_info(case_config, tmp_pa
     with h5py.File(path, "r") as f:
         for name, d in diag.DIAGNOSTICS.items():
             assert f[name].shape == (12,), name
-            assert f[name].attrs["units"] == d.units and f[name].attrs["long_name"] == d.long_name
+            expected = cf_attributes(name, d.units, d.long_name)   # the declared text, CF form
+            assert f[name].attrs["units"] == d.units
+            assert f[name].attrs["long_name"] == expected["long_name"], name
             assert f[name].dtype == np.dtype(d.dtype), name
             if d.of_state:
                 assert name in summary and f.attrs[f"final_{name}"] == summary[name], name

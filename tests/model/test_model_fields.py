@@ -124,6 +124,9 @@ def test_the_dye_reaches_the_run_file_xdmf_and_info(case_config, tmp_path):
         assert f["dye"].shape[1:] == f["temperature"].shape[1:]
     assert 'Name="dye"' in xdmf_text(path)
     assert describe_run(path)["fields"]["dye"]["units"] == "1"
+    from convsim.figures.fields import plot_run
+    written = plot_run(path, out_dir=tmp_path / "figures", formats="png")
+    assert (tmp_path / "figures" / "dye_dye.png") in written
     plain = tmp_path / "plain.h5"
     api.run(case_config("1a", "domain.nx=8", "domain.nz=8", "stop.max_steps=5"), plain)
     with h5py.File(plain, "r") as f:
