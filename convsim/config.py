@@ -143,6 +143,10 @@ class Numerics:
                             default="sbdf2", choices=("sbdf2", "euler"))
     cfl: float = _key("Courant number of the adaptive time step", default=0.4, gt=0.0, le=2.0)
     max_dt: float = _key("largest allowed time step", "d^2/kappa", default=1.0e-2, gt=0.0, le=10.0)
+    time_scale_fraction: float = _key(
+        "largest step as a fraction of the flow's time scale (the change time of the advective "
+        "tendency, at most the conductive time 1/pi^2), so that the step resolves how the flow "
+        "changes (growth rates within 0.5 %); 0: off", default=0.04, ge=0.0, le=10.0)
     stokes_solver: str = _key(
         "Stokes back end; auto picks the fastest that handles the problem", default="auto",
         choices=("auto", "transform", "cholmod", "superlu"))
