@@ -14,6 +14,7 @@ from convsim.config import Config, load_config
 from convsim.errors import ConfigError
 from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.controller import ResumePoint, RunResult, Simulation, build_model
+from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
 
@@ -55,6 +56,7 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     if config.body is not None:      # check the physical properties (units, dimensions) up front
         from convsim.units import scales_from_body
         scales_from_body(config.body)
+    config = resolve(config)             # Ra and an Arrhenius law from [body], or a refusal
     observers = list(observers)
     resume = None
     if restart is not None:

@@ -61,8 +61,13 @@ class Domain:
 class Physics:
     """Nondimensional numbers of the layer."""
 
-    rayleigh: float = _key("thermal Rayleigh number, with the reference viscosity of [viscosity]",
+    rayleigh: float = _key("thermal Rayleigh number, with the viscosity at rayleigh_reference "
+                           "(with a complete [body]: its Ra, or agree with it to 0.1 %)",
                            default=1.0e4, gt=0.0, le=1.0e13)
+    rayleigh_reference: str = _key(
+        "where the viscosity of rayleigh is taken: the cold top (T = top wall, z = 1), the hot "
+        "bottom (T = bottom wall, z = 0) or the interior (mid temperature, z = 0.5)",
+        default="top", choices=("top", "bottom", "interior"))
     internal_heating: float = _key(
         "internal heat production H in dT/dt + u.grad T = lap T + H", "dT/(d^2/kappa)",
         default=0.0, ge=-1.0e6, le=1.0e6)
@@ -170,6 +175,10 @@ class Stop:
     newton: bool = _key("when the run has nearly settled, solve the steady equations by "
                         "Newton-Krylov iteration instead of waiting for the transient to decay",
                         default=True)
+    runaway_factor: float = _key(
+        "diverged when vrms exceeds this times the boundary-layer velocity scale "
+        "max(10, Ra_max^(2/3)), Ra_max with the smallest viscosity of the law over the layer",
+        default=100.0, gt=0.0, le=1.0e12)
     newton_threshold: float = _key(
         "try Newton once max|dT/dt| / Nu falls below this (retried later if it fails)",
         default=0.1, gt=0.0, le=1.0e9)
@@ -205,7 +214,14 @@ class Body:
     thermal_diffusivity: float = _quantity("thermal diffusivity kappa", "m^2 s^-1", le=1.0)
     conductivity: float = _quantity("thermal conductivity k", "W m^-1 K^-1", le=1.0e4)
     reference_viscosity: float = _quantity(
-        "viscosity at the reference state (T = top, z = top)", "Pa s", le=1.0e40)
+        "viscosity at physics.rayleigh_reference (the cold top by default)", "Pa s", le=1.0e40)
+    activation_energy: float = _quantity(
+        "Arrhenius activation energy E* (sets viscosity.law = 'arrhenius'; needs "
+        "surface_temperature)", "kJ mol^-1", le=1.0e4)
+    activation_volume: float = _quantity("Arrhenius activation volume V*", "cm^3 mol^-1",
+                                         le=1.0e3)
+    maximum_viscosity: float = _quantity(
+        "upper cut-off of the viscosity (sets viscosity.maximum)", "Pa s", le=1.0e40)
     heat_production: float = _quantity("internal heat production per unit mass", "W kg^-1",
                                        le=1.0)
 
@@ -224,17 +240,24 @@ class Config:
     output: Output = field(default_factory=Output)
     body: Body | None = None
     title: str = ""
+    #: the ``section.key`` names set in the file, by --set or by ``replace`` (not compared)
+    given: frozenset = field(default=frozenset(), compare=False, repr=False)
 
     def replace(self, **tables) -> "Config":
         """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``)."""
         changes = {}
+        given = set(self.given)
         for name, value in tables.items():
             if "__" in name:
                 section, key = name.split("__", 1)
                 current = changes.get(section, getattr(self, section))
                 changes[section] = dataclasses.replace(current, **{key: value})
+                given.add(f"{section}.{key}")
             else:
                 changes[name] = value
+                if dataclasses.is_dataclass(value):
+                    given.update(f"{name}.{f.name}" for f in dataclasses.fields(value))
+        changes["given"] = frozenset(given)
         new = dataclasses.replace(self, **changes)
         _check_consistency(new)
         return new
@@ -353,6 +376,7 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
         raise ConfigError(f"{source}: expected a TOML table at the top level")
     tables = {}
     title = ""
+    given = set()
     for name, raw in data.items():
         if name == "title":
             if not isinstance(raw, str):
@@ -363,7 +387,8 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
             raise ConfigError(f"[{name}]: unknown table{_suggest(name, TABLES)}; allowed tables: "
                               f"{', '.join(TABLES)}")
         tables[name] = _build_table(name, TABLES[name], raw)
-    cfg = Config(title=title, **tables)
+        given.update(f"{name}.{key}" for key in raw)
+    cfg = Config(title=title, given=frozenset(given), **tables)
     _check_consistency(cfg)
     return cfg
 

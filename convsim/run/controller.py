@@ -9,7 +9,9 @@ writes files itself.  The writer (``convsim.files.runfile``) and the progress ba
 
 A run ends at the first of: steady state, end time, step limit; or it is
 stopped by divergence (a step that fails even at small dt, or a runaway
-velocity) or by Ctrl-C.  In every case the last good state is handed to the
+velocity: vrms above ``stop.runaway_factor`` times the boundary-layer velocity scale
+max(10, Ra_max^(2/3)), Ra_max taken with the smallest viscosity of the law over the
+layer, see ``convsim.run.layer.runaway_velocity``) or by Ctrl-C.  In every case the last good state is handed to the
 observers as a final snapshot and the result says what happened.
 
 Steady state: for ``SETTLE_STEPS`` consecutive steps, max|dT/dt| <= tol * Nu,
@@ -25,7 +27,7 @@ import math
 import signal
 import threading
 import time
-from dataclasses import dataclass, field, fields as dc_fields
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -33,9 +35,9 @@ from convsim.model import diagnostics as diag
 from convsim.config import Config, to_toml
 from convsim.model.energy import ThermalBoundaries
 from convsim.model.grid import Grid
-from convsim.model.rheology import ViscosityLaw
 from convsim.model.steady import newton_steady
 from convsim.model.timestepping import Model, ModelState, StepFailed, StepReport
+from convsim.run import layer
 
 __all__ = ["Simulation", "RunResult", "SnapshotData", "Observer", "ResumePoint",
            "initial_temperature", "conductive_profile", "SETTLE_STEPS"]
@@ -103,6 +105,7 @@ class RunResult:
     series: dict = field(default_factory=dict)
     phase_seconds: dict = field(default_factory=dict)
     output: str | None = None
+    rayleigh_numbers: dict = field(default_factory=dict)   # Ra at top, bottom, interior
 
     @property
     def steady(self) -> bool:
@@ -116,7 +119,8 @@ class RunResult:
                     surface_vrms=self.surface_vrms, mean_temperature=self.mean_temperature,
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
-                    output=self.output, message=self.message)
+                    output=self.output, message=self.message,
+                    **{f"rayleigh_{k}": v for k, v in self.rayleigh_numbers.items()})
 
 
 def conductive_profile(z: np.ndarray, thermal: ThermalBoundaries, heating: float) -> np.ndarray:
@@ -194,6 +198,7 @@ class Simulation:
     @classmethod
     def from_config(cls, config: Config, temperature: np.ndarray | None = None, observers=(),
                     grid: Grid | None = None) -> "Simulation":
+        config = layer.resolve(config)
         return cls(config, build_model(config, grid), temperature, observers)
 
     # -- helpers ------------------------------------------------------------------------------
@@ -228,7 +233,9 @@ class Simulation:
         """Run to the stop rule; returns the result (status, final numbers and fields)."""
         cfg = self.config
         stop, out = cfg.stop, cfg.output
-        stages = list(cfg.start.continuation) + [cfg.physics.rayleigh]
+        stages = [layer.internal_rayleigh(cfg, ra)
+                  for ra in list(cfg.start.continuation) + [cfg.physics.rayleigh]]
+        eta_min = layer.smallest_viscosity(cfg)
         wall0 = time.perf_counter()
         phase = dict(advect=0.0, diffuse=0.0, stokes=0.0, factor=0.0, diagnose=0.0)
         series_rows: list = []
@@ -292,7 +299,8 @@ class Simulation:
                 except StepFailed as exc:
                     status, message = "diverged", str(exc)
                     break
-                runaway = max(1.0e3, 100.0 * model.rayleigh ** (2.0 / 3.0))
+                runaway = layer.runaway_velocity(model.rayleigh, eta_min,
+                                                 stop.runaway_factor)
                 if not (np.isfinite(report.vrms) and np.isfinite(report.nusselt_top)) \
                         or report.vrms > runaway:
                     status = "diverged"
@@ -389,7 +397,7 @@ class Simulation:
             temperature=state.temperature, psi=state.psi,
             viscosity=model.viscosities(state.temperature)[1], grid=self.grid,
             series={c: np.array([row[i] for row in all_rows]) for i, c in enumerate(SERIES_COLUMNS)},
-            phase_seconds=phase)
+            phase_seconds=phase, rayleigh_numbers=layer.rayleigh_numbers(cfg))
         if status == "diverged":
             log.warning("run diverged: %s; the last good state is kept", message)
         self._emit("on_finish", result)
@@ -417,12 +425,13 @@ class _DeferredInterrupt:
 
 def build_model(config: Config, grid: Grid | None = None) -> Model:
     """The ``Model`` a config describes (grid override for convergence studies)."""
-    d, b, n, v = config.domain, config.boundaries, config.numerics, config.viscosity
+    d, b, n = config.domain, config.boundaries, config.numerics
     if grid is None:
         grid = Grid(d.nx, d.nz, d.aspect, periodic=(b.sides == "periodic"))
     thermal = ThermalBoundaries(b.top_heat, b.top_value, b.bottom_heat, b.bottom_value)
-    law = ViscosityLaw(**{f.name: getattr(v, f.name) for f in dc_fields(ViscosityLaw)})
+    law = layer.viscosity_law(config)
     limiter = "upwind" if n.advection == "upwind" else n.limiter
-    return Model(grid, config.physics.rayleigh, thermal, law, config.physics.internal_heating,
+    return Model(grid, layer.internal_rayleigh(config), thermal, law,
+                 config.physics.internal_heating,
                  b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
                  n.stokes_solver, n.factor_reuse, n.time_scale_fraction)
