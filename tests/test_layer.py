@@ -132,3 +132,39 @@ def test_rayleigh_and_onset_agree(tmp_path, capsys, viscosity, ra_bottom):
     assert ray["onset"]["above_onset"] == ons["stated"]["above_onset"]
     assert ray["onset"]["ratio"] == pytest.approx(ons["supercriticality"], rel=1e-9)
     assert ray["rayleigh_numbers"] == pytest.approx(ons["stated"]["rayleigh_numbers"], rel=1e-12)
+
+
+# ---- planetary contrasts: no false divergence ------------------------------------------------
+
+def test_runaway_velocity_scale_by_hand():
+    """Boundary-layer scaling vrms ~ Ra^(2/3) (common practice) with the Ra of the least
+    viscous fluid: FK contrast 1e8, Ra_top = 1 -> Ra_max = 1e8, 100 x 1e8^(2/3) = 2.154e7;
+    constant viscosity keeps the former max(1e3, 100 Ra^(2/3))."""
+    cfg = fk(1e8, 1.0)
+    eta_min = layer.smallest_viscosity(cfg)
+    assert eta_min == pytest.approx(1e-8, rel=1e-12)
+    assert layer.runaway_velocity(1.0, eta_min, 100.0) == pytest.approx(100 * 1e8 ** (2 / 3),
+                                                                      rel=1e-12)
+    assert layer.runaway_velocity(1.0, 1.0, 100.0) == pytest.approx(1e3)
+    assert layer.runaway_velocity(1e6, 1.0, 100.0) == pytest.approx(100 * 1e4, rel=1e-12)
+
+
+def test_contrast_1e8_runs_to_its_end_time():
+    """Issue 10 item 4: an Arrhenius layer with a viscosity contrast of 1e8 (E = ln(1e8) /
+    (1/T0 - 1/(1 + T0)), T0 = 0.25) at Ra_bottom = 1e8, 16 x 16, to t = 0.002: the first
+    overturn reaches vrms ~ 4e3, above the former guard max(1e3, 100 Ra_top^(2/3)) = 1e3
+    (Ra_top = 1), which called such runs diverged.  It ends at its end time, finite, with
+    the temperature within the wall values (a bounded TVD scheme)."""
+    t0 = 0.25
+    energy = math.log(1e8) / (1.0 / t0 - 1.0 / (1.0 + t0))
+    cfg = Config().replace(domain__nx=16, domain__nz=16, physics__rayleigh=1e8,
+                           physics__rayleigh_reference="bottom", viscosity__law="arrhenius",
+                           viscosity__activation_energy=energy, viscosity__temperature_offset=t0,
+                           start__kind="one-cell", stop__steady=False, stop__end_time=0.002)
+    assert layer.rayleigh_numbers(cfg)["top"] == pytest.approx(1.0, rel=1e-9)
+    result = run(cfg)
+    assert result.status == "end-time", result.message
+    assert np.all(np.isfinite(result.temperature)) and np.all(np.isfinite(result.psi))
+    assert result.series["vrms"].max() > 1e3          # the former guard would have stopped it
+    assert -1e-6 <= result.temperature.min() and result.temperature.max() <= 1 + 1e-6
+    assert 1.0 < result.nusselt_top < 30.0

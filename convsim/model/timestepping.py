@@ -76,6 +76,7 @@ class StepReport:
     rejections: int = 0
     stokes_iterations: int = 0
     refactored: bool = False
+    stokes_residual: float = 0.0           # ||b - A psi|| / ||b|| of the Stokes solve
     seconds: dict = field(default_factory=dict)   # wall time per phase
 
 
@@ -297,7 +298,8 @@ class Model:
             mean_temperature=float(T.mean()),
             energy_residual=residual, heat_imbalance=imbalance,
             tendency_max=float(change), rejections=rejections,
-            stokes_iterations=solve.iterations, refactored=solve.refactored)
+            stokes_iterations=solve.iterations, refactored=solve.refactored,
+            stokes_residual=solve.residual)
 
     def with_rayleigh(self, rayleigh: float) -> "Model":
         """The same model at another Rayleigh number (for continuation)."""
