@@ -1,0 +1,33 @@
+"""Case 2b of Blankenbach et al. (1989), Geophys. J. Int. 98, 23-38 (published Nu = 6.9299,
+vrms = 171.755 for the one-cell steady state; quoted from memory): aspect 2.5,
+eta = exp(-ln(16384) T + ln(64) (1 - z)), Ra = 1e4 at the cold top, free-slip, insulating sides.
+
+From its config alone (one-cell start, Newton finish) the run must reach the published one-cell
+state (upwelling at x = 0) and its error must shrink with the grid.  Grids the test budget
+allows: 40 x 16 and 60 x 24 (measured: Nu +3.36 % / +1.67 %, vrms +12.9 % / +1.43 %; 80 x 32
++1.07 % / -1.60 %; 160 x 64 +0.52 % / -0.66 %).
+"""
+
+import pytest
+
+from convsim.studies import bench, published
+
+NU, VRMS = 6.9299, 171.755          # Blankenbach et al. (1989), case 2b, quoted from memory
+
+
+def test_published_values_of_2b_in_the_table():
+    table = published.published_case("2b")
+    assert table["nusselt_top"].value == NU and table["vrms"].value == VRMS
+    assert set(table) == {"nusselt_top", "vrms"}           # no corner values recalled
+    assert "2b" not in published.DEFAULT_CASES and "2b" in published.known_cases()
+
+
+def test_case_2b_reaches_the_one_cell_state_and_converges():
+    path = str(bench.case_config_path("2b"))
+    rows = [bench.run_task(bench.BenchTask("2b", n, path, (), False)) for n in (16, 24)]
+    for r in rows:
+        assert r.status == "steady" and r.upwelling == "x=0", r.message
+    coarse, fine = (abs(r.relative_error["nusselt_top"]) for r in rows)
+    assert fine < 0.5 * coarse and fine < 0.02
+    assert abs(rows[1].relative_error["vrms"]) < 0.02
+    assert rows[1].nusselt_top == pytest.approx(rows[1].nusselt_bottom, rel=1e-6)
