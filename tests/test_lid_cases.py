@@ -1,4 +1,6 @@
-"""The lid-regime cases from their configs.  Case 2b of Blankenbach et al. (1989), Geophys. J. Int. 98, 23-38 (published Nu = 6.9299,
+"""The lid-regime cases from their configs.
+
+Case 2b of Blankenbach et al. (1989), Geophys. J. Int. 98, 23-38 (published Nu = 6.9299,
 vrms = 171.755 for the one-cell steady state; quoted from memory): aspect 2.5,
 eta = exp(-ln(16384) T + ln(64) (1 - z)), Ra = 1e4 at the cold top, free-slip, insulating sides.
 
