@@ -134,8 +134,14 @@ class Start:
     seed: int = _key("random seed of the noise perturbation", default=0, ge=0, le=2**32 - 1)
     file: str = _key("run file to start from (kind = snapshot); interpolated to this grid",
                      "path", default="")
+    continuation_key: str = _key(
+        "the config key the continuation values set (the final stage has the config's own "
+        "value)", default="physics.rayleigh",
+        choices=("physics.rayleigh", "viscosity.thermal_contrast", "viscosity.depth_contrast",
+                 "viscosity.activation_energy"))
     continuation: tuple = _key(
-        "Rayleigh numbers run to steady state, in order, before the target one", default_factory=tuple)
+        "values of continuation_key (Rayleigh numbers by default) run to steady state, in order, "
+        "before the config's own", default_factory=tuple)
 
 
 @dataclass(frozen=True)
