@@ -73,8 +73,8 @@ def body_config(**physics):
 def test_body_rayleigh_drives_the_run_or_a_mismatch_is_refused():
     resolved = layer.resolve(body_config())
     assert resolved.physics.rayleigh == pytest.approx(QUELLIS_RA, rel=1e-12)
-    agreeing = layer.resolve(body_config(rayleigh=5.856e6))      # within 0.1 %
-    assert agreeing.physics.rayleigh == pytest.approx(QUELLIS_RA, rel=1e-12)
+    agreeing = layer.resolve(body_config(rayleigh=5.856e6))      # within 0.1 %: kept
+    assert agreeing.physics.rayleigh == 5.856e6
     with pytest.raises(ConfigError, match=r"physics.rayleigh = 10000.0 disagrees with 5.85562e\+06"
                                           r" from \[body\]"):
         layer.resolve(body_config(rayleigh=1.0e4))

@@ -25,7 +25,8 @@ stated reference; with ``activation_energy`` > 0, the Arrhenius law in units of 
 (``convsim.units.Scales.arrhenius``); with ``maximum_viscosity``, the upper cut-off in units
 of the law's reference viscosity.  ``resolve`` writes these into the config: a key
 the config does not set takes the body's value; a key it sets must agree to
-``AGREEMENT`` relative, or the run is refused with one line naming both keys.
+``AGREEMENT`` relative (it is then kept as written), or the run is refused with one line
+naming both keys.
 """
 
 from __future__ import annotations
@@ -133,7 +134,8 @@ def body_scales(config: Config):
 
 
 def _agree(config: Config, key: str, value: float, body_keys: str) -> dict:
-    """``{key: value}`` for ``replace``; refuses a set key that disagrees with [body]."""
+    """``{key: value}`` for ``replace``: the body's value for a key the config does not set;
+    a key it sets is kept if it agrees with [body] to ``AGREEMENT``, else refused."""
     section, name = key.split(".")
     current = getattr(getattr(config, section), name)
     if key in config.given:
@@ -141,7 +143,8 @@ def _agree(config: Config, key: str, value: float, body_keys: str) -> dict:
             raise ConfigError(f"{key} = {current!r} disagrees with {value:.6g} from {body_keys}; "
                               f"remove {key} (the body's value is used) or make them agree "
                               f"to {AGREEMENT:.1%}")
-    elif current != value:
+        return {}
+    if current != value:
         log.info("%s = %.6g from %s", key, value, body_keys)
     return {f"{section}__{name}": value}
 
