@@ -159,14 +159,17 @@ class Sample:
     dt : the step's size (0: no step).
     heat_rate : d/dt of the heat content as the time stepper computed it (0: no step).
     stokes_iterations : CG iterations of the step's Stokes solve.
+    stokes_residual : ||b - A x|| / ||b|| of the step's Stokes solve.
     """
 
     def __init__(self, grid: Grid, thermal: ThermalBoundaries, heating: float, T: np.ndarray,
                  psi: np.ndarray, previous_T: np.ndarray | None = None, dt: float = 0.0,
-                 heat_rate: float = 0.0, stokes_iterations: int = 0):
+                 heat_rate: float = 0.0, stokes_iterations: int = 0,
+                 stokes_residual: float = 0.0):
         self.grid, self.thermal, self.heating = grid, thermal, float(heating)
         self.T, self.psi, self.previous_T = T, psi, previous_T
         self.dt, self.heat_rate, self.stokes_iterations = dt, heat_rate, stokes_iterations
+        self.stokes_residual = stokes_residual
 
     @cached_property
     def nusselt(self) -> tuple[float, float]:
@@ -218,6 +221,8 @@ DIAGNOSTICS = {d.name: d for d in (
                Sample.tendency_max, of_state=False),
     Diagnostic("stokes_iterations", "1", "conjugate-gradient iterations of the Stokes solve",
                lambda s: int(s.stokes_iterations), of_state=False, dtype="i8"),
+    Diagnostic("stokes_residual", "1", "relative residual ||b - A psi|| / ||b|| of the Stokes "
+               "solve", lambda s: float(s.stokes_residual), of_state=False),
 )}
 
 

@@ -6,8 +6,9 @@ One step, from the state (f^n for every advected field f, psi^n) at time t_n
 1. explicit term N_f^n = -div(u^n f^n) + S_f for every field (``energy.advection``,
    the numba TVD kernel; S_f the uniform source, the internal heating H for T; the
    tendency dT/dt is the whole right side, its largest value ``StepReport.tendency_max``);
-2. dt from the Courant number of u^n, capped by ``max_dt`` and by a growth of at
-   most 25 % over the previous step;
+2. dt from ``convsim.model.stepsize.StepSizeRule``: the Courant number of u^n,
+   ``max_dt``, a growth of at most 25 % over the previous step, and a fraction of the
+   time scale on which the advective part of the temperature's N changes;
 3. implicit-explicit update of every field (diffusion implicit, advection and
    sources explicit).  Second-order SBDF with step ratio r = dt_n / dt_{n-1} (w is the
    vertical velocity):
@@ -46,12 +47,12 @@ from convsim.model.linsolve import SolveReport
 from convsim.model.rheology import ViscosityLaw, viscosity
 from convsim.model.solvers import StokesProblem, make_stokes_solver
 from convsim.model.state import ModelState, from_record, to_record
+from convsim.model.stepsize import GROWTH_LIMIT, StepSizeRule
 from convsim.model.stokes import StokesOperator, face_velocities
 
 __all__ = ["ModelState", "StepReport", "Model", "MAX_REJECTIONS", "StepFailed"]
 
 MAX_REJECTIONS = 6
-GROWTH_LIMIT = 1.25
 
 
 StepReport = make_dataclass(
@@ -110,6 +111,8 @@ class Model:
         A TVD limiter name, or 'upwind'.
     time_scheme : {'sbdf2', 'euler'}
     cfl, max_dt : float
+    time_scale_fraction : float
+        dt <= this fraction of the flow's time scale (see ``convsim.model.stepsize``); 0: off.
     stokes_solver : 'auto' or a name of ``convsim.model.solvers.SOLVERS``
     factor_reuse : {'adaptive', 'always'}
         For a factor back end: lag the factor as a CG preconditioner, or refactor.
@@ -122,11 +125,13 @@ class Model:
                  top_flow: str = "free-slip", bottom_flow: str = "free-slip",
                  advection_limiter: str = "van-leer", time_scheme: str = "sbdf2",
                  cfl: float = 0.4, max_dt: float = 1e-2, stokes_solver: str = "auto",
-                 factor_reuse: str = "adaptive", fields=()):
+                 factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04, fields=()):
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
         self.cfl, self.max_dt = float(cfl), float(max_dt)
+        self.step_size = StepSizeRule(self.cfl, self.max_dt, float(time_scale_fraction),
+                                      GROWTH_LIMIT)
         self.fields = (temperature_field(thermal, internal_heating),) + tuple(fields)
         names = [f.name for f in self.fields]
         if len(set(names)) != len(names):
@@ -231,8 +236,7 @@ class Model:
     def courant_dt(self, psi: np.ndarray) -> float:
         """dt = cfl / (max|u|/dx + max|w|/dz), capped by max_dt."""
         u, w = face_velocities(self.grid, psi)
-        rate = np.abs(u).max() / self.grid.dx + np.abs(w).max() / self.grid.dz
-        return self.max_dt if rate == 0.0 else min(self.max_dt, self.cfl / rate)
+        return self.step_size.courant_dt(u, w, self.grid.dx, self.grid.dz)
 
     # -- the step ---------------------------------------------------------------------------
     def _advance(self, f: FieldDeclaration, state: ModelState, N: dict, c: Imex, dt: float):
@@ -274,9 +278,11 @@ class Model:
         u, w = face_velocities(self.grid, state.psi)
         N = {f.name: self._explicit_term_of(f, state.fields[f.name], u, w) for f in self.fields}
         timings["advect"] = time.perf_counter() - t0
-        dt = self.courant_dt(state.psi)
-        if state.previous_dt > 0.0:
-            dt = min(dt, GROWTH_LIMIT * state.previous_dt)
+        H = self.internal_heating
+        before = (None if state.previous_explicit is None
+                  else state.previous_explicit["temperature"] - H)
+        dt = self.step_size.choose(u, w, self.grid.dx, self.grid.dz, N["temperature"] - H,
+                                   before, state.previous_dt)
         if dt_limit is not None:
             dt = min(dt, dt_limit)
         rejections = 0
@@ -311,7 +317,7 @@ class Model:
         solve = solve or SolveReport()
         previous = None if state.previous is None else state.previous["temperature"]
         sample = diag.Sample(self.grid, self.thermal, self.internal_heating, state.temperature,
-                             state.psi, previous, dt, heat_rate, solve.iterations)
+                             state.psi, previous, dt, heat_rate, solve.iterations, solve.residual)
         return StepReport(step=state.step, time=state.time, dt=dt, **diag.evaluate(sample),
                           rejections=rejections, refactored=solve.refactored)
 
