@@ -16,6 +16,7 @@ from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.controller import ResumePoint, RunResult, Simulation, build_model
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
+from convsim.threads import limit_threads
 
 __all__ = ["load_config", "run", "start_temperature"]
 
@@ -32,7 +33,8 @@ def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
 
 
 def run(config: Config, output: str | Path | None = None, *, overwrite: bool = False,
-        restart: str | Path | None = None, observers=(), grid: Grid | None = None) -> RunResult:
+        restart: str | Path | None = None, observers=(), grid: Grid | None = None,
+        threads: int | None = None) -> RunResult:
     """Run a config to its stop rule.
 
     Parameters
@@ -47,11 +49,15 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     observers : extra ``simulation.Observer`` objects (a progress bar, say).
     grid : Grid, optional
         Override the config's grid (convergence studies).
+    threads : int, optional
+        Threads for the numerics (BLAS, numba); default $CONVSIM_THREADS or 1
+        (see ``convsim.threads``).
 
     Returns
     -------
     RunResult
     """
+    limit_threads(threads)
     if config.body is not None:      # check the physical properties (units, dimensions) up front
         from convsim.units import scales_from_body
         scales_from_body(config.body)
