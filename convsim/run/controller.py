@@ -25,7 +25,7 @@ import math
 import signal
 import threading
 import time
-from dataclasses import dataclass, field, fields as dc_fields
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -421,7 +421,7 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     if grid is None:
         grid = Grid(d.nx, d.nz, d.aspect, periodic=(b.sides == "periodic"))
     thermal = ThermalBoundaries(b.top_heat, b.top_value, b.bottom_heat, b.bottom_value)
-    law = ViscosityLaw(**{f.name: getattr(v, f.name) for f in dc_fields(ViscosityLaw)})
+    law = ViscosityLaw.from_table(v)
     limiter = "upwind" if n.advection == "upwind" else n.limiter
     return Model(grid, config.physics.rayleigh, thermal, law, config.physics.internal_heating,
                  b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
