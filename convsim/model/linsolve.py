@@ -144,6 +144,8 @@ class SolveReport:
     refactored: bool = False
     factor_seconds: float = 0.0
     solve_seconds: float = 0.0
+    nonlinear_iterations: int = 0   # Picard/Newton steps of a strain-rate-dependent law
+    nonlinear_residual: float = 0.0  # their final ||R|| / ||b||
 
 
 class LaggedFactorSolver:

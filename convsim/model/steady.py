@@ -103,7 +103,7 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
             return T, psi, NewtonReport(True, it - 1, evaluations, fmax, history)
         if not np.isfinite(fmax):
             break
-        psi, dflow = model.linearised_flow(T)
+        psi, dflow = model.linearised_flow(T, psi)
         base = model.tendency(T, psi)
         F = base + model.diffusion.apply(T)
         u, w = face_velocities(model.grid, psi)

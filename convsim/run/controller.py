@@ -425,4 +425,5 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     limiter = "upwind" if n.advection == "upwind" else n.limiter
     return Model(grid, config.physics.rayleigh, thermal, law, config.physics.internal_heating,
                  b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
-                 n.stokes_solver, n.factor_reuse)
+                 n.stokes_solver, n.factor_reuse,
+                 (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations))
