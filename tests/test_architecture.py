@@ -2,8 +2,9 @@
 
 One rule per folder of the package:
 
-- ``errors`` and ``model/kernels`` import nothing of convsim; ``config`` only ``errors`` and
-  the plain-data law declarations ``model/laws`` (which import nothing else of convsim);
+- ``errors``, ``model/kernels`` and ``model/choices`` import nothing of convsim; ``config`` only
+  ``errors``, the choice names of ``model/choices`` and the plain-data law declarations
+  ``model/laws`` (which import nothing else of convsim);
 - ``model/`` takes numbers, arrays and declarations: never ``config``, ``run``, ``files``,
   ``figures``, ``studies``, ``analysis`` or ``cli``;
 - ``run/`` never imports ``files``, ``figures``, ``studies`` or ``cli`` (writers come in as
@@ -65,7 +66,9 @@ def _modules(path: Path) -> set:
 def test_foundations_import_nothing_of_convsim():
     assert _imports(PACKAGE / "errors.py")[0] == set()
     assert _imports(PACKAGE / "model" / "kernels.py")[0] == set()
-    assert _modules(PACKAGE / "config.py") <= {"convsim.errors", "convsim.model.laws"}
+    assert _imports(PACKAGE / "model" / "choices.py")[0] == set()
+    assert _modules(PACKAGE / "config.py") <= {"convsim.errors", "convsim.model.choices",
+                                               "convsim.model.laws"}
     for path in (PACKAGE / "model" / "laws").glob("*.py"):
         assert all(m.startswith("convsim.model.laws") for m in _modules(path)), path
 

@@ -91,7 +91,7 @@ def test_config_table_is_the_registry():
 
 
 def test_no_config_key_is_dropped_on_the_way_to_the_model():
-    from convsim.run.controller import build_model
+    from convsim.run.build import build_model
     for key, p in laws.PARAMETERS.items():
         if p.choices:
             value = next(c for c in p.choices if c != p.default)

@@ -41,6 +41,7 @@ from typing import Callable
 import numpy as np
 import scipy.sparse.linalg as sla
 
+from convsim.model.choices import NONLINEAR_METHODS
 from convsim.model.linsolve import SolveReport
 from convsim.model.stokes import StokesOperator
 
@@ -49,7 +50,7 @@ __all__ = ["METHODS", "NonlinearReport", "LaggedLinear", "strain_rate_invariants
 
 log = logging.getLogger(__name__)
 
-METHODS = ("picard", "newton")
+METHODS = NONLINEAR_METHODS
 NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton steps
 LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
 DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
