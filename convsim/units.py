@@ -53,7 +53,8 @@ from convsim.model.choices import FLOW_CONDITIONS
 __all__ = [
     "UREG", "SECONDS_PER_YEAR", "SECONDS_PER_MYR", "PROPERTIES", "Property", "Scales",
     "parse_quantity", "parse_property", "scales_from_body", "critical_rayleigh_for",
-    "FLOW_CONDITIONS",
+    "FLOW_CONDITIONS", "PHYSICAL_UNITS", "physical_quantities", "wall_heat_flows",
+    "GAS_CONSTANT",
 ]
 
 #: The one unit registry of convsim (pint objects from different registries do not mix).
@@ -95,7 +96,16 @@ PROPERTIES = (
              "reference viscosity eta_ref"),
     Property("heat_production", "heat_production", "W kg^-1", False,
              "heat production per unit mass H (default 0)"),
+    Property("activation_energy", "activation_energy", "kJ mol^-1", False,
+             "Arrhenius activation energy E* (default 0: no Arrhenius law)"),
+    Property("activation_volume", "activation_volume", "cm^3 mol^-1", False,
+             "Arrhenius activation volume V* (default 0)"),
+    Property("maximum_viscosity", "maximum_viscosity", "Pa s", False,
+             "upper cut-off of the viscosity (default 0: none)"),
 )
+
+#: The molar gas constant R [J mol^-1 K^-1], from the registry.
+GAS_CONSTANT = float(UREG.Quantity(1.0, "molar_gas_constant").to("J/mol/K").magnitude)
 _BY_NAME = {p.name: p for p in PROPERTIES}
 
 
@@ -237,6 +247,10 @@ class Scales:
         eta_ref [Pa s], the viscosity that enters Ra.
     heat_production : float
         H [W kg^-1], heat production per unit mass (0: none).
+    activation_energy, activation_volume : float
+        Arrhenius E* [kJ mol^-1] and V* [cm^3 mol^-1] (0: none); see ``arrhenius``.
+    maximum_viscosity : float
+        Upper cut-off of the viscosity [Pa s] (0: none).
 
     All but ``surface_temperature`` and ``heat_production`` must be > 0; those two >= 0.
     The converters take numbers or numpy arrays.
@@ -252,6 +266,9 @@ class Scales:
     reference_viscosity: float
     surface_temperature: float = 0.0
     heat_production: float = 0.0
+    activation_energy: float = 0.0
+    activation_volume: float = 0.0
+    maximum_viscosity: float = 0.0
 
     def __post_init__(self):
         for prop in PROPERTIES:
@@ -275,6 +292,33 @@ class Scales:
         return (self.density * self.gravity * self.expansivity * self.volumetric_heat_production
                 * self.depth**5
                 / (self.conductivity * self.diffusivity * self.reference_viscosity))
+
+    def arrhenius(self) -> dict:
+        """The nondimensional Arrhenius law of E*, V*, T_s and dT, for ``viscosity.law = 'arrhenius'``.
+
+        eta = exp((E + V (1 - z)) / (T + T0) - E / T0) is
+        exp((E* + p V*) / (R T_abs) - E* / (R T_s)) with T_abs = T_s + dT T [K] and the
+        lithostatic pressure p = rho g d (1 - z) [Pa], so
+
+            E = E* / (R dT),   V = rho g d V* / (R dT),   T0 = T_s / dT
+
+        (E* in J mol^-1, V* in m^3 mol^-1, R the molar gas constant).
+
+        Returns
+        -------
+        dict
+            ``activation_energy``, ``activation_volume``, ``temperature_offset`` (all in units
+            of dT), the keys of the config's [viscosity] table.
+        """
+        if self.activation_energy <= 0.0 or self.surface_temperature <= 0.0:
+            raise ConfigError(f"body.activation_energy = {self.activation_energy!r} kJ/mol with "
+                              f"body.surface_temperature = {self.surface_temperature!r} K: an "
+                              f"Arrhenius law needs both > 0")
+        r_dt = GAS_CONSTANT * self.temperature_contrast
+        return dict(activation_energy=1.0e3 * self.activation_energy / r_dt,
+                    activation_volume=(self.density * self.gravity * self.depth
+                                       * 1.0e-6 * self.activation_volume / r_dt),
+                    temperature_offset=self.surface_temperature / self.temperature_contrast)
 
     # --- scales ---------------------------------------------------------------------------
     @property
@@ -415,6 +459,114 @@ def scales_from_body(body=None, overrides=None, *, options=None) -> Scales:
         raise ConfigError(f"not given: {'; '.join(missing)}; expected a positive value for each "
                           f"(SI number or quantity with units)")
     return Scales(**values)
+
+
+# ------------------------------------------------------------------------------------------
+# Answers in physical units (run summaries, ``convsim info``, ``--json``)
+# ------------------------------------------------------------------------------------------
+
+#: Units of the physical answers; strings that pint and udunits both read.
+PHYSICAL_UNITS = {"heat_flow": "mW m^-2", "velocity": "cm yr^-1", "length": "km",
+                  "temperature": "K", "time": "Myr"}
+
+#: nondimensional summary key -> (physical key, kind, doc); the kind picks the converter.
+_PHYSICAL = (
+    ("vrms", "vrms", "velocity", "root-mean-square velocity of the layer"),
+    ("surface_vrms", "surface_vrms", "velocity", "rms horizontal velocity at the top"),
+    ("mean_temperature", "mean_temperature", "temperature", "mean temperature of the layer"),
+    ("interior_temperature", "interior_temperature", "temperature",
+     "temperature of the well-mixed interior"),
+    ("lid_thickness", "lid_thickness", "length", "thickness of the stagnant lid"),
+    ("time", "time", "time", "simulated time"),
+)
+
+
+def wall_heat_flows(nusselt_top, nusselt_bottom, boundaries=None) -> dict:
+    """Nondimensional upward wall heat flows ``{"top": q, "bottom": q}`` (in k dT / d).
+
+    ``Nu = q / (T_bottom - T_top)`` with the mean wall temperatures (convsim.model.diagnostics),
+    so with fixed temperatures ``q = Nu (bottom_value - top_value)``; a wall with a fixed
+    heat flux has ``q = value`` there; the other wall of such a layer is left out (its
+    temperature contrast is not in the summary).  ``boundaries`` is the config's
+    [boundaries] table (None: fixed temperatures 0 and 1).  Numbers or arrays.
+    """
+    b = boundaries
+    if b is None or (b.top_heat == "temperature" and b.bottom_heat == "temperature"):
+        contrast = 1.0 if b is None else b.bottom_value - b.top_value
+        return {"top": nusselt_top * contrast, "bottom": nusselt_bottom * contrast}
+    flows = {}
+    if b.top_heat == "flux":
+        flows["top"] = b.top_value
+    if b.bottom_heat == "flux":
+        flows["bottom"] = b.bottom_value
+    return flows
+
+
+def physical_quantities(values: dict, scales: Scales, boundaries=None) -> dict:
+    """The answers of a run in physical units: ``{name: {"value", "units", "doc"}}``.
+
+    Parameters
+    ----------
+    values : dict
+        Nondimensional numbers by summary key: ``nusselt_top``, ``nusselt_bottom``,
+        ``vrms``, ``surface_vrms``, ``mean_temperature``, ``time`` and, when known,
+        ``interior_temperature`` and ``lid_thickness``; missing or None keys are skipped.
+    scales : Scales
+    boundaries : convsim.config.Boundaries, optional
+        For the wall heat flows (see :func:`wall_heat_flows`).
+
+    Returns
+    -------
+    dict
+        ``heat_flow_top`` and ``heat_flow_bottom`` in mW m^-2 (q_dim = q k dT / d),
+        velocities in cm yr^-1 (u kappa / d), temperatures in K (T_s + dT T), lengths in km
+        (d x), time in Myr (t d^2 / kappa).
+    """
+    convert = {"velocity": scales.velocity_to_cm_per_yr,
+               "temperature": scales.temperature_to_kelvin, "length": scales.length_to_km,
+               "time": scales.time_to_myr, "heat_flow": scales.heat_flux_to_mw_m2}
+    spread = {"velocity": scales.velocity_to_cm_per_yr, "length": scales.length_to_km,
+              "temperature": lambda d: d * scales.temperature_contrast,
+              "heat_flow": scales.heat_flux_to_mw_m2}         # half-widths: linear parts only
+    stats = values.get("statistics") or {}
+    if values.get("settled") in (None, "steady"):
+        stats = {}                      # a steady run: its final values are the answer
+
+    def entry(kind, value, doc, half=None, start=None):
+        out = {"value": float(convert[kind](value)), "units": PHYSICAL_UNITS[kind], "doc": doc}
+        if half is not None and math.isfinite(half):
+            out["ci95"] = float(spread[kind](half))
+            out["doc"] += (f", time mean from t = {float(scales.time_to_myr(start)):.4g} Myr "
+                           f"with its 95 % half-width ci95")
+        return out
+
+    def pick(key):
+        est = stats.get(key) or {}
+        if est.get("mean") is not None:
+            return float(est["mean"]), est.get("ci95"), est.get("from_time")
+        value = values.get(key)
+        ok = value is not None and not isinstance(value, (bool, str))
+        return (float(value) if ok else None), None, None
+
+    out = {}
+    (nu_top, h_top, t0), (nu_bottom, h_bottom, _) = pick("nusselt_top"), pick("nusselt_bottom")
+    if nu_top is not None and nu_bottom is not None:
+        flows = wall_heat_flows(nu_top, nu_bottom, boundaries)
+        b = boundaries
+        fixed_t = b is None or (b.top_heat == "temperature" and b.bottom_heat == "temperature")
+        contrast = 1.0 if b is None else (b.bottom_value - b.top_value)
+        for wall, q in flows.items():
+            half = h_top if wall == "top" else h_bottom
+            half = half * abs(contrast) if half is not None and fixed_t else None
+            out[f"heat_flow_{wall}"] = entry("heat_flow", q,
+                                             f"mean upward heat flow through the {wall}",
+                                             half, t0)
+    for key, name, kind, doc in _PHYSICAL:
+        value, half, start = pick(key)
+        if value is None:
+            continue
+        out[name] = entry(kind, value, doc, None if kind == "time" else half, start)
+    return out
 
 
 # ------------------------------------------------------------------------------------------

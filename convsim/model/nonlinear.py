@@ -74,7 +74,7 @@ class NonlinearReport:
         return SolveReport(iterations=self.linear_iterations, refactored=self.refactored,
                            factor_seconds=self.factor_seconds,
                            nonlinear_iterations=self.iterations,
-                           nonlinear_residual=self.residual)
+                           nonlinear_residual=self.residual, residual=self.residual)
 
 
 class LaggedLinear:
