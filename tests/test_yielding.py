@@ -114,3 +114,21 @@ def test_plate_diagnostics_of_known_surfaces():
     # eta_lin = 1 at T = 0; eta_plast = 1 / (sqrt(2) e) < 1 exactly when e > 1/sqrt(2)
     mask = yielded_mask(law, np.zeros(3), np.ones(3), np.array([0.5, 0.70, 0.72]))
     assert mask.tolist() == [False, False, True]
+
+
+def test_restart_with_yielding_continues_bit_for_bit(tmp_path):
+    """The nonlinear iteration starts from the saved flow with the saved factor: a restarted
+    yielding run repeats the uninterrupted one bit for bit."""
+    from convsim import api
+
+    def cfg(steps):
+        return load_config(ROOT / "configs" / "benchmark_viscoplastic_case2.toml",
+                           ["domain.nx=12", "domain.nz=12", "stop.steady=false",
+                            "stop.newton=false", "output.snapshot_steps=8",
+                            f"stop.max_steps={steps}"])
+    full = api.run(cfg(16), tmp_path / "full.h5")
+    api.run(cfg(8), tmp_path / "part.h5")
+    resumed = api.run(cfg(16), restart=tmp_path / "part.h5")
+    assert resumed.steps == full.steps == 16
+    assert np.array_equal(resumed.temperature, full.temperature)
+    assert np.array_equal(resumed.psi, full.psi)
