@@ -36,6 +36,7 @@ import numpy as np
 
 from convsim.model.energy import ThermalBoundaries, boundary_heat_flux
 from convsim.model.grid import Grid
+from convsim.model.linsolve import SolveReport
 from convsim.model.stokes import face_velocities
 
 __all__ = ["wall_temperatures", "nusselt_numbers", "rms_velocity", "surface_rms_velocity",
@@ -158,18 +159,17 @@ class Sample:
     previous_T : temperature one step earlier, or None (no step: a start, a jump).
     dt : the step's size (0: no step).
     heat_rate : d/dt of the heat content as the time stepper computed it (0: no step).
-    stokes_iterations : CG iterations of the step's Stokes solve.
-    stokes_residual : ||b - A x|| / ||b|| of the step's Stokes solve.
+    solve : the step's Stokes ``SolveReport`` (iterations, residual, nonlinear iterations),
+        or None.
     """
 
     def __init__(self, grid: Grid, thermal: ThermalBoundaries, heating: float, T: np.ndarray,
                  psi: np.ndarray, previous_T: np.ndarray | None = None, dt: float = 0.0,
-                 heat_rate: float = 0.0, stokes_iterations: int = 0,
-                 stokes_residual: float = 0.0):
+                 heat_rate: float = 0.0, solve=None):
         self.grid, self.thermal, self.heating = grid, thermal, float(heating)
         self.T, self.psi, self.previous_T = T, psi, previous_T
-        self.dt, self.heat_rate, self.stokes_iterations = dt, heat_rate, stokes_iterations
-        self.stokes_residual = stokes_residual
+        self.dt, self.heat_rate = dt, heat_rate
+        self.solve = solve if solve is not None else SolveReport()
 
     @cached_property
     def nusselt(self) -> tuple[float, float]:
@@ -220,9 +220,14 @@ DIAGNOSTICS = {d.name: d for d in (
     Diagnostic("tendency_max", "1", "max |dT/dt| over the step, units dT/(d^2/kappa)",
                Sample.tendency_max, of_state=False),
     Diagnostic("stokes_iterations", "1", "conjugate-gradient iterations of the Stokes solve",
-               lambda s: int(s.stokes_iterations), of_state=False, dtype="i8"),
+               lambda s: int(s.solve.iterations), of_state=False, dtype="i8"),
     Diagnostic("stokes_residual", "1", "relative residual ||b - A psi|| / ||b|| of the Stokes "
-               "solve", lambda s: float(s.stokes_residual), of_state=False),
+               "solve", lambda s: float(s.solve.residual), of_state=False),
+    Diagnostic("nonlinear_iterations", "1", "Picard/Newton steps of a strain-rate law's Stokes "
+               "iteration (0: linear law)", lambda s: int(s.solve.nonlinear_iterations),
+               of_state=False, dtype="i8"),
+    Diagnostic("nonlinear_residual", "1", "final ||R|| / ||b|| of that iteration",
+               lambda s: float(s.solve.nonlinear_residual), of_state=False),
 )}
 
 

@@ -5,8 +5,8 @@ The model solves A(eta) x = b for the streamfunction unknowns x (see
 dissipation matrix of the viscosity eta(T).  Every solver implements
 
     solve(T, b, x0)        -> (x, SolveReport)    one flow solve for the field T
-    linearised(T, b)       -> (x, dsolve)         x and dx = dsolve(v, b_v), the exact
-                                                  response of x to T -> T + v (Newton)
+    linearised(T, rhs, x0) -> (x, dsolve)         x and dx = dsolve(v), the exact response
+                                                  of x to T -> T + v (Newton); rhs: T -> b
     state() / restore(s)   what the solver caches (a factor), as plain arrays, so that a
                                                   restarted run repeats the uninterrupted
                                                   one bit for bit
@@ -39,6 +39,8 @@ from convsim.errors import ConfigError, SolverError
 from convsim.model.choices import FACTOR_REUSE
 from convsim.model.linsolve import (LaggedFactorSolver, SolveReport, available_factorizers,
                                     make_factorizer)
+from convsim.model.nonlinear import LaggedLinear, solve_nonlinear
+from convsim.model.nonlinear import linearised_flow as nonlinear_linearised
 from convsim.model.stokes import StokesOperator, TransformSolver
 
 __all__ = ["StokesProblem", "StokesSolver", "SOLVERS", "make_stokes_solver", "suitable_solvers"]
@@ -58,11 +60,19 @@ class StokesProblem:
         T (nz, nx) -> (eta at the nodes (nz + 1, nx + 1), eta at the cells (nz, nx)).
     uniform : bool
         The viscosity is 1 everywhere, whatever T (the law says so).
+    strain_viscosity : callable or None
+        For a law that reads the strain rate: ``T -> ((e_node, e_cell) -> (eta_node,
+        eta_cell))``; the flow is then the nonlinear iteration of ``convsim.model.nonlinear``
+        over the solver's factor.  None: the viscosity depends on T alone.
+    nonlinear : tuple
+        (method, rtol, max_iterations) of ``convsim.model.nonlinear.solve_nonlinear``.
     """
 
     operator: StokesOperator
     viscosities: Callable
     uniform: bool = False
+    strain_viscosity: Callable | None = None
+    nonlinear: tuple = ("newton", 1e-8, 50)
 
     def weights(self, T: np.ndarray) -> np.ndarray:
         """The viscosity weights of A(eta(T)) (``StokesOperator.viscosity_weights``)."""
@@ -93,26 +103,32 @@ class StokesSolver:
               ) -> tuple[np.ndarray, SolveReport]:
         raise NotImplementedError
 
-    def linearised(self, T: np.ndarray, b: np.ndarray):
-        """x(T) and ``dsolve(v, b_v)``: the change of x per unit change of T along v.
+    def linearised(self, T: np.ndarray, rhs: Callable, x0: np.ndarray | None = None):
+        """x(T) and ``dsolve(v)``: the change of x per unit change of T along v.
 
-        A dx = b_v - (dA/deta . deta/dT v) x, solved with a factor of A(T) of its
+        A dx = rhs(v) - (dA/deta . deta/dT v) x, solved with a factor of A(T) of its
         own, apart from the time stepper's (so the stepper's cache, and with it a
         restart, is not disturbed).  Exact derivatives matter: a finite difference
         of two separately factorised solves would be swamped by their rounding
-        (condition number ~ n^4 x viscosity contrast).
+        (condition number ~ n^4 x viscosity contrast).  A strain-rate law goes through
+        ``convsim.model.nonlinear.linearised_flow`` (Newton Jacobian, GMRES).
         """
+        p, op = self.problem, self.problem.operator
+        if p.strain_viscosity is not None:
+            x, derivative, _ = nonlinear_linearised(
+                op, p.strain_viscosity, rhs, T, x0, make_factorizer(self._backend_name()),
+                min(p.nonlinear[1], 1e-9), p.nonlinear[2])
+            return x, derivative
         factor = make_factorizer(self._backend_name())
-        op = self.problem.operator
-        factor.factor(op.matrix_from_weights(self.problem.weights(T)))
-        x = factor.solve(b)
+        factor.factor(op.matrix_from_weights(p.weights(T)))
+        x = factor.solve(rhs(T))
 
-        def dsolve(v, b_v):
+        def dsolve(v):
             scale = float(np.abs(v).max())
             if scale == 0.0:
                 return np.zeros(op.n_unknowns)
-            dA = op.matrix_from_weights(self.problem.weight_derivative(T, v, scale))
-            return factor.solve(b_v - dA @ x)
+            dA = op.matrix_from_weights(p.weight_derivative(T, v, scale))
+            return factor.solve(rhs(v) - dA @ x)
 
         return x, dsolve
 
@@ -148,8 +164,8 @@ class TransformStokes(StokesSolver):
         x = self._transform.solve(b)
         return x, SolveReport(solve_seconds=time.perf_counter() - t0)
 
-    def linearised(self, T, b):
-        return self._transform.solve(b), lambda v, b_v: self._transform.solve(b_v)
+    def linearised(self, T, rhs, x0=None):
+        return self._transform.solve(rhs(T)), lambda v: self._transform.solve(rhs(v))
 
 
 class FactoredStokes(StokesSolver):
@@ -165,8 +181,14 @@ class FactoredStokes(StokesSolver):
         return self.backend
 
     def solve(self, T, b, x0=None):
-        weights = self.problem.weights(T)
-        A = self.problem.operator.matrix_from_weights(weights)
+        p = self.problem
+        if p.strain_viscosity is not None:        # a yielding law: iterate on the strain rate
+            method, rtol, most = p.nonlinear
+            x, report = solve_nonlinear(p.operator, p.strain_viscosity(T), b, x0,
+                                        LaggedLinear(p.operator, self._lagged), method, rtol, most)
+            return x, report.solve_report()
+        weights = p.weights(T)
+        A = p.operator.matrix_from_weights(weights)
         return self._lagged.solve(A, b, x0, weights)
 
     def state(self) -> dict:

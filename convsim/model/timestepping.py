@@ -44,6 +44,7 @@ from convsim.model.energy import DiffusionSolver, ThermalBoundaries, advection
 from convsim.model.fields import FieldDeclaration, temperature_field
 from convsim.model.grid import Grid
 from convsim.model.linsolve import SolveReport
+from convsim.model.nonlinear import strain_rate_invariants
 from convsim.model.rheology import ViscosityLaw, viscosity
 from convsim.model.solvers import StokesProblem, make_stokes_solver
 from convsim.model.state import ModelState, from_record, to_record
@@ -116,6 +117,9 @@ class Model:
     stokes_solver : 'auto' or a name of ``convsim.model.solvers.SOLVERS``
     factor_reuse : {'adaptive', 'always'}
         For a factor back end: lag the factor as a CG preconditioner, or refactor.
+    nonlinear : tuple
+        (method, rtol, max_iterations) of ``convsim.model.nonlinear.solve_nonlinear``, used
+        when the law reads the strain rate.
     fields : sequence of FieldDeclaration
         Advected fields besides the temperature (a dye), each with its ``start``.
     """
@@ -125,7 +129,8 @@ class Model:
                  top_flow: str = "free-slip", bottom_flow: str = "free-slip",
                  advection_limiter: str = "van-leer", time_scheme: str = "sbdf2",
                  cfl: float = 0.4, max_dt: float = 1e-2, stokes_solver: str = "auto",
-                 factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04, fields=()):
+                 factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04,
+                 nonlinear: tuple = ("newton", 1e-8, 50), fields=()):
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
@@ -143,18 +148,35 @@ class Model:
                            for f in self.fields if f.diffusivity > 0.0}
         self._x_node, self._z_node = grid.node_mesh()
         self._z_cell = grid.cell_mesh()[1]
-        problem = StokesProblem(self.stokes, self.viscosities, uniform=law.is_constant)
+        self.nonlinear = tuple(nonlinear)
+        problem = StokesProblem(
+            self.stokes, self.viscosities, uniform=law.is_constant,
+            strain_viscosity=self.viscosity_of_strain if law.needs_strain_rate else None,
+            nonlinear=self.nonlinear)
         self.flow_solver = make_stokes_solver(stokes_solver, problem, factor_reuse)
         self.stokes_solver = self.flow_solver.name
 
     # -- pieces -----------------------------------------------------------------------------
-    def viscosities(self, T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Viscosity at the nodes (nz + 1, nx + 1) and at the cell centres (nz, nx)."""
+    def viscosities(self, T: np.ndarray, psi: np.ndarray | None = None
+                    ) -> tuple[np.ndarray, np.ndarray]:
+        """Viscosity at the nodes (nz + 1, nx + 1) and at the cell centres (nz, nx).
+
+        A law that reads the strain rate takes it from the flow psi (None: no flow).
+        """
+        law_of_strain = self.viscosity_of_strain(T)
+        if psi is None or not self.law.needs_strain_rate:
+            return law_of_strain(None, None)
+        return law_of_strain(*strain_rate_invariants(self.stokes, psi))
+
+    def viscosity_of_strain(self, T: np.ndarray):
+        """``(e_node, e_cell) -> (eta_node, eta_cell)``: the law at temperature T as a
+        function of the strain-rate invariant (None: zero)."""
         tb, tt = diag.wall_temperatures(self.grid, T, self.thermal)
         tb_n = np.concatenate([tb[:1], 0.5 * (tb[1:] + tb[:-1]), tb[-1:]])
         tt_n = np.concatenate([tt[:1], 0.5 * (tt[1:] + tt[:-1]), tt[-1:]])
         t_node = self.grid.cell_to_node(T, tb_n, tt_n)
-        return viscosity(self.law, t_node, self._z_node), viscosity(self.law, T, self._z_cell)
+        return lambda e_node, e_cell: (viscosity(self.law, t_node, self._z_node, e_node),
+                                       viscosity(self.law, T, self._z_cell, e_cell))
 
     def buoyancy(self, fields: dict) -> np.ndarray:
         """sum_f buoyancy_f f over the declared fields: the field whose x-derivative, times Ra,
@@ -176,7 +198,7 @@ class Model:
         x, report = self.flow_solver.solve(T, op.rhs(driving, self.rayleigh), x0)
         return op.to_nodes(x), report
 
-    def linearised_flow(self, T: np.ndarray):
+    def linearised_flow(self, T: np.ndarray, psi_guess: np.ndarray | None = None):
         """The streamfunction of T and its derivative with respect to T.
 
         Returns ``psi`` (nz + 1, nx + 1) and a function ``v -> dpsi`` giving the
@@ -184,8 +206,9 @@ class Model:
         A dpsi = Ra dv/dx - (dA/deta . deta/dT v) psi (``StokesSolver.linearised``).
         """
         op = self.stokes
-        x, dsolve = self.flow_solver.linearised(T, op.rhs(T, self.rayleigh))
-        return op.to_nodes(x), lambda v: op.to_nodes(dsolve(v, op.rhs(v, self.rayleigh)))
+        x0 = None if psi_guess is None else op.from_nodes(psi_guess)
+        x, dsolve = self.flow_solver.linearised(T, lambda v: op.rhs(v, self.rayleigh), x0)
+        return op.to_nodes(x), lambda v: op.to_nodes(dsolve(v))
 
     # -- states -----------------------------------------------------------------------------
     def initial_state(self, T: np.ndarray, time_: float = 0.0, step: int = 0, *,
@@ -317,7 +340,7 @@ class Model:
         solve = solve or SolveReport()
         previous = None if state.previous is None else state.previous["temperature"]
         sample = diag.Sample(self.grid, self.thermal, self.internal_heating, state.temperature,
-                             state.psi, previous, dt, heat_rate, solve.iterations, solve.residual)
+                             state.psi, previous, dt, heat_rate, solve)
         return StepReport(step=state.step, time=state.time, dt=dt, **diag.evaluate(sample),
                           rejections=rejections, refactored=solve.refactored)
 

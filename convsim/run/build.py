@@ -46,7 +46,9 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     return Model(grid, layer.internal_rayleigh(config), build_thermal(config),
                  build_law(config), config.physics.internal_heating, b.top_flow, b.bottom_flow,
                  limiter, n.time_scheme, n.cfl, n.max_dt, n.stokes_solver, n.factor_reuse,
-                 n.time_scale_fraction, fields=build_tracers(config, grid))
+                 n.time_scale_fraction,
+                 (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations),
+                 fields=build_tracers(config, grid))
 
 
 def build_tracers(config: Config, grid: Grid) -> tuple:

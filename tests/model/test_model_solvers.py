@@ -125,8 +125,8 @@ def test_linearised_response_matches_a_difference_of_solves(name):
     op = problem.operator
     v = np.cos(2 * np.pi * g.cell_mesh()[0]) * np.sin(np.pi * g.cell_mesh()[1])
     solver = make_stokes_solver(name, problem)
-    x, dsolve = solver.linearised(T, op.rhs(T, RA))
-    dx = dsolve(v, op.rhs(v, RA))
+    x, dsolve = solver.linearised(T, lambda f: op.rhs(f, RA))
+    dx = dsolve(v)
     h = 1e-4
     fresh = make_stokes_solver(name, problem, "always")
     up = fresh.solve(T + h * v, op.rhs(T + h * v, RA))[0]
