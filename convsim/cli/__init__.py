@@ -12,7 +12,7 @@ import os
 import sys
 
 from convsim import __version__
-from convsim.errors import ConvsimError
+from convsim.errors import ConvsimError, DiskFullError
 
 COMMANDS = {}
 
@@ -90,7 +90,9 @@ class ProgressBar:
         self.bar.close()
 
 
+#: Exit status of ``convsim run`` by run status; 2 is bad input, EXIT_DISK_FULL a full disk.
 EXIT_FOR_STATUS = {"steady": 0, "end-time": 0, "step-limit": 0, "diverged": 3, "interrupted": 130}
+EXIT_DISK_FULL = 4
 
 
 @command("run", "run a config: a convecting box to steady state or an end time")
@@ -136,24 +138,30 @@ def _run(args):
     if result.status == "diverged":
         print(f"convsim: run diverged: {result.message}; the last good state is in "
               f"{result.output}", file=sys.stderr)
+    if result.status in ("diverged", "interrupted") and result.output:
+        print(f"convsim: to continue: {_restart_command(args, result.output)}", file=sys.stderr)
     return EXIT_FOR_STATUS[result.status]
+
+
+def _restart_command(args, output) -> str:
+    """The command line that continues this run from its last snapshot."""
+    import shlex
+    words = ["convsim", "run", args.config, "--restart", str(output)]
+    if args.grid:
+        words += ["--grid", args.grid]
+    for item in args.set:
+        words += ["--set", item]
+    if args.start_from:
+        words += ["--from", args.start_from]
+    return " ".join(shlex.quote(w) for w in words)
 
 
 def _check_restart_config(path, cfg):
     """A restart may change only [stop] and [output]: anything else would not continue the run."""
-    import tomllib
-    from convsim.config import to_dict
-    from convsim.errors import ConfigError
-    from convsim.files.runfile import read_run
-    saved = tomllib.loads(read_run(path).config_text)
-    new = to_dict(cfg)
-    for table in saved:
-        if table in ("stop", "output", "title"):
-            continue
-        if saved[table] != new.get(table):
-            keys = [k for k in saved[table] if saved[table][k] != new.get(table, {}).get(k)]
-            raise ConfigError(f"--restart {path!r}: [{table}] differs from the run's own config "
-                              f"({', '.join(keys)}); only [stop] and [output] may change")
+    from convsim.api import check_restart_config
+    check_restart_config(path, cfg)
+
+
 # --- convsim rayleigh: numbers and scales of a layer from its physical properties -----------
 
 _RAYLEIGH_FLAGS = (  # (units.Scales field, option, meaning, SI units, example); no pint at parse
@@ -387,7 +395,9 @@ def _run_fit(args) -> int:
     from convsim.errors import OutputExistsError
     from convsim.analysis.fitting import RegimeThresholds, fit_report
     from convsim.studies.sweep_table import read_table
+    from convsim.files.runfile import check_output_folder
     table = read_table(args.table)
+    check_output_folder(Path(args.out) if args.out else Path(args.table).parent / "fit")
     ys = [y.strip() for y in args.y.split(",") if y.strip()]
     statuses = None if args.status.strip() == "all" else tuple(
         s.strip() for s in args.status.split(",") if s.strip())
@@ -595,6 +605,8 @@ def _run_onset(args) -> int:
         existing = [str(t) for t in targets if t.exists()]
         if existing and not args.overwrite:
             raise OutputExistsError(f"{existing[0]}: exists; pass --overwrite to replace it")
+        from convsim.files.runfile import check_output_folder
+        check_output_folder(out)
     result = _onset_from_config(cfg, wavenumbers, args.points)
     payload = result.to_dict()
     runs = _onset_run_bracket(cfg, result, run_options)
@@ -797,6 +809,9 @@ def main(argv=None) -> int:
                         format="%(levelname)s %(name)s: %(message)s")
     try:
         return int(args.handler(args) or 0)
+    except DiskFullError as exc:
+        print(f"convsim: error: {exc}", file=sys.stderr)
+        return EXIT_DISK_FULL
     except ConvsimError as exc:
         print(f"convsim: error: {exc}", file=sys.stderr)
         return 2

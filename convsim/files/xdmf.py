@@ -32,7 +32,8 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 
 
-from convsim.errors import SnapshotError
+from convsim.errors import DiskFullError, SnapshotError
+from convsim.files.commit import fault_point, is_disk_full
 from convsim.files.runfile import check_writable, open_run_file
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
@@ -129,6 +130,14 @@ def write_xdmf(run_path: str | Path, output: str | Path | None = None, *,
     text = xdmf_text(run_path)
     check_writable(output, overwrite)
     part = output.with_name(output.name + ".part")
-    part.write_text(text, encoding="utf-8")
-    part.replace(output)
+    try:
+        fault_point("xdmf")
+        part.write_text(text, encoding="utf-8")
+        part.replace(output)
+    except OSError as exc:
+        part.unlink(missing_ok=True)
+        kind = DiskFullError if is_disk_full(exc, output.parent) else SnapshotError
+        raise kind(f"XDMF sidecar {str(output)!r}: cannot be written ({exc.strerror or exc}); "
+                   f"the run file is complete, write the sidecar later with: convsim xdmf "
+                   f"{str(run_path)!r}") from None
     return output

@@ -260,6 +260,8 @@ class Simulation:
             window = [tuple(v) for v in np.asarray(r.get("window", np.zeros((0, 2))))]
         self._emit("on_start", self, resume is not None)
         status, message = "", ""
+        if resume is not None:
+            status, message = _finished_before(state, stop, settled, stage == len(stages) - 1)
         tol = stop.steady_tolerance
 
         def snapshot(st, status_now):
@@ -279,7 +281,7 @@ class Simulation:
         last_snapshot_step = state.step
         interrupt = _DeferredInterrupt()
         try:
-            while True:
+            while not status:
                 dt_limit = None
                 if stop.end_time > 0:
                     dt_limit = stop.end_time - state.time
@@ -361,7 +363,8 @@ class Simulation:
                 elif state.step >= stop.max_steps:
                     status, message = "step-limit", f"reached the step limit {stop.max_steps}"
                 elif interrupt.requested:
-                    status, message = "interrupted", f"interrupted at step {state.step}"
+                    status, message = "interrupted", (f"interrupted ({interrupt.signal}) at step "
+                                                      f"{state.step}")
                 if status:
                     break
                 due = ((out.snapshot_steps and state.step % out.snapshot_steps == 0)
@@ -373,10 +376,14 @@ class Simulation:
                     last_snapshot_step = state.step
         except KeyboardInterrupt:      # not in the main thread: no deferred handler there
             status, message = "interrupted", f"interrupted at step {state.step}"
+        except BaseException:
+            interrupt.restore()
+            raise
+        try:                           # a signal now stops nothing half-written
+            if state.step != last_snapshot_step:
+                snapshot(state, status)
         finally:
             interrupt.restore()
-        if state.step != last_snapshot_step:
-            snapshot(state, status)
         wall = time.perf_counter() - wall0
         q = diag.corner_gradients(self.grid, state.temperature, model.thermal)
         nu_top, nu_bottom = diag.nusselt_numbers(self.grid, state.temperature, model.thermal)
@@ -396,23 +403,46 @@ class Simulation:
         return result
 
 
+def _finished_before(state, stop, settled: int, last_stage: bool) -> tuple[str, str]:
+    """Status and message when a restarted run has already met its stop rule (no step is
+    taken then), else ``("", "")``."""
+    if stop.steady and last_stage and settled >= SETTLE_STEPS:
+        return "steady", f"already steady at step {state.step} before this restart; nothing to do"
+    if stop.end_time > 0 and state.time >= stop.end_time * (1 - 1e-12):
+        return "end-time", (f"already at the end time {stop.end_time:g} before this restart; "
+                            f"nothing to do (raise stop.end_time to go on)")
+    if state.step >= stop.max_steps:
+        return "step-limit", (f"already at the step limit {stop.max_steps} (step {state.step}) "
+                              f"before this restart; nothing to do (raise stop.max_steps to go on)")
+    return "", ""
+
+
 class _DeferredInterrupt:
-    """Turns Ctrl-C (SIGINT) into a flag the loop reads between steps, so that an interrupt
-    never lands inside a snapshot write.  Only in the main thread (signals go there)."""
+    """Turns Ctrl-C (SIGINT) and SIGTERM (what batch schedulers send before a kill) into a flag
+    the loop reads between steps, so that neither lands inside a snapshot write: the run ends
+    with a final snapshot and the status 'interrupted'.  A second signal while the run is
+    already stopping raises ``KeyboardInterrupt`` (the command line exits with 130; a snapshot
+    being written is then dropped whole, the file keeps the one before).  Only in the main
+    thread (signals go there)."""
+
+    SIGNALS = (signal.SIGINT, signal.SIGTERM)
 
     def __init__(self):
         self.requested = False
-        self._previous = None
+        self.signal = None
+        self._previous = {}
         if threading.current_thread() is threading.main_thread():
-            self._previous = signal.signal(signal.SIGINT, self._handle)
+            self._previous = {s: signal.signal(s, self._handle) for s in self.SIGNALS}
 
     def _handle(self, signum, frame):
-        self.requested = True
+        if self.requested:
+            raise KeyboardInterrupt
+        self.requested, self.signal = True, signal.Signals(signum).name
 
     def restore(self):
-        if self._previous is not None:
-            signal.signal(signal.SIGINT, self._previous)
-            self._previous = None
+        for signum, previous in self._previous.items():
+            signal.signal(signum, previous)
+        self._previous = {}
 
 
 def build_model(config: Config, grid: Grid | None = None) -> Model:
