@@ -33,6 +33,7 @@ from pathlib import Path
 
 
 from convsim.errors import DiskFullError, SnapshotError
+from convsim.files.atomic import atomic_write_text
 from convsim.files.commit import fault_point, is_disk_full
 from convsim.files.runfile import check_writable, open_run_file
 
@@ -129,13 +130,10 @@ def write_xdmf(run_path: str | Path, output: str | Path | None = None, *,
                             f"{str(run_path)!r} (the data are referenced by relative path)")
     text = xdmf_text(run_path)
     check_writable(output, overwrite)
-    part = output.with_name(output.name + ".part")
     try:
         fault_point("xdmf")
-        part.write_text(text, encoding="utf-8")
-        part.replace(output)
+        atomic_write_text(output, text)
     except OSError as exc:
-        part.unlink(missing_ok=True)
         kind = DiskFullError if is_disk_full(exc, output.parent) else SnapshotError
         raise kind(f"XDMF sidecar {str(output)!r}: cannot be written ({exc.strerror or exc}); "
                    f"the run file is complete, write the sidecar later with: convsim xdmf "
