@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import signal
 import sys
 
 from convsim.cli.common import command, emit_json
@@ -22,6 +23,10 @@ def _add_sweep(p):
     p.set_defaults(handler=_run_sweep)
 
 
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
+
+
 def _run_sweep(args) -> int:
     from pathlib import Path
     from tqdm import tqdm
@@ -40,10 +45,12 @@ def _run_sweep(args) -> int:
         bar.set_postfix_str(f"{event.case_id}: {'done before' if event.skipped else event.status}",
                             refresh=False)
 
+    previous = signal.signal(signal.SIGTERM, _terminate)   # SIGTERM ends a sweep like Ctrl-C
     try:
         outcome = run_sweep(spec, out, jobs=args.jobs, scheduler=args.scheduler,
                             progress=progress, overwrite=args.overwrite)
     finally:
+        signal.signal(signal.SIGTERM, previous)
         bar.close()
     summary = outcome.summary()
     if args.json:

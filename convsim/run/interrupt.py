@@ -16,8 +16,9 @@ __all__ = ["DeferredInterrupt"]
 
 class DeferredInterrupt:
     """Turns the given signals (default: SIGINT, Ctrl-C, and SIGTERM, what batch schedulers send
-    before they kill a job) into a flag while it is active; a second signal raises
-    ``KeyboardInterrupt`` (the command line exits with 130).
+    before they kill a job) into a flag while it is active; a second Ctrl-C raises
+    ``KeyboardInterrupt`` (the command line exits with 130); a second SIGTERM changes nothing
+    (a process pool that shuts down sends its workers SIGTERM again).
 
     Use as a context manager; the previous handlers come back on exit.
 
@@ -36,8 +37,8 @@ class DeferredInterrupt:
         self._previous: dict = {}
 
     def _handle(self, signum, frame):
-        if self.requested:             # a second signal: stop now (a snapshot being written is
-            raise KeyboardInterrupt    # dropped whole; the run file keeps the one before)
+        if self.requested and signum == signal.SIGINT:   # a second Ctrl-C: stop now (a snapshot
+            raise KeyboardInterrupt    # being written is dropped whole, the file keeps the one before)
         self.requested = True
         self.signum = signum
 
