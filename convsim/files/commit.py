@@ -157,10 +157,10 @@ def commit(path: Path, update, extra_bytes: int = 0, fresh: bool = False):
         raise
     except OSError as exc:
         _discard(part)
+        why = " ".join(str(exc.strerror or exc).split())       # HDF5's messages span lines
         if is_disk_full(exc, path.parent):
-            raise DiskFullError(f"run file {str(path)!r}: the disk is full "
-                                f"({exc.strerror or exc})") from None
-        raise SnapshotError(f"run file {str(path)!r}: cannot be written ({exc})") from None
+            raise DiskFullError(f"run file {str(path)!r}: the disk is full ({why})") from None
+        raise SnapshotError(f"run file {str(path)!r}: cannot be written ({why})") from None
     except BaseException:
         _discard(part)
         raise

@@ -2,8 +2,8 @@
 
 Plain arithmetic over the config; no numerics run here.  The memory figure is
 an upper estimate fitted to peak resident sizes measured on this project's
-runs (``benchmarks/run_file_commit.py`` prints them again): the sparse Stokes
-factor dominates, and it grows a little faster than the number of cells.
+runs (the numbers beside the constants); the sparse Stokes factor of a
+variable-viscosity run grows a little faster than the number of cells.
 """
 
 from __future__ import annotations
@@ -16,19 +16,22 @@ from convsim.errors import ConfigError
 __all__ = ["memory_estimate", "available_memory", "check_memory", "snapshot_count",
            "run_file_estimate", "BASE_MEMORY"]
 
-#: Resident size of the interpreter with numpy, scipy, numba and h5py loaded (measured ~250 MB).
-BASE_MEMORY = 300e6
-#: Bytes per cell, constant viscosity (transform solver: fields, spectra, work arrays).
-BYTES_PER_CELL_TRANSFORM = 1.2e3
-#: Bytes per cell and per log2(cells) with a sparse factor (the fill of a nested-dissection
-#: Cholesky factor of the 2D biharmonic operator grows as n log n; common practice).
-BYTES_PER_CELL_FACTOR = 200.0
+#: Resident size of the interpreter with numpy, scipy, numba and h5py loaded.
+BASE_MEMORY = 250e6
+#: Bytes per cell: fields, spectra, sparse operators and work arrays.  Measured peak resident
+#: size (ru_maxrss, 3 steps of case 1a): 386 MB at 256^2, 982 MB at 512^2, i.e. 3.0 kB per
+#: cell over a base of ~190 MB; rounded up.
+BYTES_PER_CELL = 3.2e3
+#: Extra bytes per cell and per log2(cells) with a sparse factor (variable viscosity: the fill
+#: of a nested-dissection Cholesky factor grows as n log n; common practice).  Case 2a at
+#: 256^2 measured 466 MB (80 MB above 1a); 50 B per cell per log2 covers it.
+BYTES_PER_CELL_FACTOR = 50.0
 
 
 def memory_estimate(nx: int, nz: int, constant_viscosity: bool) -> float:
     """Upper estimate of a run's peak memory, bytes."""
     cells = float(nx) * float(nz)
-    per_cell = BYTES_PER_CELL_TRANSFORM
+    per_cell = BYTES_PER_CELL
     if not constant_viscosity:
         per_cell += BYTES_PER_CELL_FACTOR * math.log2(max(cells, 2.0))
     return BASE_MEMORY + per_cell * cells
