@@ -16,8 +16,10 @@ from convsim.errors import ConfigError
 from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
+from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable, read_run
 from convsim.files.xdmf import sidecar_path, write_xdmf
+from convsim.threads import limit_threads
 from convsim.views import open_run
 
 __all__ = ["load_config", "run", "open_run", "start_temperature", "check_restart_config"]
@@ -86,7 +88,8 @@ def _check_resources(config: Config, grid: Grid | None, output: Path | None) -> 
 
 def run(config: Config | str | Path, output: str | Path | None = None, *,
         overwrite: bool = False, restart: str | Path | None = None, observers=(),
-        grid: Grid | None = None, progress: bool = False) -> RunResult:
+        grid: Grid | None = None, progress: bool = False, threads: int | None = None
+        ) -> RunResult:
     """Run a config to its stop rule.
 
     Parameters
@@ -105,6 +108,9 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     progress : bool
         Show a progress bar (a widget in Jupyter, a line on a terminal; see
         ``convsim.run.progress``).
+    threads : int, optional
+        Threads for the numerics (BLAS, numba); default $CONVSIM_THREADS or 1
+        (see ``convsim.threads``).
 
     Returns
     -------
@@ -112,12 +118,14 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         With ``physical`` (answers in mW m^-2, cm yr^-1, K, Myr) and ``scales`` when the
         config has a [body] table; ``result.to_xarray()`` gives an ``xarray.Dataset``.
     """
+    limit_threads(threads)
     if not isinstance(config, Config):
         config = load_config(config)
     scales = None
     if config.body is not None:      # check the physical properties (units, dimensions) up front
         from convsim.units import scales_from_body
         scales = scales_from_body(config.body)
+    config = resolve(config)             # Ra and an Arrhenius law from [body], or a refusal
     observers = list(observers)
     if progress:
         from convsim.run.progress import ProgressDisplay

@@ -26,6 +26,7 @@ import scipy.sparse.linalg as sla
 
 from convsim.errors import SolverError
 from convsim.model.choices import FACTOR_REUSE
+from convsim.threads import reapply_limit
 
 __all__ = ["FACTORIZERS", "limit_blas_threads", "available_factorizers", "make_factorizer", "solve_spd",
            "LaggedFactorSolver", "SolveReport"]
@@ -61,7 +62,7 @@ class CholmodFactorizer:
                               "allowed: 'superlu', or pip install cvxopt") from exc
         self._cvxopt = cvxopt
         self._cholmod = cvxopt.cholmod
-        limit_blas_threads(1)
+        reapply_limit()          # cvxopt loads a BLAS of its own: same limit as the run
         self._cholmod.options["supernodal"] = 2
         self._symbolic = None
         self._key = None
@@ -86,27 +87,20 @@ class CholmodFactorizer:
         return np.array(x).ravel()
 
 
-def limit_blas_threads(n: int = 1):
-    """Limit every loaded BLAS to n threads (also those loaded later, through the environment).
+def limit_blas_threads(n: int | None = None):
+    """Limit every thread pool of this process to n threads (default: ``convsim.threads``).
 
     cvxopt ships its own OpenBLAS beside numpy's; two spinning thread pools on a
     small machine slow every dense and sparse kernel several times over (measured:
     a 128 x 128 variable-viscosity step went from 190 ms to 29 ms on 2 cores).
-    The matrices here are too small to gain from threaded BLAS, and parallel runs
-    (bench, sweep, onset brackets) are the parallelism: each worker calls this.
-    Returns the threadpoolctl limiter (or None without threadpoolctl).
     """
-    import os
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # pragma: no cover
-        return None
-    return threadpool_limits(limits=n, user_api="blas")
+    from convsim.threads import limit_threads
+    return limit_threads(n)
 
 
 FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}
+#: Iterative-refinement steps at most after a direct solve whose residual is above rtol.
+MAX_REFINEMENTS = 3
 
 
 def available_factorizers() -> list[str]:
@@ -145,6 +139,8 @@ class SolveReport:
     refactored: bool = False
     factor_seconds: float = 0.0
     solve_seconds: float = 0.0
+    residual: float = 0.0        # ||b - A x|| / ||b|| of the answer
+    refinements: int = 0         # iterative-refinement steps after a direct solve
 
 
 class LaggedFactorSolver:
@@ -153,7 +149,9 @@ class LaggedFactorSolver:
     With ``policy = 'always'`` every new matrix is factorised.  With ``'adaptive'``
     the last factor preconditions conjugate gradients on the new matrix; when CG
     needs more than ``max_iterations`` iterations to reach ``rtol`` the matrix is
-    refactorised and solved directly.
+    refactorised and solved directly.  A direct solve is checked: while its relative
+    residual exceeds ``rtol`` (a factor that lost digits, at large viscosity contrasts),
+    up to ``MAX_REFINEMENTS`` steps of iterative refinement x += A^-1 (b - A x) follow.
 
     Parameters
     ----------
@@ -198,13 +196,24 @@ class LaggedFactorSolver:
             report.solve_seconds = time.perf_counter() - t0
             report.iterations = iterations
             if ok:
+                report.residual = _relative_residual(A, b, x)
                 return x, report
             report.factor_seconds = self.refactor(A, weights)
             report.refactored = True
         t0 = time.perf_counter()
         x = self.factorizer.solve(b)
+        report.residual = _relative_residual(A, b, x)
+        while report.residual > self.rtol and report.refinements < MAX_REFINEMENTS:
+            x = x + self.factorizer.solve(b - A @ x)
+            report.refinements += 1
+            report.residual = _relative_residual(A, b, x)
         report.solve_seconds += time.perf_counter() - t0
         return x, report
+
+
+def _relative_residual(A, b, x) -> float:
+    bnorm = float(np.linalg.norm(b))
+    return float(np.linalg.norm(b - A @ x)) / bnorm if bnorm > 0.0 else 0.0
 
 
 def _pcg(A, b, precondition, x0, rtol, max_iterations):
