@@ -28,7 +28,8 @@ from convsim.files.runfile import read_run
 CONFIGS = Path(__file__).resolve().parents[1] / "configs"
 CASE = ["domain.nx=12", "domain.nz=12", "stop.steady=false", "stop.max_steps=60",
         "output.snapshot_steps=10"]
-COMMITS = 8            # create, 7 snapshots (steps 0, 10, ..., 60), the final status
+COMMITS = 8            # 7 snapshots (steps 0, 10, ..., 60), then the final status
+REACHED = {"fields": 7, "series": 7, "restart": 7}     # points of snapshot commits only
 WRITE_POINTS = [p for p in commit.WRITE_POINTS if p not in ("create", "xdmf")]
 
 
@@ -146,7 +147,8 @@ def _random_kills(count, seed):
         if rng.random() < 0.25:
             plans.append(("step", rng.randrange(1, 60)))
         else:
-            plans.append((rng.choice(WRITE_POINTS), rng.randrange(1, COMMITS + 1)))
+            point = rng.choice(WRITE_POINTS)
+            plans.append((point, rng.randrange(1, REACHED.get(point, COMMITS) + 1)))
     return plans
 
 
