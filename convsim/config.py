@@ -468,6 +468,8 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
 def read_toml(path: str | Path, what: str = "config file") -> dict:
     """Parse a TOML file; a missing, non-UTF-8 or malformed file raises ``ConfigError``."""
     path = Path(path)
+    if path.is_dir():
+        raise ConfigError(f"{what} {str(path)!r}: is a directory; expected a TOML file")
     if not path.is_file():
         raise ConfigError(f"{what} {str(path)!r}: not found")
     try:
@@ -476,6 +478,8 @@ def read_toml(path: str | Path, what: str = "config file") -> dict:
         raise ConfigError(f"{what} {str(path)!r}: not valid TOML ({exc})") from None
     except UnicodeDecodeError:
         raise ConfigError(f"{what} {str(path)!r}: not UTF-8 text") from None
+    except OSError as exc:
+        raise ConfigError(f"{what} {str(path)!r}: cannot be read ({exc.strerror})") from None
 
 
 def load_config(path: str | Path, overrides: list[str] | tuple[str, ...] = ()) -> Config:
