@@ -306,6 +306,33 @@ def _sha256(path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
+def _quantity_checks(finest, convergence: dict, published: dict) -> list:
+    """Our acceptance checks of each quantity: finest-grid error, extrapolated error, order."""
+    checks = []
+    for q in QUANTITIES:
+        acc = ACCEPTANCE[q]
+        if finest is not None:
+            err = finest.relative_error[q]
+            checks.append(Check(q, "finest", abs(err), acc.finest, abs(err) <= acc.finest,
+                                f"grid {finest.grid}"))
+        est = convergence[q]
+        if est is None:
+            checks.append(Check(q, "extrapolated", math.nan, acc.extrapolated, False,
+                                "fewer than three steady grids"))
+            continue
+        if math.isfinite(est.extrapolated):
+            err = abs(est.extrapolated - published[q]) / abs(published[q])
+            checks.append(Check(q, "extrapolated", err, acc.extrapolated,
+                                err <= acc.extrapolated, est.behaviour))
+        else:
+            checks.append(Check(q, "extrapolated", math.nan, acc.extrapolated, False,
+                                est.note or est.behaviour))
+        if acc.min_order > 0:
+            ok = math.isfinite(est.order) and est.order >= acc.min_order
+            checks.append(Check(q, "order", est.order, acc.min_order, ok, est.behaviour))
+    return checks
+
+
 def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummary:
     """Convergence study, comparison and checks of one case from its rows."""
     from convsim.config import load_config, to_dict
@@ -339,28 +366,7 @@ def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummar
     if len(steady_rows) < 3:
         notes.append(f"{len(steady_rows)} steady grid(s): an observed order and an extrapolated "
                      "value need three")
-    finest = rows[-1] if rows else None
-    for q in QUANTITIES:
-        acc = ACCEPTANCE[q]
-        if finest is not None:
-            err = finest.relative_error[q]
-            checks.append(Check(q, "finest", abs(err), acc.finest, abs(err) <= acc.finest,
-                                f"grid {finest.grid}"))
-        est = convergence[q]
-        if est is None:
-            checks.append(Check(q, "extrapolated", math.nan, acc.extrapolated, False,
-                                "fewer than three steady grids"))
-            continue
-        if math.isfinite(est.extrapolated):
-            err = abs(est.extrapolated - published[q]) / abs(published[q])
-            checks.append(Check(q, "extrapolated", err, acc.extrapolated,
-                                err <= acc.extrapolated, est.behaviour))
-        else:
-            checks.append(Check(q, "extrapolated", math.nan, acc.extrapolated, False,
-                                est.note or est.behaviour))
-        if acc.min_order > 0:
-            ok = math.isfinite(est.order) and est.order >= acc.min_order
-            checks.append(Check(q, "order", est.order, acc.min_order, ok, est.behaviour))
+    checks += _quantity_checks(rows[-1] if rows else None, convergence, published)
     settings = to_dict(cfg)
     return CaseSummary(case=case, title=settings.get("title", case), setup=CASE_SETUP[case],
                        config_path=str(config_path), config_sha256=_sha256(config_path),
