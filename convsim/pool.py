@@ -1,9 +1,8 @@
 """The one process pool for independent runs (bench, sweeps, onset brackets).
 
-Each worker limits every BLAS to one thread before its first task: the runs are
-the parallelism, and two spinning BLAS thread pools (numpy's and cvxopt's) on a
-small machine slow every step several times over (see
-``convsim.model.linsolve.limit_blas_threads``).
+Each worker limits every thread pool (BLAS, OpenMP, numba) to one thread before its
+first task: the runs are the parallelism, and spinning thread pools on a small
+machine slow every step several times over (see ``convsim.threads``).
 """
 
 from __future__ import annotations
@@ -21,9 +20,9 @@ START_METHODS = ("spawn", "fork-if-available")
 
 
 def one_blas_thread() -> None:
-    """One BLAS thread in this process."""
-    from convsim.model.linsolve import limit_blas_threads
-    limit_blas_threads(1)
+    """Worker initializer: one thread in every pool of this process."""
+    from convsim.threads import limit_threads
+    limit_threads(1)
 
 
 def die_with_parent(parent_pid: int) -> None:

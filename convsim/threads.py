@@ -20,8 +20,9 @@ import os
 __all__ = ["limit_threads", "requested_threads", "reapply_limit"]
 
 ENVIRONMENT_VARIABLE = "CONVSIM_THREADS"
-_POOL_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-                   "NUMBA_NUM_THREADS")
+# Not NUMBA_NUM_THREADS: numba reads it again at every compile and refuses a value other
+# than the one its pool was launched with; numba.set_num_threads below limits it instead.
+_POOL_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 
 
 def requested_threads(threads: int | None = None) -> int:

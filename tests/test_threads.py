@@ -4,6 +4,8 @@ Common practice: on a shared or small machine a numerics code runs its BLAS, Ope
 numba pools with the thread count the user asked for, one unless told otherwise.
 """
 
+import os
+
 import numba
 import pytest
 from threadpoolctl import threadpool_info
@@ -57,3 +59,20 @@ def test_bad_thread_count_is_one_line_and_exit_2(value, capsys):
     assert exc.value.code == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert "--threads" in err[-1] and value in err[-1]
+
+
+def test_a_run_compiles_its_kernels_after_the_limit(tmp_path):
+    """A fresh kernel cache (a clean clone, CI) and numba imported before the limit: the first
+    compile must not trip over a changed NUMBA_NUM_THREADS (it raised RuntimeError)."""
+    import subprocess
+    import sys
+    code = ("import convsim.model.kernels\n"
+            "from convsim import api\nfrom convsim.config import Config\n"
+            "r = api.run(Config().replace(domain__nx=8, domain__nz=8, stop__max_steps=2,"
+            " stop__steady=False))\nprint(r.status)\n")
+    env = {k: v for k, v in os.environ.items() if k != "NUMBA_NUM_THREADS"}
+    env["NUMBA_CACHE_DIR"] = str(tmp_path)
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
+                         timeout=300)
+    assert out.returncode == 0, out.stderr[-500:]
+    assert out.stdout.strip() == "step-limit"

@@ -21,23 +21,8 @@ __all__ = ["describe_run", "format_info"]
 _PROVENANCE = ("title", "source", "convsim_version", "created", "Conventions", "wall_seconds")
 
 
-def describe_run(path: str | Path) -> dict:
-    """A summary of a run file.
-
-    Returns
-    -------
-    dict
-        ``file`` (path, size_bytes, xdmf sidecar or None), ``status``,
-        ``provenance`` (title, source, convsim_version, created, Conventions,
-        wall_seconds), ``grid`` (nx, nz, aspect, periodic, dx, dz), ``snapshots``
-        (count, times, steps), ``series`` (records, first_time, last_time, names),
-        ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
-        ``final_*`` attributes, or the last series row while the run is not
-        finished), ``physical`` (with a [body] table: the final numbers in physical units,
-        ``{name: {"value", "units", "doc"}}``, see ``convsim.units.physical_quantities``;
-        else None) and ``config`` (the stored TOML as a nested dict).
-    """
-    path = Path(path)
+def _read(path: Path):
+    """What ``describe_run`` needs from the file, read in one opening."""
     if not path.is_file():
         raise SnapshotError(f"run file {str(path)!r}: not found")
     try:
@@ -56,6 +41,27 @@ def describe_run(path: str | Path) -> dict:
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
                             f"({exc})") from None
+    return attrs, x_node, z_node, times, steps, fields, records, last, first_time
+
+
+def describe_run(path: str | Path) -> dict:
+    """A summary of a run file.
+
+    Returns
+    -------
+    dict
+        ``file`` (path, size_bytes, xdmf sidecar or None), ``status``,
+        ``provenance`` (title, source, convsim_version, created, Conventions,
+        wall_seconds), ``grid`` (nx, nz, aspect, periodic, dx, dz), ``snapshots``
+        (count, times, steps), ``series`` (records, first_time, last_time, names),
+        ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
+        ``final_*`` attributes, or the last series row while the run is not
+        finished), ``physical`` (with a [body] table: the final numbers in physical units,
+        ``{name: {"value", "units", "doc"}}``, see ``convsim.units.physical_quantities``;
+        else None) and ``config`` (the stored TOML as a nested dict).
+    """
+    path = Path(path)
+    attrs, x_node, z_node, times, steps, fields, records, last, first_time = _read(path)
     try:
         config = tomllib.loads(attrs.get("config", ""))
     except tomllib.TOMLDecodeError:
