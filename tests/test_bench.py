@@ -172,7 +172,7 @@ def smoke(tmp_path_factory):
     buf, err = io.StringIO(), io.StringIO()
     with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(err):
         code = main(["bench", "1a", "--grids", "8,12,16", "--out", str(out), "--jobs", "2",
-                     "--set", "stop.steady_tolerance=1e-4", "--json"])
+                     "--set", "stop.steady_tolerance=1e-4", "--set", "stop.max_steps=3000", "--json"])
     return code, buf.getvalue(), err.getvalue(), out
 
 

@@ -253,6 +253,7 @@ base = "{BASE}"
 [fixed]
 domain.nx = 32
 domain.nz = 32
+stop.max_steps = 3000
 [[axis]]
 key = "physics.rayleigh"
 values = [1e4, 1e5]
@@ -277,6 +278,7 @@ base = "{BASE}"
 domain.nx = 64
 domain.nz = 64
 stop.newton_threshold = 1e3
+stop.max_steps = 3000
 [[axis]]
 key = "physics.rayleigh"
 values = [1e4, 1e5, 1e6]
