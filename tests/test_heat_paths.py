@@ -18,7 +18,7 @@ import pytest
 
 from convsim import api
 from convsim.config import Config
-from convsim.model.diagnostics import nusselt_numbers, wall_temperatures
+from convsim.model.diagnostics import corner_gradients, nusselt_numbers, wall_temperatures
 from convsim.model.energy import ThermalBoundaries, pad_temperature
 from convsim.model.grid import Grid
 from convsim.model.timestepping import Model
@@ -49,6 +49,24 @@ def test_wall_temperature_at_flux_walls_is_exact_for_a_quadratic_profile():
     bottom, top = wall_temperatures(g, T, bc)
     np.testing.assert_allclose(bottom, a, atol=1e-12)
     np.testing.assert_allclose(top, a + b - H / 2.0, atol=1e-12)
+
+
+def test_corner_gradients_are_exact_for_a_wall_flux_with_zero_slope_at_the_side():
+    """q1..q4 extrapolate the wall flux to the side walls, where an insulating side forces
+    zero slope: a flux quadratic in x with zero slope at the side is recovered exactly
+    (calculus).  Fields are built so that the scheme's own wall flux (T_1 - T_w)/(dz/2) is
+    f(x) = c + d (x - x_side)^2 at the top and bottom."""
+    g = Grid(10, 8, 1.4)
+    bc = ThermalBoundaries("temperature", 0.0, "temperature", 1.0)
+    x = g.x_cell
+    for side, index in ((0.0, (0, 3)), (g.aspect, (1, 2))):     # q1, q4 at x = 0; q2, q3 at x = A
+        c_top, c_bottom, d = 2.5, 1.7, 0.8
+        T = np.full(g.cell_shape, 0.5)
+        T[-1] = 0.0 + 0.5 * g.dz * (c_top + d * (x - side) ** 2)           # top: (T_N - 0)/(dz/2)
+        T[0] = 1.0 - 0.5 * g.dz * (c_bottom - d * (x - side) ** 2)        # bottom: (1 - T_1)/(dz/2)
+        q = corner_gradients(g, T, bc)
+        assert q[index[0]] == pytest.approx(c_top, rel=1e-12)
+        assert q[index[1]] == pytest.approx(c_bottom, rel=1e-12)
 
 
 @pytest.mark.parametrize("kind", ["temperature", "flux"])
