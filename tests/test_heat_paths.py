@@ -130,10 +130,12 @@ def test_conductive_run_reaches_the_analytic_profile_and_heat_flows(name):
         contrast = T0[0] - T0[1]
         assert np.ptp(r.temperature, axis=1).max() < 1e-12       # no flow: layered
         profile_error = np.abs(r.temperature.mean(axis=1) - exact).max()
-        nu_error = max(abs(r.nusselt_top - q_top / contrast), abs(r.nusselt_bottom - q_bottom / contrast))
+        nu_error = max(abs(r.nusselt_top - q_top / contrast),
+                       abs(r.nusselt_bottom - q_bottom / contrast))
         errors.append((profile_error, nu_error))
         # heat flows of the run: Nu times its own wall contrast
-        tb, tt = wall_temperatures(r.grid, r.temperature, ThermalBoundaries(top[0], top[1], bottom[0], bottom[1]))
+        bc = ThermalBoundaries(top[0], top[1], bottom[0], bottom[1])
+        tb, tt = wall_temperatures(r.grid, r.temperature, bc)
         run_contrast = float(tb.mean() - tt.mean())
         flow_top, flow_bottom = r.nusselt_top * run_contrast, r.nusselt_bottom * run_contrast
         assert flow_top - flow_bottom == pytest.approx(H, abs=1e-8)      # [CP] steady identity
@@ -162,7 +164,8 @@ def test_convecting_run_with_heating_and_a_flux_wall_balances_its_heat_flows():
     assert contrast > 0
     assert r.nusselt_bottom * contrast == pytest.approx(q, rel=1e-10)
     assert r.nusselt_top * contrast == pytest.approx(q + H, rel=1e-5)
-    assert (r.nusselt_top, r.nusselt_bottom) == pytest.approx(nusselt_numbers(r.grid, r.temperature, bc))
+    assert (r.nusselt_top, r.nusselt_bottom) == pytest.approx(
+        nusselt_numbers(r.grid, r.temperature, bc))
 
 
 # -- the heat budget of single steps, from the fields alone ------------------------------------

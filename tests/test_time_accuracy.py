@@ -48,7 +48,8 @@ def _final_error(scheme, base_dt, steps, n=8):
     g = Grid(n, n)
     X, Z = g.cell_mesh()
     mode = np.cos(np.pi * X) * np.sin(np.pi * Z)
-    lam = -(4 / g.dx ** 2) * np.sin(np.pi * g.dx / 2) ** 2 - (4 / g.dz ** 2) * np.sin(np.pi * g.dz / 2) ** 2
+    lam = (-(4 / g.dx ** 2) * np.sin(np.pi * g.dx / 2) ** 2
+           - (4 / g.dz ** 2) * np.sin(np.pi * g.dz / 2) ** 2)
     amp = lambda t: 1.0 + np.sin(OMEGA * t)                          # noqa: E731
     source = lambda t: mode * (OMEGA * np.cos(OMEGA * t) - lam * amp(t))   # noqa: E731
     m = ForcedModel(g, 0.0, ThermalBoundaries(), time_scheme=scheme, max_dt=1.0, source=source)
