@@ -35,7 +35,7 @@ def test_advection_kernel_matches_naive_twin(limiter, periodic):
     for bc in (ThermalBoundaries("temperature", 0.2, "flux", 1.5),
                ThermalBoundaries("flux", -0.7, "temperature", 0.9)):
         fast = advection(g, T, u, w, bc, limiter)
-        padded = naive.pad(T, g.dz, (bc.bottom_kind, bc.bottom_value), (bc.top_kind, bc.top_value),
+        padded = naive.pad(T, g.dz, (bc.bottom_heat, bc.bottom_value), (bc.top_heat, bc.top_value),
                            periodic)           # the twin pads by itself, from the wall conditions
         slow = naive.advective_tendency(padded, u, w, g.dx, g.dz, limiter)
         np.testing.assert_allclose(fast, slow, rtol=1e-12, atol=1e-12)

@@ -7,8 +7,8 @@ References outside the project:
       bottom by H per unit width (integrate T'' = -H over the depth).  Textbook calculus.
 [SO]  A second-order scheme: the error falls about four times when the cell size halves
       (common practice).
-[BDF] Variable-step second-order backward differentiation with step ratio w = dt_n/dt_{n-1}:
-      (1+2w)/(1+w) y^{n+1} - (1+w) y^n + w^2/(1+w) y^{n-1} = dt_n f^{n+1} (textbook form,
+[BDF] Variable-step second-order backward differentiation with step ratio r = dt_n/dt_{n-1}:
+      (1+2r)/(1+r) y^{n+1} - (1+r) y^n + r^2/(1+r) y^{n-1} = dt_n f^{n+1} (textbook form,
       e.g. Hairer, Norsett and Wanner, Solving ODEs I, quoted from memory); applied to the
       heat content Q = sum T dx dz of a conservative scheme, f is the net heat flow in.
 """
@@ -173,9 +173,9 @@ def _heat_and_net_inflow(g, T, bc, H):
     """Q = sum T dx dz and the net heat flow in, with wall fluxes from the two-point
     difference between the wall cell and the wall (the finite-volume flux; [CP] at h -> 0)."""
     Q = T.sum() * g.dx * g.dz
-    q_bottom = (bc.bottom_value if bc.bottom_kind == "flux"
+    q_bottom = (bc.bottom_value if bc.bottom_heat == "flux"
                 else 2.0 * (bc.bottom_value - T[0]) / g.dz)          # upward flux in at z = 0
-    q_top = (bc.top_value if bc.top_kind == "flux"
+    q_top = (bc.top_value if bc.top_heat == "flux"
              else 2.0 * (T[-1] - bc.top_value) / g.dz)               # upward flux out at z = 1
     return Q, float(np.sum(q_bottom * np.ones(g.nx)) * g.dx - np.sum(q_top * np.ones(g.nx)) * g.dx
                     + H * g.area)
@@ -202,9 +202,9 @@ def test_heat_content_changes_by_the_wall_flows_and_heating(scheme):
         (Q1, inflow), dt = history[n]
         Q0 = history[n - 1][0][0]
         if scheme == "sbdf2" and n >= 2:
-            w = dt / history[n - 1][1]
+            r = dt / history[n - 1][1]
             Qm = history[n - 2][0][0]
-            change = (1 + 2 * w) / (1 + w) * Q1 - (1 + w) * Q0 + w * w / (1 + w) * Qm
+            change = (1 + 2 * r) / (1 + r) * Q1 - (1 + r) * Q0 + r * r / (1 + r) * Qm
         else:                                   # IMEX Euler (also the first SBDF2 step)
             change = Q1 - Q0
         worst = max(worst, abs(change - dt * inflow) / (dt * (abs(inflow) + H * m.grid.area)))

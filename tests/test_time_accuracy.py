@@ -13,7 +13,7 @@ References outside the project:
 [ORD] SBDF2 is second order in time for smoothly varying steps, IMEX Euler first order
       (Ascher, Ruuth and Wetton, 1995, SIAM J. Numer. Anal. 32, 797-823, quoted from
       memory): halving every step divides the error by about 4 and 2.
-The source enters as part of the explicit tendency through a test-only subclass: no hook
+The source enters as part of the explicit term through a test-only subclass: no hook
 in the stepper's hot path.
 """
 
@@ -40,8 +40,8 @@ class ForcedModel(Model):
         self.now = state.time
         return super().step(state, dt_limit)
 
-    def tendency(self, T, psi):
-        return super().tendency(T, psi) + self.source(self.now)
+    def explicit_term(self, T, psi):
+        return super().explicit_term(T, psi) + self.source(self.now)
 
 
 def _final_error(scheme, base_dt, steps, n=8):
