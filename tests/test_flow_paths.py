@@ -134,10 +134,10 @@ LAWS = {
         dict(viscosity__law="arrhenius", viscosity__activation_energy=3.0,
              viscosity__activation_volume=1.0, viscosity__temperature_offset=1.0),
         lambda T, z: np.exp((3.0 + 1.0 * (1.0 - z)) / (T + 1.0) - 3.0)),
-    "cut off above": (
+    "cut off above and below": (          # eta from 1 (T = 0) to 0.01 (T = 1), clipped to 0.5, 0.05
         dict(viscosity__law="frank-kamenetskii", viscosity__thermal_contrast=100.0,
-             viscosity__maximum=10.0),
-        lambda T, z: np.minimum(np.exp(-math.log(100.0) * T), 10.0)),
+             viscosity__minimum=0.05, viscosity__maximum=0.5),
+        lambda T, z: np.clip(np.exp(-math.log(100.0) * T), 0.05, 0.5)),
 }
 
 
