@@ -152,8 +152,11 @@ def test_fit_command_writes_report_and_figures(tmp_path, capsys):
     assert saved["fits"][0]["fit"]["exponent"] == pytest.approx(report["fits"][0]["fit"]["exponent"])
     rows = (out / "regimes.csv").read_text().strip().splitlines()
     assert len(rows) == 1 + 4 and "regime" in rows[0]
-    for name in ("regime_map.png", "nusselt_top_against_rayleigh.png", "vrms_against_rayleigh.png"):
+    for name in ("nusselt_top_against_rayleigh.png", "vrms_against_rayleigh.png"):
         assert_drawn_png(out / name)
+    # the published cases are isoviscous: a regime map would say nothing, none is drawn
+    assert not (out / "regime_map.png").exists()
+    assert not any(p.endswith("regime_map.png") for p in report["outputs"])
     assert main(["fit", str(path)]) == 2          # outputs exist: refused
     assert "exists" in capsys.readouterr().err
     assert main(["fit", str(path), "--overwrite", "--y", "nusselt_top"]) == 0

@@ -32,7 +32,9 @@ def describe_run(path: str | Path) -> dict:
         (count, times, steps), ``series`` (records, first_time, last_time, names),
         ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
         ``final_*`` attributes, or the last series row while the run is not
-        finished) and ``config`` (the stored TOML as a nested dict).
+        finished), ``physical`` (with a [body] table: the final numbers in physical units,
+        ``{name: {"value", "units", "doc"}}``, see ``convsim.units.physical_quantities``;
+        else None) and ``config`` (the stored TOML as a nested dict).
     """
     path = Path(path)
     if not path.is_file():
@@ -78,8 +80,23 @@ def describe_run(path: str | Path) -> dict:
                    "last_time": last.get("series_time"), "names": list(SERIES)},
         "fields": fields,
         "final": final,
+        "physical": _physical(final, config),
         "config": config,
     }
+
+
+def _physical(final: dict, config) -> dict | None:
+    """The final numbers in physical units (mW m^-2, cm yr^-1, K, km, Myr) with a [body]."""
+    if not final or not config or "body" not in config:
+        return None
+    from convsim.config import parse_config
+    from convsim.errors import ConvsimError
+    from convsim.units import physical_quantities, scales_from_body
+    try:
+        cfg = parse_config(config)
+        return physical_quantities(final, scales_from_body(cfg.body), cfg.boundaries)
+    except ConvsimError:
+        return None
 
 
 def _short(values, keep=4):
@@ -121,6 +138,12 @@ def format_info(info: dict) -> str:
         lines.append("  final       " + ", ".join(
             f"{k} = {fin[k]:.6g}" if isinstance(fin[k], float) else f"{k} = {fin[k]}"
             for k in keys))
+    physical = info.get("physical") or {}
+    if physical:
+        rows = list(physical.items())
+        for i in range(0, len(rows), 3):
+            lines.append(("  physical    " if i == 0 else "              ") + ", ".join(
+                f"{k.replace('_', ' ')} {v['value']:.4g} {v['units']}" for k, v in rows[i:i + 3]))
     lines.append(f"  provenance  {p.get('source')}, created {p.get('created')}, "
                  f"wall {p.get('wall_seconds') or 0.0:.3g} s, {p.get('Conventions')}")
     lines.append(f"  fields      {', '.join(info['fields'])}")

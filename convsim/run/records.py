@@ -75,6 +75,13 @@ class RunResult:
     series: dict = field(default_factory=dict)
     phase_seconds: dict = field(default_factory=dict)
     output: str | None = None
+    scales: object = None          # convsim.units.Scales of the config's [body], or None
+    physical: dict | None = None   # the answers in physical units (convsim.units)
+
+    def to_xarray(self):
+        """The final fields and the time series as an ``xarray.Dataset`` (see convsim.views)."""
+        from convsim.views import result_dataset
+        return result_dataset(self)
 
     @property
     def steady(self) -> bool:
@@ -88,7 +95,8 @@ class RunResult:
                     surface_vrms=self.surface_vrms, mean_temperature=self.mean_temperature,
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
-                    output=self.output, message=self.message)
+                    output=self.output, message=self.message,
+                    **({"physical": self.physical} if self.physical else {}))
 
 
 class Series:
