@@ -148,6 +148,17 @@ def test_conductive_run_reaches_the_analytic_profile_and_heat_flows(name):
     assert n16 < 2e-3 and (n16 < n8 / 3.5 or n8 < 1e-9)
 
 
+def test_a_subcritical_run_decays_to_the_conductive_state():
+    """Ra = 100, below the free-free onset 657.5 (Chandrasekhar 1961, quoted from memory): the
+    start's perturbation decays and the run settles on [CP] T = 1 - z, at rest (a layer at
+    rest must not stall the time step)."""
+    r = api.run(Config().replace(domain__nx=16, domain__nz=16, physics__rayleigh=100.0,
+                                 stop__max_steps=3000))
+    assert r.status == "steady", r.message
+    assert r.vrms < 1e-8
+    np.testing.assert_allclose(r.temperature, 1.0 - r.grid.cell_mesh()[1], atol=1e-6)
+
+
 def test_convecting_run_with_heating_and_a_flux_wall_balances_its_heat_flows():
     """[CP] at a convecting steady state: top outflow = bottom inflow + H (per unit width),
     with the bottom inflow equal to the imposed flux; and the bottom is hotter than the top."""
