@@ -86,7 +86,8 @@ def test_published_values_follow_boundary_layer_scaling():
         assert abs(beta - 1 / 3) < 0.02, (low, high, beta)
         assert abs(gamma - 2 / 3) < 0.05, (low, high, gamma)
     for case, v in p.items():
-        assert v["q1"] > v["nusselt_top"] > v["q2"] > 0, case
+        if "q1" in v and "q2" in v:              # (case 2b publishes no corner values)
+            assert v["q1"] > v["nusselt_top"] > v["q2"] > 0, case
 
 
 # -- inputs ---------------------------------------------------------------------------------------
