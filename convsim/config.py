@@ -6,7 +6,8 @@ a suggestion for a misspelt one), wrong types and out-of-range values; each
 message names the key, the value and what is allowed.  The README's config
 reference is generated from these declarations (``reference_markdown``).
 
-Only the standard library and ``convsim.errors`` are imported here.
+Only the standard library, ``convsim.errors`` and the plain-data law declarations
+(``convsim.model.laws``, whose [viscosity] keys are built here) are imported.
 """
 
 from __future__ import annotations
@@ -21,11 +22,13 @@ from typing import Any
 
 from convsim.errors import ConfigError
 from convsim.model.choices import (ADVECTION_SCHEMES, FACTOR_REUSE, FLOW_CONDITIONS, LIMITERS,
-                                   SIDE_CONDITIONS, THERMAL_CONDITIONS, TIME_SCHEMES)
+                                   NONLINEAR_METHODS, SIDE_CONDITIONS, THERMAL_CONDITIONS,
+                                   TIME_SCHEMES)
+import convsim.model.laws as _laws   # plain-data law declarations (no numpy at import)
 
 __all__ = [
     "Config", "Domain", "Physics", "Boundaries", "Viscosity", "Start", "Numerics", "Stop",
-    "Output", "Body", "load_config", "parse_config", "apply_overrides", "to_toml",
+    "Output", "Tracer", "Body", "load_config", "parse_config", "apply_overrides", "to_toml",
     "reference_markdown",
 ]
 
@@ -95,29 +98,33 @@ class Boundaries:
                                "dT or dT/d", default=1.0, ge=-1.0e6, le=1.0e6)
 
 
-@dataclass(frozen=True)
-class Viscosity:
-    """Viscosity law eta(T, z), nondimensional, equal to 1 at T = 0, z = 1 (the reference of Ra)."""
+def _viscosity_table():
+    """The [viscosity] table, built from the law declarations of ``convsim.model.laws``.
 
-    law: str = _key("viscosity law", default="constant",
-                    choices=("constant", "frank-kamenetskii", "arrhenius"))
-    thermal_contrast: float = _key(
-        "frank-kamenetskii: eta(T=0)/eta(T=1) = exp(b); eta = exp(-b T + c (1 - z))",
-        default=1.0, ge=1.0, le=1.0e30)
-    depth_contrast: float = _key(
-        "frank-kamenetskii: eta(z=0)/eta(z=1) = exp(c) at fixed T", default=1.0,
-        ge=1.0e-30, le=1.0e30)
-    activation_energy: float = _key(
-        "arrhenius: E in eta = exp((E + V (1 - z))/(T + T0) - E/T0)", "dT", default=0.0,
-        ge=0.0, le=1.0e4)
-    activation_volume: float = _key("arrhenius: V (depth term, see activation_energy)", "dT",
-                                    default=0.0, ge=0.0, le=1.0e4)
-    temperature_offset: float = _key(
-        "arrhenius: T0, the surface temperature on the absolute scale", "dT", default=1.0,
-        gt=0.0, le=1.0e4)
-    minimum: float = _key("lower cut-off of the viscosity", default=0.0, ge=0.0, le=1.0e30)
-    maximum: float = _key("upper cut-off of the viscosity (0: none)", default=0.0, ge=0.0,
-                          le=1.0e30)
+    ``law`` chooses one of ``laws.LAWS``; every parameter of every law and modifier is a
+    key with its declared doc, units, default and range (a law's keys say which law they
+    belong to).  A new law file adds its choice and keys here without an edit.
+    """
+    fields = [("law", "str", _key("viscosity law", default=_laws.DEFAULT_LAW,
+                                  choices=tuple(_laws.LAWS)))]
+    owner = {p.name: d for d in (*_laws.LAWS.values(), *_laws.MODIFIERS.values())
+             for p in d.parameters}
+    for key, p in _laws.PARAMETERS.items():
+        doc = p.doc if isinstance(owner[key], _laws.Modifier) else f"{owner[key].name}: {p.doc}"
+        if p.choices:
+            fields.append((key, "str", _key(doc, p.units, default=p.default, choices=p.choices)))
+        else:
+            fields.append((key, "float", _key(doc, p.units, default=float(p.default), ge=p.ge,
+                                              gt=p.gt, le=p.le)))
+    cls = dataclasses.make_dataclass("Viscosity", fields, frozen=True)
+    cls.__module__ = __name__
+    cls.__doc__ = ("Viscosity law eta(T, z), nondimensional, equal to 1 at T = 0, z = 1 "
+                   "(the reference of Ra); optionally yielding (strain-rate dependent) and "
+                   "cut off.")
+    return cls
+
+
+Viscosity = _viscosity_table()
 
 
 @dataclass(frozen=True)
@@ -167,6 +174,15 @@ class Numerics:
         "variable viscosity: refactor every step (always) or reuse the factor as a CG "
         "preconditioner while it pays (adaptive)", default="adaptive",
         choices=FACTOR_REUSE)
+    nonlinear_solver: str = _key(
+        "strain-rate-dependent (yielding) viscosity: iteration of the nonlinear Stokes problem, "
+        "Picard or Newton (Picard steps until the residual is below 1e-2, then Newton with a "
+        "line search)", default="newton", choices=NONLINEAR_METHODS)
+    nonlinear_tolerance: float = _key(
+        "the nonlinear Stokes iteration stops at ||A(eta(psi)) psi - b|| <= this x ||b||",
+        default=1.0e-8, ge=1.0e-9, le=1.0e-2)
+    nonlinear_max_iterations: int = _key("nonlinear Stokes iterations per solve at most",
+                                         default=50, ge=1, le=10000)
 
 
 @dataclass(frozen=True)
@@ -205,6 +221,27 @@ class Output:
                                default=0, ge=0, le=10**9)
     series_every: int = _key("record the diagnostic time series every this many steps", "steps",
                              default=1, ge=1, le=10**6)
+
+
+@dataclass(frozen=True)
+class Tracer:
+    """Optional passive dye: advected with the flow (TVD), no buoyancy, insulating walls."""
+
+    enabled: bool = _key("carry a passive dye", default=False)
+    kind: str = _key("starting shape: a layer between two heights, a round blob, or an "
+                     "expression in x and z", default="layer",
+                     choices=("layer", "blob", "expression"))
+    layer_bottom: float = _key("layer: dye = 1 from this height", "d", default=0.0, ge=0.0,
+                               le=1.0)
+    layer_top: float = _key("layer: dye = 1 up to this height", "d", default=0.1, ge=0.0,
+                            le=1.0)
+    blob_x: float = _key("blob: centre x", "d", default=0.5, ge=0.0, le=64.0)
+    blob_z: float = _key("blob: centre z", "d", default=0.5, ge=0.0, le=1.0)
+    blob_radius: float = _key("blob: radius", "d", default=0.1, gt=0.0, le=64.0)
+    expression: str = _key("expression: numpy expression in x, z (aspect, pi, e; sin, exp, "
+                           "tanh, where, ...), e.g. \"where(z > 0.9, 1.0, 0.0)\"", default="")
+    diffusivity: float = _key("dye diffusivity over the thermal diffusivity (0: none)", "kappa",
+                              default=0.0, ge=0.0, le=1.0e3)
 
 
 @dataclass(frozen=True)
@@ -249,6 +286,7 @@ class Config:
     numerics: Numerics = field(default_factory=Numerics)
     stop: Stop = field(default_factory=Stop)
     output: Output = field(default_factory=Output)
+    tracer: Tracer = field(default_factory=Tracer)
     body: Body | None = None
     title: str = ""
     #: the ``section.key`` names set in the file, by --set or by ``replace`` (not compared)
@@ -385,16 +423,21 @@ def _build_table(section: str, cls, raw) -> Any:
 
 def _check_consistency(cfg: Config) -> None:
     """Rules that involve more than one key."""
-    v = cfg.viscosity
-    if v.maximum and v.minimum and v.maximum < v.minimum:
-        raise ConfigError(f"viscosity.maximum = {v.maximum!r}: must be >= viscosity.minimum "
-                          f"= {v.minimum!r}")
+    for message in _laws.problems(cfg.viscosity.law, cfg.viscosity):
+        raise ConfigError(message)
     b = cfg.boundaries
     if b.top_heat == "flux" and b.bottom_heat == "flux":
         raise ConfigError("boundaries.top_heat = 'flux': with bottom_heat = 'flux' too the "
                           "temperature is undetermined; allowed: at least one 'temperature'")
     if cfg.start.kind == "snapshot" and not cfg.start.file:
         raise ConfigError("start.file = '': start.kind = 'snapshot' needs the path of a run file")
+    t = cfg.tracer
+    if t.enabled and t.kind == "layer" and not t.layer_top > t.layer_bottom:
+        raise ConfigError(f"tracer.layer_top = {t.layer_top!r}: must be > tracer.layer_bottom "
+                          f"= {t.layer_bottom!r}")
+    if t.enabled and t.kind == "expression" and not t.expression.strip():
+        raise ConfigError("tracer.expression = '': tracer.kind = 'expression' needs an "
+                          "expression in x and z")
     if cfg.stop.end_time == 0.0 and not cfg.stop.steady and cfg.stop.max_steps >= 10**9:
         raise ConfigError("stop: with end_time = 0 and steady = false, max_steps must be < 1e9")
 
@@ -425,6 +468,8 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
 def read_toml(path: str | Path, what: str = "config file") -> dict:
     """Parse a TOML file; a missing, non-UTF-8 or malformed file raises ``ConfigError``."""
     path = Path(path)
+    if path.is_dir():
+        raise ConfigError(f"{what} {str(path)!r}: is a directory; expected a TOML file")
     if not path.is_file():
         raise ConfigError(f"{what} {str(path)!r}: not found")
     try:
@@ -433,6 +478,8 @@ def read_toml(path: str | Path, what: str = "config file") -> dict:
         raise ConfigError(f"{what} {str(path)!r}: not valid TOML ({exc})") from None
     except UnicodeDecodeError:
         raise ConfigError(f"{what} {str(path)!r}: not UTF-8 text") from None
+    except OSError as exc:
+        raise ConfigError(f"{what} {str(path)!r}: cannot be read ({exc.strerror})") from None
 
 
 def load_config(path: str | Path, overrides: list[str] | tuple[str, ...] = ()) -> Config:
