@@ -40,8 +40,9 @@ class ForcedModel(Model):
         self.now = state.time
         return super().step(state, dt_limit)
 
-    def explicit_term(self, T, psi):
-        return super().explicit_term(T, psi) + self.source(self.now)
+    def _explicit_term_of(self, f, values, u, w):      # the step's per-field explicit term
+        out = super()._explicit_term_of(f, values, u, w)
+        return out + self.source(self.now) if f.name == "temperature" else out
 
 
 def _final_error(scheme, base_dt, steps, n=8):
