@@ -12,15 +12,18 @@ sys.path.insert(0, str(Path(__file__).parent))      # tests/naive.py
 os.environ.setdefault("OMP_NUM_THREADS", "1")
 ROOT = Path(__file__).resolve().parents[1]
 CONFIGS = ROOT / "configs"
+STEP_CAP = 12000     # the slowest published-case run in the tests (Courant 0.15, tol 1e-10) needs 9,400
 
 
 @pytest.fixture
 def case_config():
-    """Load a published-case config from configs/ with overrides."""
+    """Load a published-case config from configs/ with overrides, capped at STEP_CAP steps
+    unless the overrides say otherwise (a broken solver then fails instead of hanging)."""
     from convsim.config import load_config
 
     def load(case, *overrides):
-        return load_config(ROOT / "configs" / f"benchmark_case_{case}.toml", list(overrides))
+        return load_config(ROOT / "configs" / f"benchmark_case_{case}.toml",
+                           [f"stop.max_steps={STEP_CAP}", *overrides])
     return load
 
 
@@ -58,3 +61,17 @@ def body_run(tmp_path_factory) -> Path:
     return _run(tmp_path_factory, "body", "benchmark_case_2a.toml",
                 ["domain.nx=18", "domain.nz=12", "domain.aspect=1.5", "stop.max_steps=150",
                  "output.snapshot_steps=50"], body=body)
+
+
+def assert_drawn_png(path, min_width=300):
+    """A PNG that holds a drawing: it decodes, is at least ``min_width`` pixels wide, and
+    has ink (more than a few distinct colours, and at least 1 % of pixels not background)."""
+    import numpy as np
+    from PIL import Image
+    with Image.open(path) as im:
+        assert im.format == "PNG", path
+        rgb = np.asarray(im.convert("RGB"))
+    assert rgb.shape[1] >= min_width, (path, rgb.shape)
+    colours, counts = np.unique(rgb.reshape(-1, 3), axis=0, return_counts=True)
+    assert len(colours) > 8, (path, len(colours))
+    assert 1.0 - counts.max() / counts.sum() > 0.01, path

@@ -44,3 +44,37 @@ def advective_tendency(padded, u, w, dx, dz, name):
                 return v * t
             out[j, i] = -(flux_x(i + 1) - flux_x(i)) / dx - (flux_z(j + 1) - flux_z(j)) / dz
     return out
+
+
+def pad(T, dz, bottom, top, periodic):
+    """T (nz, nx) with two ghost layers on every side, written cell by cell from the wall
+    conditions alone (independent of convsim's padding).
+
+    bottom, top: ('temperature', T_wall) -> the ghost at distance d beyond the wall is the odd
+    reflection 2 T_wall - T(mirror cell); ('flux', q) with q = -dT/dz upward -> the even
+    reflection plus the imposed gradient, T(ghost) = T(mirror cell) + q * (distance between
+    the two centres) at the bottom and - q * (that distance) at the top.  Sides: mirror
+    (insulating, T(-x) = T(x)) or wrap (periodic).
+    """
+    nz, nx = len(T), len(T[0])
+    out = np.zeros((nz + 4, nx + 4))
+    for j in range(-2, nz + 2):
+        for i in range(-2, nx + 2):
+            if periodic:
+                ii = i % nx
+            else:
+                ii = -1 - i if i < 0 else (2 * nx - 1 - i if i >= nx else i)
+            if 0 <= j < nz:
+                value = T[j][ii]
+            elif j < 0:                       # below the bottom wall; mirror cell -1 - j
+                m = -1 - j
+                kind, wall = bottom
+                gap = (m - j) * dz                # centre of the mirror cell to the ghost
+                value = 2 * wall - T[m][ii] if kind == "temperature" else T[m][ii] + wall * gap
+            else:                             # above the top wall; mirror cell 2 nz - 1 - j
+                m = 2 * nz - 1 - j
+                kind, wall = top
+                gap = (j - m) * dz
+                value = 2 * wall - T[m][ii] if kind == "temperature" else T[m][ii] - wall * gap
+            out[j + 2, i + 2] = value
+    return out

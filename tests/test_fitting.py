@@ -10,6 +10,7 @@ References outside the project:
   the Student t distribution for the coverage of the 95 % intervals.
 """
 
+from conftest import assert_drawn_png
 import json
 import math
 
@@ -147,9 +148,12 @@ def test_fit_command_writes_report_and_figures(tmp_path, capsys):
     report = json.loads(capsys.readouterr().out)
     assert report["fits"][0]["fit"]["exponent"] == pytest.approx(0.3265, abs=1e-3)
     out = tmp_path / "fit"
-    for name in ("fit.json", "regimes.csv", "nusselt_top_against_rayleigh.png",
-                 "vrms_against_rayleigh.png"):
-        assert (out / name).stat().st_size > 0
+    saved = json.loads((out / "fit.json").read_text())
+    assert saved["fits"][0]["fit"]["exponent"] == pytest.approx(report["fits"][0]["fit"]["exponent"])
+    rows = (out / "regimes.csv").read_text().strip().splitlines()
+    assert len(rows) == 1 + 4 and "regime" in rows[0]
+    for name in ("nusselt_top_against_rayleigh.png", "vrms_against_rayleigh.png"):
+        assert_drawn_png(out / name)
     # the published cases are isoviscous: a regime map would say nothing, none is drawn
     assert not (out / "regime_map.png").exists()
     assert not any(p.endswith("regime_map.png") for p in report["outputs"])

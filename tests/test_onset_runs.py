@@ -17,6 +17,7 @@ The simulator's runs use the fast transform Stokes solver (constant viscosity, f
 on 34x24 and 17x12 cells: a few seconds for the whole module on 2 cores.
 """
 
+from conftest import assert_drawn_png
 import json
 import math
 
@@ -213,7 +214,7 @@ def test_cli_runs_second_mode_json_and_figure(tmp_path, capsys):
     assert abs(runs["critical_rayleigh"] / RA_FF - 1.0) < 0.01              # [C61]
     assert runs["relative_difference"] == pytest.approx(
         runs["critical_rayleigh"] / runs["eigen_critical_rayleigh"] - 1.0)
-    assert (out / "onset_growth_rates.png").stat().st_size > 0
+    assert_drawn_png(out / "onset_growth_rates.png")
     assert json.loads((out / "onset.json").read_text())["runs"]["mode"] == 2
     # a second time refuses to overwrite the figure of the runs
     code = cli.main(["onset", str(path), "--runs", "--out", str(out)])

@@ -54,23 +54,65 @@ def test_restart_continues_bit_for_bit(case_config, tmp_path, case):
     assert np.array_equal(a.series["series_time"], b.series["series_time"])
 
 
-def test_a_diverging_run_stops_with_a_message_and_keeps_its_last_good_state(case_config, tmp_path,
-                                                                           monkeypatch):
-    real_step = Model.step
+def _overturning_model(cfl, max_dt=10.0):
+    from convsim.model.energy import ThermalBoundaries
+    from convsim.model.grid import Grid
+    m = Model(Grid(16, 16), 1.0e5, ThermalBoundaries(), cfl=cfl, max_dt=max_dt,
+              time_scale_fraction=0.0)         # the Courant and growth limits alone
+    X, Z = m.grid.cell_mesh()
+    return m, m.initial_state(1.0 - Z + 0.1 * np.cos(np.pi * X) * np.sin(np.pi * Z))
 
-    def failing_step(self, state, dt_limit=None):
-        if state.step >= 30:
-            raise StepFailed(f"step {state.step + 1}: no finite result")
-        return real_step(self, state, dt_limit)
 
-    monkeypatch.setattr(Model, "step", failing_step)
-    cfg = case_config("1a", "domain.nx=12", "domain.nz=12", "output.snapshot_steps=20",
-                      "stop.newton=false")
+def test_steps_far_beyond_the_courant_limit_are_rejected_and_halved():
+    """Courant number 30 (explicit advection far beyond its stability limit): steps whose
+    temperature change exceeds the temperature range are rejected and retried at half the
+    step; every accepted step respects that bound and has dt = planned / 2^rejections, with
+    the planned step the documented one: cfl / (max|u|/dx + max|w|/dz) of the face
+    velocities (the two-dimensional Courant condition, common practice), at most 25 % above
+    the previous step."""
+    from convsim.model.stokes import face_velocities
+    m, state = _overturning_model(30.0)
+    rejected = 0
+    for _ in range(40):
+        T_old = state.temperature
+        u, w = face_velocities(m.grid, state.psi)
+        planned = 30.0 / (np.abs(u).max() / m.grid.dx + np.abs(w).max() / m.grid.dz)
+        if state.previous_dt > 0:
+            planned = min(planned, 1.25 * state.previous_dt)
+        state, report = m.step(state)
+        assert report.dt == pytest.approx(planned / 2 ** report.rejections, rel=1e-12)
+        assert np.abs(state.temperature - T_old).max() <= np.ptp(T_old)
+        rejected += report.rejections
+    assert rejected >= 3
+
+
+def test_a_step_that_fails_at_every_size_raises_and_leaves_the_state_alone():
+    """Courant number 1e6: even after MAX_REJECTIONS halvings the change is unbounded."""
+    from convsim.model.timestepping import MAX_REJECTIONS
+    m, state = _overturning_model(1.0e6)
+    before = state.temperature.copy()
+    with pytest.raises(StepFailed, match="no finite, bounded result") as info:
+        m.step(state)
+    assert f"{10.0 / 2 ** MAX_REJECTIONS:.3g}" in str(info.value)
+    assert np.array_equal(state.temperature, before)
+
+
+def test_a_runaway_run_stops_as_diverged_and_keeps_its_last_good_state(tmp_path):
+    """Heating far beyond the Rayleigh number's scale (H = 1e4 at Ra = 1e4) drives the flow
+    past the runaway bound within a few dozen steps: the run stops as 'diverged' with the
+    reason, and the run file ends with the last finite state below the bound."""
+    from convsim.config import Config
+    cfg = Config().replace(domain__nx=12, domain__nz=12, physics__rayleigh=1e4,
+                           physics__internal_heating=1e4, stop__max_steps=300,
+                           stop__newton=False, output__snapshot_steps=5)
     result = api.run(cfg, tmp_path / "run.h5")
-    assert result.status == "diverged" and "no finite result" in result.message
+    assert result.status == "diverged", result.message
+    assert "vrms" in result.message and "above" in result.message
+    bound = 100.0 * 1e4 ** (2.0 / 3.0)
+    assert 5 < result.steps < 300 and result.vrms <= bound
     saved = read_run(tmp_path / "run.h5")
     assert saved.attrs["status"] == "diverged"
-    assert saved.steps[-1] == 30
+    assert saved.steps[-1] == result.steps
     assert np.all(np.isfinite(saved.fields["temperature"]))
 
 

@@ -22,6 +22,7 @@ References
       (tests/naive_stability.py) with Richardson extrapolation.
 """
 
+from conftest import assert_drawn_png
 import json
 import math
 
@@ -400,7 +401,7 @@ def test_cli_table_and_out(tmp_path, capsys):
     text = capsys.readouterr().out
     assert "1707.76" in text and "supercriticality" in text
     assert json.loads((out / "onset.json").read_text())["box_mode"] == 1
-    assert (out / "onset_neutral_curve.png").stat().st_size > 1000
+    assert_drawn_png(out / "onset_neutral_curve.png")
     # refuses to overwrite, then overwrites when asked
     assert cli.main(["onset", path, "--out", str(out)]) == 2
     assert "--overwrite" in capsys.readouterr().err

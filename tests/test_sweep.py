@@ -3,7 +3,8 @@
 References outside the project:
 - Blankenbach et al. (1989), Geophys. J. Int. 98, 23-38, Table 9 (quoted from memory):
   Nu = 4.884409 at Ra = 1e4 (case 1a) and 21.972465 at Ra = 1e6 (case 1c), so
-  beta = ln(21.972465 / 4.884409) / ln(100) = 0.3265 for Nu = a Ra^beta.
+  beta = ln(21.972465 / 4.884409) / ln(100) = 0.3265 for Nu = a Ra^beta over Ra = 1e4 to 1e6;
+  with Nu = 10.534095 at Ra = 1e5 (case 1b), log10(10.534095 / 4.884409) = 0.3338 over 1e4 to 1e5.
 - numpy.geomspace / linspace semantics for the ranges (start and stop included);
   xarray + h5netcdf as the reference netCDF reader of the table.
 """
@@ -27,6 +28,7 @@ from convsim.studies.sweep_table import read_table
 ROOT = Path(__file__).resolve().parents[1]
 BASE = ROOT / "configs" / "benchmark_case_1a.toml"
 BLANKENBACH_BETA = math.log(21.972465 / 4.884409) / math.log(100.0)   # 0.3265
+BLANKENBACH_BETA_1A_1B = math.log10(10.534095 / 4.884409)             # 0.3338, Ra 1e4 to 1e5
 
 SMALL = f"""
 title = "small"
@@ -249,27 +251,29 @@ def test_continuation_starts_from_the_previous_case(tmp_path):
 
 
 def test_blankenbach_exponent_from_a_steady_sweep(tmp_path):
-    """Steady constant-viscosity free-slip cases at Ra = 1e4, 3e4, 1e5 (24 x 24, each started
-    from the previous steady state) fit beta within 0.01 of the 0.3265 that the published
-    Nu of cases 1a and 1c imply.  (The full range 1e4 to 1e6 needs finer grids; see
-    benchmarks/sweep_throughput.py and the report of the sweep branch.)"""
+    """Steady constant-viscosity free-slip cases at Ra = 1e4 and 1e5 (32 x 32, the second
+    started from the first) give the slope of ln Nu over ln Ra within 0.005 of the one the
+    published Nu of cases 1a and 1b imply, log10(10.534095 / 4.884409) = 0.3338 (Blankenbach
+    et al. 1989, quoted from memory; measured here 0.3322; on 24 x 24 cells it is still
+    0.0073 off, so the grid is the coarsest with margin)."""
     text = f"""
 base = "{BASE}"
 [fixed]
-domain.nx = 24
-domain.nz = 24
+domain.nx = 32
+domain.nz = 32
+stop.max_steps = 3000
 [[axis]]
 key = "physics.rayleigh"
-values = [1e4, 3e4, 1e5]
+values = [1e4, 1e5]
 [continuation]
 axis = "physics.rayleigh"
 """
     spec = load_sweep(write(tmp_path, text))
     out = run_sweep(spec, tmp_path / "out", backend="inline")
-    assert [r["status"] for r in out.records] == ["steady"] * 3
+    assert [r["status"] for r in out.records] == ["steady"] * 2
     fit, used = fit_table(read_table(out.table_h5), "rayleigh", "nusselt_top")
-    assert used.sum() == 3
-    assert abs(fit.exponent - BLANKENBACH_BETA) < 0.01
+    assert used.sum() == 2
+    assert abs(fit.exponent - BLANKENBACH_BETA_1A_1B) < 0.005
 
 
 def test_blankenbach_exponent_over_the_published_range(tmp_path):
@@ -282,6 +286,7 @@ base = "{BASE}"
 domain.nx = 64
 domain.nz = 64
 stop.newton_threshold = 1e3
+stop.max_steps = 3000
 [[axis]]
 key = "physics.rayleigh"
 values = [1e4, 1e5, 1e6]

@@ -67,14 +67,15 @@ def bracket_configs(config: Config, rayleigh_values, mode: int, *, grid: tuple[i
     Everything but the start, the stop rule, the grid, the time-step cap and Ra is
     the given config's (boundaries, heating, viscosity, numerics).  The step limit
     is set well above end_time / max_dt.  ``rayleigh_values`` are taken with the law's
-    reference viscosity (as the eigen-solver's).
+    reference viscosity (as the eigen-solver's); the runs state them at the top, whose
+    viscosity differs from the law's reference where a cut-off is active there.
     """
     from convsim.run import layer
     nx, nz = grid
     steps = int(math.ceil(end_time / max_dt)) * 4 + 1000
-    config = layer.resolve(config).replace(body=None)
-    return [config.replace(domain__nx=nx, domain__nz=nz, physics__rayleigh=float(ra),
-                           physics__rayleigh_reference="top",
+    config = layer.resolve(config).replace(body=None, physics__rayleigh_reference="top")
+    eta_top = layer.internal_rayleigh(config, 1.0)          # eta(T_top, 1) after cut-offs
+    return [config.replace(domain__nx=nx, domain__nz=nz, physics__rayleigh=float(ra) / eta_top,
                            start__kind="conductive", start__perturbation="mode",
                            start__amplitude=amplitude, start__mode=int(mode),
                            start__continuation=(), stop__steady=False, stop__end_time=end_time,

@@ -39,6 +39,10 @@ __all__ = ["StepSizeRule", "GROWTH_LIMIT", "courant_limit", "time_scale", "CONDU
 GROWTH_LIMIT = 1.25
 #: d^2/(pi^2 kappa): the conductive time scale of the layer's gravest mode.
 CONDUCTIVE_TIME = 1.0 / math.pi**2
+#: rms of an advective tendency at round-off level (temperature contrast per d^2/kappa): a
+#: layer at rest.  Its noise changes by its own size from step to step, which would read as
+#: tau ~ dt and shrink dt geometrically to zero (seen: a subcritical run at Ra = 100).
+AT_REST = 1.0e-12
 
 
 def courant_limit(u: np.ndarray, w: np.ndarray, dx: float, dz: float, cfl: float) -> float:
@@ -60,10 +64,12 @@ def courant_limit(u: np.ndarray, w: np.ndarray, dx: float, dz: float, cfl: float
 def time_scale(advection_now: np.ndarray, advection_before: np.ndarray, dt_before: float) -> float:
     """tau = dt_{n-1} ||A^n|| / ||A^n - A^{n-1}|| (2-norms over the cells; d^2/kappa).
 
-    inf when A did not change (steady, or at rest).
+    inf when A did not change (steady), or is round-off (rms below ``AT_REST``: at rest).
     """
     change = float(np.linalg.norm(advection_now - advection_before))
     if change == 0.0 or not math.isfinite(change):
+        return math.inf
+    if float(np.sqrt(np.mean(np.square(advection_now)))) <= AT_REST:
         return math.inf
     return dt_before * float(np.linalg.norm(advection_now)) / change
 

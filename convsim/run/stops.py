@@ -94,7 +94,9 @@ def rules_from_config(stop) -> list:
 class SteadyState(StopRule):
     """Steady when, for ``settle`` consecutive steps, max|dT/dt| <= tol * max(Nu, 1), the
     relative drift (peak to peak) of Nu and vrms over those steps <= tol and the heat
-    imbalance (bottom inflow + heating - top outflow, relative) <= tol."""
+    imbalance (bottom inflow + heating - top outflow, relative) <= tol.  The drift of vrms
+    is relative to max(vrms, 1) (the velocity unit kappa/d): a layer at rest has a vrms of
+    round-off, whose relative drift is of order one."""
 
     status = "steady"
 
@@ -116,7 +118,7 @@ class SteadyState(StopRule):
         if len(self.window) > self.settle:
             self.window.pop(0)
         arr = np.array(self.window)
-        drift = np.ptp(arr, axis=0) / np.maximum(np.abs(arr.mean(axis=0)), 1e-300)
+        drift = np.ptp(arr, axis=0) / np.maximum(np.abs(arr.mean(axis=0)), [1e-300, 1.0])
         quiet = (report.tendency_max <= tol * max(abs(report.nusselt_top), 1.0)
                  and abs(report.heat_imbalance) <= tol and bool(np.all(drift <= tol)))
         self.settled = self.settled + 1 if quiet else 0
