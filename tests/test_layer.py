@@ -48,11 +48,13 @@ def test_rayleigh_at_three_references_frank_kamenetskii():
     assert layer.rayleigh_numbers(interior)["bottom"] == pytest.approx(1e7, rel=1e-12)
 
 
-def test_basal_and_top_statement_give_the_same_run():
+@pytest.mark.parametrize("start", ["conductive", "one-cell"])
+def test_basal_and_top_statement_give_the_same_run(start):
     """[DEF] the same layer (contrast 1e3) stated with Ra_bottom = 1e6 and with Ra_top = 1e3:
-    the same run to round-off."""
+    the same run to round-off, from a perturbed conductive start and from the one-cell guess
+    (whose boundary-layer thickness depends on Ra)."""
     common = dict(domain__nx=16, domain__nz=16, stop__steady=False, stop__max_steps=60,
-                  start__perturbation="mode", start__amplitude=0.05)
+                  start__kind=start, start__perturbation="mode", start__amplitude=0.05)
     top = run(fk(1e3, 1e3, "top", **common))
     bottom = run(fk(1e3, 1e6, "bottom", **common))
     assert top.steps == bottom.steps == 60

@@ -86,8 +86,9 @@ class Simulation:
         self.config, self.model = config, model
         self.grid = model.grid
         if temperature is None:
+            # the one-cell guess takes Ra at the cold top, however the config states it
             temperature = initial_temperature(self.grid, model.thermal, model.internal_heating,
-                                              config.start, config.physics.rayleigh)
+                                              config.start, layer.rayleigh_numbers(config)["top"])
         self.temperature0 = temperature
         self.observers = list(observers)
         self.config_text = to_toml(config)

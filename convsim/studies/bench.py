@@ -70,7 +70,8 @@ def case_config_path(case: str) -> Path:
     (``configs/benchmark_case_*.toml`` of the repository are links to it)."""
     if case not in PUBLISHED:
         raise ConfigError(f"case {case!r}: unknown; known cases: {', '.join(known_cases())}")
-    path = package_cases_dir() / f"benchmark_case_{case}.toml"
+    from convsim.studies.published import case_file
+    path = package_cases_dir() / case_file(case)
     if not path.is_file():
         raise ConfigError(f"case {case!r}: config {path.name} not found in {package_cases_dir()}")
     return path
@@ -201,8 +202,9 @@ def run_task(task: BenchTask) -> BenchRow:
                    phase_seconds={k: float(v) for k, v in result.phase_seconds.items()},
                    peak_rss_mib=peak, run_rss_mib=max(0.0, peak - before), upwelling=upwelling,
                    stage_steps=_stage_steps(result.series))
-    row.relative_error = {qn: (getattr(row, qn) - pv.value) / pv.value
-                          for qn, pv in PUBLISHED[task.case].items()}
+    row.relative_error = {qn: math.nan for qn in QUANTITIES}     # nan: no published value
+    row.relative_error.update({qn: (getattr(row, qn) - pv.value) / pv.value
+                               for qn, pv in PUBLISHED[task.case].items()})
     return row
 
 

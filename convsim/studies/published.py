@@ -30,7 +30,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = ["Source", "PublishedValue", "BLANKENBACH_1989", "DEFINITIONS", "PUBLISHED",
-           "QUANTITIES", "ACCEPTANCE", "DEFAULT_CASES", "Acceptance", "published_case", "known_cases"]
+           "QUANTITIES", "ACCEPTANCE", "DEFAULT_CASES", "case_file", "TOSI_2015", "Acceptance", "published_case", "known_cases"]
 
 
 @dataclass(frozen=True)
@@ -114,14 +114,33 @@ _TABLE = {  # case: (Nu, vrms, q1, q2); Blankenbach et al. (1989), best estimate
     "2b": (6.9299, 171.755, None, None),    # Nu and vrms only (the corner values not recalled)
 }
 
-#: the cases ``convsim bench`` runs when none is named (2b, aspect 2.5, is run by name)
+#: the cases ``convsim bench`` runs when none is named (2b and lid1 are run by name)
 DEFAULT_CASES = ("1a", "1b", "1c", "2a")
+
+TOSI_2015 = Source(
+    key="tosi2015",
+    authors="Tosi, N. and others",
+    year=2015,
+    title="A community benchmark for viscoplastic thermal convection in a 2-D square box",
+    journal="Geochem. Geophys. Geosyst.",
+    volume="16",
+    pages="2175-2196",
+    location="case 1: Ra = 100 at the cold top, viscosity contrast 1e5 in T, no yielding",
+    quoted_from_memory=True,
+    note="set-up from memory and no value compared (none recalled reliably): the bench runs "
+         "the grid-convergence study only",
+)
+CASE_SETUP["lid1"] = ("stagnant lid: eta = exp(-ln(1e5) T), Ra = 100 at the cold top, unit box "
+                      "(Tosi et al. 2015, case 1; set-up from memory; no published value compared)")
+#: config file names that do not follow ``benchmark_case_<case>.toml``
+CASE_FILES = {"lid1": "benchmark_viscoplastic_case1.toml"}
 
 PUBLISHED = {
     case: {q: PublishedValue(case, q, value, BLANKENBACH_1989, DEFINITIONS[q])
            for q, value in zip(QUANTITIES, values) if value is not None}
     for case, values in _TABLE.items()
 }
+PUBLISHED["lid1"] = {}          # a case with a convergence study and no published value
 
 
 @dataclass(frozen=True)
@@ -147,6 +166,11 @@ ACCEPTANCE = {
     "q1": Acceptance(finest=0.02, extrapolated=0.005),
     "q2": Acceptance(finest=0.02, extrapolated=0.005),
 }
+
+
+def case_file(case: str) -> str:
+    """The file name of a case's config (in convsim/studies/cases/, linked from configs/)."""
+    return CASE_FILES.get(case, f"benchmark_case_{case}.toml")
 
 
 def known_cases() -> tuple:
