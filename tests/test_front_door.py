@@ -164,7 +164,8 @@ def test_progress_measures_time_or_decades_of_residual():
 def test_time_dependent_answers_are_time_means_with_intervals():
     """A statistically steady run: the physical answers are its time means, the half-widths
     scaled by the same factors (hand calculation with TESSALY's scales)."""
-    from convsim.units import Scales, physical_quantities
+    from convsim.physical import physical_quantities
+    from convsim.units import Scales
     scales = Scales(depth=2.0e6, temperature_contrast=2000.0, gravity=10.0, density=4000.0,
                     expansivity=3e-5, diffusivity=1e-6, conductivity=4.0,
                     reference_viscosity=1e22, surface_temperature=300.0)
