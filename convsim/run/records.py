@@ -75,6 +75,7 @@ class RunResult:
     series: dict = field(default_factory=dict)
     phase_seconds: dict = field(default_factory=dict)
     output: str | None = None
+    rayleigh_numbers: dict = field(default_factory=dict)   # Ra at top, bottom, interior
     scales: object = None          # convsim.units.Scales of the config's [body], or None
     physical: dict | None = None   # the answers in physical units (convsim.units)
 
@@ -96,6 +97,7 @@ class RunResult:
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
                     output=self.output, message=self.message,
+                    **{f"rayleigh_{k}": v for k, v in self.rayleigh_numbers.items()},
                     **({"physical": self.physical} if self.physical else {}))
 
 
