@@ -26,6 +26,7 @@ import scipy.sparse.linalg as sla
 
 from convsim.errors import SolverError
 from convsim.model.choices import FACTOR_REUSE
+from convsim.threads import reapply_limit
 
 __all__ = ["FACTORIZERS", "limit_blas_threads", "available_factorizers", "make_factorizer", "solve_spd",
            "LaggedFactorSolver", "SolveReport"]
@@ -61,7 +62,7 @@ class CholmodFactorizer:
                               "allowed: 'superlu', or pip install cvxopt") from exc
         self._cvxopt = cvxopt
         self._cholmod = cvxopt.cholmod
-        limit_blas_threads(1)
+        reapply_limit()          # cvxopt loads a BLAS of its own: same limit as the run
         self._cholmod.options["supernodal"] = 2
         self._symbolic = None
         self._key = None
@@ -86,24 +87,15 @@ class CholmodFactorizer:
         return np.array(x).ravel()
 
 
-def limit_blas_threads(n: int = 1):
-    """Limit every loaded BLAS to n threads (also those loaded later, through the environment).
+def limit_blas_threads(n: int | None = None):
+    """Limit every thread pool of this process to n threads (default: ``convsim.threads``).
 
     cvxopt ships its own OpenBLAS beside numpy's; two spinning thread pools on a
     small machine slow every dense and sparse kernel several times over (measured:
     a 128 x 128 variable-viscosity step went from 190 ms to 29 ms on 2 cores).
-    The matrices here are too small to gain from threaded BLAS, and parallel runs
-    (bench, sweep, onset brackets) are the parallelism: each worker calls this.
-    Returns the threadpoolctl limiter (or None without threadpoolctl).
     """
-    import os
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # pragma: no cover
-        return None
-    return threadpool_limits(limits=n, user_api="blas")
+    from convsim.threads import limit_threads
+    return limit_threads(n)
 
 
 FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}
