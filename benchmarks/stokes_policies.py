@@ -168,6 +168,15 @@ def amg_policy(mats, rhss, reuse):
         yield x, setup, k
 
 
+def _have_pyamg() -> bool:
+    try:
+        import pyamg  # noqa: F401  (optional: pip install pyamg)
+    except ImportError:
+        print("pyamg is not installed: the amg policies are left out (pip install pyamg)")
+        return False
+    return True
+
+
 def measure(name, solutions, mats, rhss):
     t0 = time.perf_counter()
     setup = iters = 0.0
@@ -205,7 +214,7 @@ def main():
                 ("lagged-6", factor_policy(mats, rhss, 6)),
                 ("amortised", factor_policy(mats, rhss, 30, amortised=True)),
                 ("floor-6", factor_policy(mats, rhss, 6, floor=True))]
-        if not args.skip_amg:
+        if not args.skip_amg and _have_pyamg():
             runs += [("amg", amg_policy(mats, rhss, False)), ("amg-reuse", amg_policy(mats, rhss, True))]
         for name, gen in runs:
             _, ms, setup, iters, worst = measure(name, gen, mats, rhss)
