@@ -150,7 +150,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     result = sim.run(resume)
     result.output = None if output is None else str(output)
     if scales is not None:
-        from convsim.units import physical_quantities
+        from convsim.physical import physical_quantities
         result.scales = scales
         result.physical = physical_quantities(result.summary(), scales, config.boundaries)
     if output is not None:

@@ -9,7 +9,7 @@ attribute ``nondimensional_scale``); the time series lie on the coordinate
 With a ``[body]`` table (``convsim.units.Scales``) the view also has physical
 coordinates ``x_km``, ``z_km``, ``series_time_myr`` and variables
 ``temperature_kelvin`` [K], ``heat_flow_top`` and ``heat_flow_bottom`` [mW m^-2],
-``vrms_cm_per_yr`` [cm yr^-1] (see :func:`convsim.units.physical_quantities`).
+``vrms_cm_per_yr`` [cm yr^-1] (see :func:`convsim.physical.physical_quantities`).
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from convsim.units import PHYSICAL_UNITS, wall_heat_flows
+from convsim.physical import PHYSICAL_UNITS, wall_heat_flows
 
 __all__ = ["result_dataset", "open_run", "add_physical"]
 

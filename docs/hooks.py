@@ -49,15 +49,16 @@ def _doc(obj) -> str:
 
 def _api() -> str:
     import convsim
-    from convsim import api, units, views
+    from convsim import api, physical, units, views
     out = []
     entries = [("convsim.load_config", convsim.load_config), ("convsim.run", api.run),
                ("convsim.open_run", api.open_run),
                ("RunResult.to_xarray", __import__("convsim.run.records",
                                                   fromlist=["RunResult"]).RunResult.to_xarray)]
     entries += [(f"convsim.units.{n}", getattr(units, n)) for n in
-                ("Scales", "scales_from_body", "parse_quantity", "physical_quantities",
-                 "wall_heat_flows")]
+                ("Scales", "scales_from_body", "parse_quantity")]
+    entries += [(f"convsim.physical.{n}", getattr(physical, n)) for n in
+                ("physical_quantities", "wall_heat_flows")]
     entries += [(f"convsim.views.{n}", getattr(views, n)) for n in views.__all__]
     for name, obj in entries:
         try:

@@ -481,3 +481,13 @@ def test_summary_text_columns_do_not_overlap_and_use_one_unit_style(body_run):
     text = left.get_text() + "\n" + right.get_text()
     assert "mW m^-2" in text and "mW/m2" not in text and "cm/yr" not in text
     assert not re.search(r"\([^)]*\(", text.replace("exp(b)", "").replace("exp(c)", ""))
+
+
+def test_animation_says_when_it_falls_back_to_gif(constant_run, tmp_path, monkeypatch, capsys):
+    import shutil
+    run = tmp_path / "copy.h5"
+    shutil.copyfile(constant_run, run)
+    monkeypatch.setattr(shutil, "which", lambda name: None)      # no ffmpeg
+    assert main(["animate", str(run)]) == 0
+    captured = capsys.readouterr()
+    assert captured.out.strip().endswith(".gif") and "ffmpeg" in captured.err

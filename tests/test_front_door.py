@@ -164,7 +164,8 @@ def test_progress_measures_time_or_decades_of_residual():
 def test_time_dependent_answers_are_time_means_with_intervals():
     """A statistically steady run: the physical answers are its time means, the half-widths
     scaled by the same factors (hand calculation with TESSALY's scales)."""
-    from convsim.units import Scales, physical_quantities
+    from convsim.physical import physical_quantities
+    from convsim.units import Scales
     scales = Scales(depth=2.0e6, temperature_contrast=2000.0, gravity=10.0, density=4000.0,
                     expansivity=3e-5, diffusivity=1e-6, conductivity=4.0,
                     reference_viscosity=1e22, surface_temperature=300.0)
@@ -182,3 +183,21 @@ def test_time_dependent_answers_are_time_means_with_intervals():
     values["settled"] = "steady"
     assert physical_quantities(values, scales)["heat_flow_top"]["value"] == pytest.approx(
         9.0 * HEAT_FLOW_MW_M2)
+
+
+@pytest.mark.parametrize("status", ["interrupted", "diverged"])
+def test_an_interrupted_or_diverged_run_prints_its_restart_command(tmp_path, capsys,
+                                                                   monkeypatch, status):
+    from convsim import api
+    config = tmp_path / "tessaly.toml"
+    config.write_text(TESSALY, encoding="utf-8")
+    real_run = api.run
+
+    def stopped(cfg, output, **kwargs):
+        result = real_run(cfg, output, **kwargs)
+        result.status, result.message = status, f"{status} at step {result.steps}"
+        return result
+    monkeypatch.setattr(api, "run", stopped)
+    main(["run", str(config), "--out", str(tmp_path)])
+    err = capsys.readouterr().err
+    assert f"convsim run --restart {tmp_path / 'tessaly.h5'}" in err

@@ -42,7 +42,8 @@ def _final(run: RunFile) -> dict:
 
 def _physical(run: RunFile, final: dict):
     from convsim.config import parse_config
-    from convsim.units import physical_quantities, scales_from_body
+    from convsim.physical import physical_quantities
+    from convsim.units import scales_from_body
     cfg = parse_config(tomllib.loads(run.config_text), source=str(run.path))
     if cfg.body is None:
         return None

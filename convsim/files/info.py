@@ -57,7 +57,7 @@ def describe_run(path: str | Path) -> dict:
         ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
         ``final_*`` attributes, or the last series row while the run is not
         finished), ``physical`` (with a [body] table: the final numbers in physical units,
-        ``{name: {"value", "units", "doc"}}``, see ``convsim.units.physical_quantities``;
+        ``{name: {"value", "units", "doc"}}``, see ``convsim.physical.physical_quantities``;
         else None) and ``config`` (the stored TOML as a nested dict).
     """
     path = Path(path)
@@ -98,7 +98,8 @@ def _physical(final: dict, config) -> dict | None:
         return None
     from convsim.config import parse_config
     from convsim.errors import ConvsimError
-    from convsim.units import physical_quantities, scales_from_body
+    from convsim.physical import physical_quantities
+    from convsim.units import scales_from_body
     try:
         cfg = parse_config(config)
         return physical_quantities(final, scales_from_body(cfg.body), cfg.boundaries)
