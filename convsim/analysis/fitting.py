@@ -22,29 +22,16 @@ from memory); ``REFERENCE_SLOPES`` holds these for the figures.
 
 Regimes
 -------
-``classify_regimes`` sorts each case by its surface mobility
+``classify_regimes`` gives each case the regime word of ``convsim.model.lid.regime``
+(one rule for single runs, sweeps, ``fit`` and the figures; the thresholds and
+their sources are in that module's doc) from its surface mobility
 
-    M = v_surface / v_interior                                                 (3)
+    M = v_surface / v_rms                                                      (3)
 
-(surface rms velocity over the rms velocity of the interior; the sweep table's
-``interior_vrms`` is the rms over the band 0.2 <= z <= 0.8, ``vrms`` the whole box)
-and its viscosity contrast Delta eta = eta_max / eta_min:
-
-- ``mobile``:        M >= mobile_ratio (default 0.6) -- the surface moves with
-  the interior (isoviscous free-slip convection has M > 1);
-- ``stagnant``:      M < stagnant_ratio (default 0.1) and Delta eta >=
-  stagnant_contrast (default 1e3) -- a lid that hardly moves over a convecting
-  interior;
-- ``transitional``:  everything between (the sluggish-lid regime), including a
-  slow surface at small contrast;
-- ``conductive``:    Nu < conductive_nusselt (default 1.01), when the Nusselt
-  numbers are given: no convection to classify (below onset);
-- ``unclassified``:  missing or non-positive velocities (a failed case).
-
-These thresholds are our choice, after common practice: in the stagnant-lid
-regime the surface moves at a few percent of the interior velocity or less, and
-the regime needs viscosity contrasts above roughly 1e3 to 1e4 (Solomatov 1995,
-Phys. Fluids 7, 266-274, quoted from memory).  All four are parameters.
+(surface rms velocity over the rms velocity of the whole layer, Tackley 2000)
+and the viscosity contrast Delta eta of the law over the layer: ``mobile``,
+``sluggish``, ``stagnant-lid``, ``conductive`` (Nu below 1.01) or
+``unclassified`` (missing or non-positive velocities, a failed case).
 """
 
 from __future__ import annotations
@@ -56,11 +43,11 @@ import numpy as np
 from scipy import optimize, stats
 
 from convsim.errors import ConfigError
+from convsim.model.lid import REGIMES, RegimeThresholds, regime
 
 __all__ = ["PowerLawFit", "fit_power_law", "RegimeThresholds", "REGIMES", "classify_regimes",
            "select_rows", "fit_table", "fit_report", "REFERENCE_SLOPES"]
 
-REGIMES = ("mobile", "transitional", "stagnant", "conductive", "unclassified")
 REFERENCE_SLOPES = {"nusselt_top": 1.0 / 3.0, "nusselt_bottom": 1.0 / 3.0, "vrms": 2.0 / 3.0,
                     "surface_vrms": 2.0 / 3.0, "interior_vrms": 2.0 / 3.0}
 
@@ -146,29 +133,9 @@ def fit_power_law(x, y, confidence: float = 0.95) -> PowerLawFit:
         r_squared=1.0 - ss_res / ss_tot if ss_tot > 0 else 1.0)
 
 
-@dataclass(frozen=True)
-class RegimeThresholds:
-    """Thresholds of ``classify_regimes`` (see the module doc; our choice)."""
-
-    mobile_ratio: float = 0.6
-    stagnant_ratio: float = 0.1
-    stagnant_contrast: float = 1.0e3
-    conductive_nusselt: float = 1.01
-
-    def __post_init__(self):
-        for name in ("mobile_ratio", "stagnant_ratio", "stagnant_contrast",
-                     "conductive_nusselt"):
-            value = getattr(self, name)
-            if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
-                raise ConfigError(f"{name} = {value!r}: expected a positive number")
-        if self.stagnant_ratio > self.mobile_ratio:
-            raise ConfigError(f"stagnant_ratio = {self.stagnant_ratio!r}: must not exceed "
-                              f"mobile_ratio = {self.mobile_ratio!r}")
-
-
 def classify_regimes(surface_velocity, interior_velocity, viscosity_contrast,
                      thresholds: RegimeThresholds = RegimeThresholds(), nusselt=None):
-    """Regime of each case from M = v_surface / v_interior and the viscosity contrast, eq. (3).
+    """Regime of each case from M = v_surface / v_rms and the viscosity contrast, eq. (3).
 
     ``nusselt`` (optional, one per case) marks the cases with Nu below
     ``thresholds.conductive_nusselt`` as conductive.
@@ -185,11 +152,7 @@ def classify_regimes(surface_velocity, interior_velocity, viscosity_contrast,
     ok = np.isfinite(vs) & np.isfinite(vi) & (vi > 0) & (vs >= 0)
     ratio = np.full(vs.shape, np.nan)
     ratio[ok] = vs[ok] / vi[ok]
-    regimes = np.full(vs.shape, "unclassified", dtype=object)
-    regimes[ok] = "transitional"
-    regimes[ok & (ratio >= thresholds.mobile_ratio)] = "mobile"
-    stagnant = ok & (ratio < thresholds.stagnant_ratio) & (dc >= thresholds.stagnant_contrast)
-    regimes[stagnant] = "stagnant"
+    regimes = regime(ratio, dc, thresholds=thresholds)
     if nusselt is not None:
         nu = np.broadcast_to(np.atleast_1d(np.asarray(nusselt, float)), vs.shape)
         regimes[ok & np.isfinite(nu) & (nu < thresholds.conductive_nusselt)] = "conductive"
@@ -244,7 +207,7 @@ def _distinct(values) -> list:
 def fit_report(table: dict, x: str = "rayleigh", ys=("nusselt_top", "vrms"), *,
                statuses=("steady",), group: str | None = None, confidence: float = 0.95,
                thresholds: RegimeThresholds = RegimeThresholds(),
-               surface: str = "surface_vrms", interior: str = "interior_vrms",
+               surface: str = "surface_vrms", interior: str = "vrms",
                contrast: str = "viscosity_contrast") -> dict:
     """Fits of every ``y`` against ``x`` (per ``group`` value) and the regime of every row.
 

@@ -359,17 +359,18 @@ def _add_fit(p):
     p.add_argument("--confidence", type=float, default=0.95,
                    help="confidence of the intervals (default: 0.95)")
     p.add_argument("--mobile-ratio", type=float, default=0.6,
-                   help="mobility v_surface/v_interior at or above which a lid is mobile "
+                   help="mobility M = v_surface/v_rms at or above which a lid is mobile "
                         "(default: 0.6)")
     p.add_argument("--stagnant-ratio", type=float, default=0.1,
-                   help="mobility below which a lid is stagnant, given the contrast "
+                   help="mobility below which a lid is a stagnant lid, given the contrast "
                         "(default: 0.1)")
     p.add_argument("--stagnant-contrast", type=float, default=1.0e3,
                    help="viscosity contrast a stagnant lid needs at least (default: 1e3)")
     p.add_argument("--conductive-nusselt", type=float, default=1.01,
                    help="Nusselt number below which a case counts as conductive (default: 1.01)")
-    p.add_argument("--interior-column", default="interior_vrms",
-                   help="the interior velocity: interior_vrms (default) or vrms (whole box)")
+    p.add_argument("--interior-column", default="vrms",
+                   help="the velocity M divides by: vrms (whole layer, Tackley 2000; default) "
+                        "or interior_vrms (the band 0.2 <= z <= 0.8)")
     p.add_argument("--contrast-column", default="viscosity_contrast",
                    help="viscosity_contrast (of the law, default) or viscosity_contrast_field")
     p.add_argument("--out", help="folder of fit.json, regimes.csv and the figures "
@@ -428,10 +429,7 @@ def _run_fit(args) -> int:
     figures_sweep.regime_map_figure(
         out / "regime_map.png", [r["rayleigh"] for r in rows],
         [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
-        thresholds_text=(f"mobile: M >= {thresholds.mobile_ratio:g}; stagnant: M < "
-                         f"{thresholds.stagnant_ratio:g} and contrast >= "
-                         f"{thresholds.stagnant_contrast:g}; conductive: Nu < "
-                         f"{thresholds.conductive_nusselt:g}"),
+        thresholds_text=thresholds.text(),
         y_label=f"viscosity contrast ({args.contrast_column})")
     tmp = out / f"regimes.csv.tmp{os.getpid()}"
     with open(tmp, "w", newline="", encoding="utf-8") as fh:
