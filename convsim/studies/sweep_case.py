@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from convsim.config import Config, parse_config, to_dict, to_toml
+from convsim.model.lid import law_viscosity_contrast
 from convsim.studies.sweep_table import FAILED
 
 __all__ = ["CaseTask", "run_case", "case_config", "config_digest", "interior_rms_velocity",
@@ -61,18 +62,6 @@ def interior_rms_velocity(grid, psi: np.ndarray, band=INTERIOR_BAND) -> float:
     if not rows.any():
         return float("nan")
     return float(np.sqrt(np.mean(u[rows] ** 2 + w[rows] ** 2)))
-
-
-def law_viscosity_contrast(law, t_low: float, t_high: float, samples: int = 65) -> float:
-    """max / min of eta(T, z) over t_low <= T <= t_high, 0 <= z <= 1 (sampled, corners included).
-
-    Rounded to 12 significant digits, so that a contrast of 1e3 set in the config is
-    1000.0 here and not 999.9999999999998 (thresholds compare against it).
-    """
-    from convsim.model.rheology import viscosity
-    T, z = np.meshgrid(np.linspace(t_low, t_high, samples), np.linspace(0.0, 1.0, samples))
-    eta = viscosity(law, T, z)
-    return float(f"{eta.max() / eta.min():.12g}")
 
 
 @dataclass(frozen=True)
