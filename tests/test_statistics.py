@@ -88,3 +88,14 @@ def test_buffer_thins_to_span_the_run_and_restores_bit_for_bit():
     for k in range(38, 101):
         saved.add([k, k * k])
     assert np.array_equal(saved.rows, buf.rows) and saved.stride == buf.stride
+
+
+def test_buffer_asks_only_for_the_rows_it_keeps():
+    kept, offered = st.SeriesBuffer(1, capacity=8), st.SeriesBuffer(1, capacity=8)
+    for k in range(1, 200):
+        offered.add([k])
+        if kept.wants_next():
+            kept.add([k])
+        else:
+            kept.skip()
+    assert np.array_equal(kept.rows, offered.rows) and kept.count == offered.count

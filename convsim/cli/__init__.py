@@ -90,7 +90,8 @@ class ProgressBar:
         self.bar.close()
 
 
-EXIT_FOR_STATUS = {"steady": 0, "end-time": 0, "step-limit": 0, "diverged": 3, "interrupted": 130}
+EXIT_FOR_STATUS = {"steady": 0, "mean-precision": 0, "end-time": 0, "step-limit": 0, "diverged": 3,
+                   "interrupted": 130}
 
 
 @command("run", "run a config: a convecting box to steady state or an end time")
@@ -132,11 +133,43 @@ def _run(args):
               f"vrms {result.vrms:.6f}")
         print(f"  grid {result.grid.nx}x{result.grid.nz}  steps {result.steps}  "
               f"time {result.time:.6g}  wall {result.wall_seconds:.2f} s")
+        for line in statistics_lines(summary):
+            print(f"  {line}")
         print(f"  run file {result.output}")
     if result.status == "diverged":
         print(f"convsim: run diverged: {result.message}; the last good state is in "
               f"{result.output}", file=sys.stderr)
     return EXIT_FOR_STATUS[result.status]
+
+
+_STAT_LABELS = (("nusselt_top", "Nu top"), ("nusselt_bottom", "Nu bottom"), ("vrms", "vrms"),
+                ("surface_vrms", "surface vrms"), ("interior_temperature", "interior T"),
+                ("lid_thickness", "lid thickness"))
+
+
+def statistics_lines(summary: dict) -> list[str]:
+    """The time means, the settled word and the lid diagnostics of a summary, as text lines."""
+    stats, lid = summary.get("statistics") or {}, summary.get("lid") or {}
+    if not stats:
+        return []
+    first = next(iter(stats.values()))
+    lines = [f"{summary.get('settled')}: means from t = {first['from_time']:.6g} "
+             f"(95 % half-widths)"]
+    parts = [f"{label} {stats[k]['mean']:.5g} +- {stats[k]['ci95']:.2g}"
+             for k, label in _STAT_LABELS if k in stats]
+    lines += ["  " + "  ".join(parts[:3]), "  " + "  ".join(parts[3:])]
+    hb = summary.get("heat_balance") or {}
+    if hb and hb.get("gap") == hb.get("gap"):
+        lines.append(f"  Nu top - Nu bottom - H = {hb['gap']:.3g} +- {hb['ci95']:.2g} "
+                     f"({'agree' if hb['agree'] else 'DO NOT agree'} within the intervals)")
+    if lid:
+        ups = ", ".join(f"{x:.3g}" for x in lid.get("upwellings", []))
+        lines.append(f"regime {lid['regime']}: mobility {lid['mobility']:.3g}, viscosity "
+                     f"contrast {lid['viscosity_contrast']:.3g} (across the lid "
+                     f"{lid['lid_viscosity_contrast']:.3g}), dT_rh "
+                     f"{lid['rheological_temperature_scale']:.3g}, {lid['cells']} cell(s), "
+                     f"upwellings at x = {ups or 'none'}")
+    return lines
 
 
 def _check_restart_config(path, cfg):

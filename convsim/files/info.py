@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from convsim.errors import SnapshotError
-from convsim.files.runfile import FIELDS, SERIES, open_run_file
+from convsim.files.runfile import FIELDS, SERIES, open_run_file, read_statistics
 
 __all__ = ["describe_run", "format_info"]
 
@@ -51,7 +51,9 @@ def describe_run(path: str | Path) -> dict:
         (count, times, steps), ``series`` (records, first_time, last_time, names),
         ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
         ``final_*`` attributes, or the last series row while the run is not
-        finished) and ``config`` (the stored TOML as a nested dict).
+        finished), ``settled``, ``statistics`` (per quantity mean, ci95, from_time),
+        ``lid`` and ``heat_balance`` (empty for an unfinished run; see
+        ``runfile.write_statistics``) and ``config`` (the stored TOML as a nested dict).
     """
     path = Path(path)
     if not path.is_file():
@@ -69,6 +71,7 @@ def describe_run(path: str | Path) -> dict:
             records = int(f["series_time"].shape[0])
             last = {name: _plain(f[name][-1]) for name in SERIES if records and name in f}
             first_time = _plain(f["series_time"][0]) if records else None
+            statistics = read_statistics(f)
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
                             f"({exc})") from None
@@ -97,6 +100,11 @@ def describe_run(path: str | Path) -> dict:
                    "last_time": last.get("series_time"), "names": list(SERIES)},
         "fields": fields,
         "final": final,
+        "settled": statistics.get("settled"),
+        "statistics": {k: {p: _plain(v) for p, v in e.items()}
+                       for k, e in statistics.get("statistics", {}).items()},
+        "lid": {k: _plain(v) for k, v in statistics.get("lid", {}).items()},
+        "heat_balance": {k: _plain(v) for k, v in statistics.get("heat_balance", {}).items()},
         "config": config,
     }
 
@@ -106,6 +114,10 @@ def _short(values, keep=4):
     if len(text) > 2 * keep:
         text = text[:keep] + [f"... ({len(values) - 2 * keep} more) ..."] + text[-keep:]
     return ", ".join(text)
+
+
+def _num(value, digits: int = 6) -> str:
+    return f"{value:.{digits}g}" if isinstance(value, (int, float)) else str(value)
 
 
 def format_info(info: dict) -> str:
@@ -140,6 +152,18 @@ def format_info(info: dict) -> str:
         lines.append("  final       " + ", ".join(
             f"{k} = {fin[k]:.6g}" if isinstance(fin[k], float) else f"{k} = {fin[k]}"
             for k in keys))
+    stats = info.get("statistics") or {}
+    scalars = [(k, e) for k, e in stats.items() if not isinstance(e.get("mean"), list)]
+    if scalars:
+        lines.append(f"  settled     {info.get('settled')}: time means from t = "
+                     f"{scalars[0][1]['from_time']:.6g}, +- 95 % half-width")
+        for k, e in scalars:
+            lines.append(f"              {k} = {_num(e['mean'])} +- {_num(e['ci95'], 2)}")
+    lid = info.get("lid") or {}
+    if lid:
+        lines.append(f"  lid         regime {lid.get('regime')}, mobility {_num(lid.get('mobility'))}, "
+                     f"thickness {_num(lid.get('lid_thickness'))}, T_i "
+                     f"{_num(lid.get('interior_temperature'))}, {lid.get('cells')} cell(s)")
     lines.append(f"  provenance  {p.get('source')}, created {p.get('created')}, "
                  f"wall {p.get('wall_seconds') or 0.0:.3g} s, {p.get('Conventions')}")
     lines.append(f"  fields      {', '.join(info['fields'])}")

@@ -36,6 +36,7 @@ from convsim.model.grid import Grid
 from convsim.model.rheology import ViscosityLaw
 from convsim.model.steady import newton_steady
 from convsim.model.timestepping import Model, ModelState, StepFailed, StepReport
+from convsim.run import averages as avg
 
 __all__ = ["Simulation", "RunResult", "SnapshotData", "Observer", "ResumePoint",
            "initial_temperature", "conductive_profile", "SETTLE_STEPS"]
@@ -85,7 +86,8 @@ class ResumePoint:
 class RunResult:
     """What a run produced: status, final diagnostics and fields."""
 
-    status: str                   # steady | end-time | step-limit | diverged | interrupted
+    status: str                   # steady | mean-precision | end-time | step-limit | diverged
+                                  # | interrupted
     message: str
     time: float
     steps: int
@@ -103,6 +105,10 @@ class RunResult:
     series: dict = field(default_factory=dict)
     phase_seconds: dict = field(default_factory=dict)
     output: str | None = None
+    statistics: dict = field(default_factory=dict)   # quantity -> mean, ci95, from_time, ...
+    settled: str = "unfinished"                      # steady | statistically-steady | unfinished
+    lid: dict = field(default_factory=dict)          # stagnant-lid diagnostics and regime
+    heat_balance: dict = field(default_factory=dict)  # <Nu_top> - <Nu_bottom> - H / dT
 
     @property
     def steady(self) -> bool:
@@ -116,7 +122,24 @@ class RunResult:
                     surface_vrms=self.surface_vrms, mean_temperature=self.mean_temperature,
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
-                    output=self.output, message=self.message)
+                    output=self.output, message=self.message, settled=self.settled,
+                    regime=self.lid.get("regime"), statistics=_finite(self.statistics),
+                    lid=_finite(self.lid), heat_balance=_finite(self.heat_balance))
+
+
+def _finite(value):
+    """Nested dicts and lists with NaN and inf as None (JSON has neither)."""
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
 
 
 def conductive_profile(z: np.ndarray, thermal: ThermalBoundaries, heating: float) -> np.ndarray:
@@ -237,6 +260,8 @@ class Simulation:
         settled = 0
         newton_wait, newton_next = NEWTON_FIRST_WAIT, NEWTON_FIRST_WAIT
         newton_done = False
+        averages = avg.RunAverages(self.grid.nz, self.model.internal_heating,
+                                   _wall_contrast(self.model))
         if resume is None:
             stage = 0
             model = self.model.with_rayleigh(stages[0])
@@ -258,6 +283,7 @@ class Simulation:
             newton_wait, newton_next = int(r["newton_wait"]), int(r["newton_next"])
             newton_done = bool(r["newton_done"])
             window = [tuple(v) for v in np.asarray(r.get("window", np.zeros((0, 2))))]
+            averages.restore(r)
         self._emit("on_start", self, resume is not None)
         status, message = "", ""
         tol = stop.steady_tolerance
@@ -266,7 +292,8 @@ class Simulation:
             extra = dict(stage=stage, next_snapshot=next_snapshot, settled=settled,
                          newton_wait=newton_wait, newton_next=newton_next,
                          newton_done=int(newton_done),
-                         window=np.array(window, dtype=float).reshape(-1, 2))
+                         window=np.array(window, dtype=float).reshape(-1, 2),
+                         **averages.state())
             cols = {c: np.array([row[i] for row in series_rows]) for i, c in enumerate(SERIES_COLUMNS)}
             data = SnapshotData(time=st.time, step=st.step, fields=self._fields(st), series=cols,
                                 restart=self._restart(st, extra), status=status_now,
@@ -300,6 +327,9 @@ class Simulation:
                                f"{report.vrms:.3g} is not finite or above {runaway:.3g}")
                     break
                 state = new
+                averages.record(state.time, lambda: avg.step_quantities(
+                    self.grid, state.temperature, state.psi,
+                    model.viscosities(state.temperature)[1], report))
                 for k, v in report.seconds.items():
                     phase[k] = phase.get(k, 0.0) + v
                 if report.step % out.series_every == 0:
@@ -332,6 +362,7 @@ class Simulation:
                                        psi=model.solve_flow(state.temperature, state.psi)[0],
                                        factor_weights=model.factor_weights)
                     settled, window = 0, []
+                    averages.clear()
                     newton_wait, newton_next = NEWTON_FIRST_WAIT, state.step + NEWTON_FIRST_WAIT
                     newton_done = False
                     continue
@@ -356,6 +387,11 @@ class Simulation:
                 if steady_now:
                     status = "steady"
                     message = f"steady at step {state.step} (tolerance {tol:g})"
+                elif (stop.mean_precision > 0 and state.step % avg.CHECK_EVERY == 0
+                      and averages.precision_met(stop.mean_precision)):
+                    status = "mean-precision"
+                    message = (f"mean Nu known to {100 * stop.mean_precision:g} % (95 %) at step "
+                               f"{state.step}")
                 elif stop.end_time > 0 and state.time >= stop.end_time * (1 - 1e-12):
                     status, message = "end-time", f"reached end time {stop.end_time:g}"
                 elif state.step >= stop.max_steps:
@@ -390,10 +426,47 @@ class Simulation:
             viscosity=model.viscosities(state.temperature)[1], grid=self.grid,
             series={c: np.array([row[i] for row in all_rows]) for i, c in enumerate(SERIES_COLUMNS)},
             phase_seconds=phase)
+        finish_statistics(result, averages, model, state, tol)
         if status == "diverged":
             log.warning("run diverged: %s; the last good state is kept", message)
         self._emit("on_finish", result)
         return result
+
+
+def _law_contrast(model: Model, temperature: np.ndarray) -> float:
+    th = model.thermal
+    if th.top_kind == "temperature" and th.bottom_kind == "temperature":
+        lo, hi = sorted((th.top_value, th.bottom_value))
+    else:
+        lo, hi = float(temperature.min()), float(temperature.max())
+    from convsim.model.lid import law_viscosity_contrast
+    return law_viscosity_contrast(model.law, lo, hi)
+
+
+def _wall_contrast(model: Model) -> float:
+    th = model.thermal
+    if th.top_kind == "temperature" and th.bottom_kind == "temperature":
+        return th.bottom_value - th.top_value
+    return math.nan          # fixed flux: the contrast varies; no balance of the means
+
+
+def finish_statistics(result: RunResult, averages, model: Model, state: ModelState,
+                      tol: float) -> None:
+    """Fill the result's statistics, settled word, lid diagnostics and heat balance
+    (``tol``: the steady tolerance, for the heat balance of a steady run)."""
+    report = StepReport(step=state.step, time=state.time, dt=0.0,
+                        nusselt_top=result.nusselt_top, nusselt_bottom=result.nusselt_bottom,
+                        vrms=result.vrms, surface_vrms=result.surface_vrms,
+                        mean_temperature=result.mean_temperature, energy_residual=0.0,
+                        heat_imbalance=0.0, tendency_max=0.0)
+    final = avg.step_quantities(model.grid, state.temperature, state.psi, result.viscosity, report)
+    result.statistics, result.settled = avg.run_statistics(averages, result.status, final,
+                                                           state.time)
+    result.lid = avg.lid_report(result.statistics, model.law, model.grid, state.psi,
+                                _law_contrast(model, state.temperature))
+    tolerance = tol if result.status == "steady" else 1e-9
+    result.heat_balance = avg.heat_balance(result.statistics, model.internal_heating,
+                                           _wall_contrast(model), tolerance)
 
 
 class _DeferredInterrupt:

@@ -300,6 +300,14 @@ class SeriesBuffer:
         """The kept rows, oldest first (a view)."""
         return self._data[: self.size]
 
+    def wants_next(self) -> bool:
+        """Whether the next row offered will be kept (compute it only then)."""
+        return (self.count + 1) % self.stride == 0
+
+    def skip(self) -> None:
+        """Count a row that is not offered (``wants_next`` was False)."""
+        self.count += 1
+
     def add(self, row) -> bool:
         """Offer one row; returns True when it was kept."""
         self.count += 1

@@ -127,7 +127,7 @@ log = logging.getLogger(__name__)
 SWEEP_KEYS = ("title", "base", "combine", "fixed", "axis", "continuation")
 AXIS_KEYS = ("key", "values", "start", "stop", "count", "spacing")
 CONTINUATION_KEYS = ("axis", "accept")
-RUN_STATUSES = ("steady", "end-time", "step-limit", "diverged", "interrupted")
+RUN_STATUSES = ("steady", "mean-precision", "end-time", "step-limit", "diverged", "interrupted")
 RETRY_STATUSES = (FAILED, "interrupted")    # a rerun runs these cases again
 
 

@@ -40,7 +40,7 @@ FAILED = "failed"   # status of a case whose run raised an exception (run status
 COLUMNS = {
     "case_id": ("s", "1", "case identifier, stable from the parameter values"),
     "index": ("i", "1", "position of the case in the sweep"),
-    "status": ("s", "1", "steady, end-time, step-limit, diverged, interrupted, or failed"),
+    "status": ("s", "1", "steady, mean-precision, end-time, step-limit, diverged, interrupted, or failed"),
     "rayleigh": ("f", "1", "Rayleigh number of the case"),
     "nx": ("i", "1", "cells across the box"),
     "nz": ("i", "1", "cells through the depth"),
