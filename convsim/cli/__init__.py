@@ -147,27 +147,32 @@ _STAT_LABELS = (("nusselt_top", "Nu top"), ("nusselt_bottom", "Nu bottom"), ("vr
                 ("lid_thickness", "lid thickness"))
 
 
+def _g(value, digits: int = 5) -> str:
+    """A number to ``digits`` significant digits; None (NaN or inf in JSON) as 'n/a'."""
+    return "n/a" if value is None else f"{value:.{digits}g}"
+
+
 def statistics_lines(summary: dict) -> list[str]:
     """The time means, the settled word and the lid diagnostics of a summary, as text lines."""
     stats, lid = summary.get("statistics") or {}, summary.get("lid") or {}
     if not stats:
         return []
     first = next(iter(stats.values()))
-    lines = [f"{summary.get('settled')}: means from t = {first['from_time']:.6g} "
-             f"(95 % half-widths)"]
-    parts = [f"{label} {stats[k]['mean']:.5g} +- {stats[k]['ci95']:.2g}"
+    lines = [f"{summary.get('settled')}: means from t = {_g(first['from_time'], 6)} "
+             f"(+- 95 % half-width)"]
+    parts = [f"{label} {_g(stats[k]['mean'])} +- {_g(stats[k]['ci95'], 2)}"
              for k, label in _STAT_LABELS if k in stats]
     lines += ["  " + "  ".join(parts[:3]), "  " + "  ".join(parts[3:])]
     hb = summary.get("heat_balance") or {}
-    if hb and hb.get("gap") == hb.get("gap"):
-        lines.append(f"  Nu top - Nu bottom - H = {hb['gap']:.3g} +- {hb['ci95']:.2g} "
-                     f"({'agree' if hb['agree'] else 'DO NOT agree'} within the intervals)")
+    if hb.get("gap") is not None:
+        lines.append(f"  Nu top - Nu bottom - H = {_g(hb['gap'], 3)} +- {_g(hb['ci95'], 2)} "
+                     f"({'agree' if hb['agree'] else 'do not agree'} within the intervals)")
     if lid:
-        ups = ", ".join(f"{x:.3g}" for x in lid.get("upwellings", []))
-        lines.append(f"regime {lid['regime']}: mobility {lid['mobility']:.3g}, viscosity "
-                     f"contrast {lid['viscosity_contrast']:.3g} (across the lid "
-                     f"{lid['lid_viscosity_contrast']:.3g}), dT_rh "
-                     f"{lid['rheological_temperature_scale']:.3g}, {lid['cells']} cell(s), "
+        ups = ", ".join(_g(x, 3) for x in lid.get("upwellings", []))
+        lines.append(f"regime {lid['regime']}: mobility {_g(lid['mobility'], 3)}, viscosity "
+                     f"contrast {_g(lid['viscosity_contrast'], 3)} (across the lid "
+                     f"{_g(lid['lid_viscosity_contrast'], 3)}), dT_rh "
+                     f"{_g(lid['rheological_temperature_scale'], 3)}, {lid['cells']} cell(s), "
                      f"upwellings at x = {ups or 'none'}")
     return lines
 

@@ -217,7 +217,33 @@ def draw_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation):
         ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
         ax.grid(True, linewidth=0.3, color="0.85")
     ax_eta.tick_params(labelleft=False)
+    _draw_mean_profiles(ax_t, ax_eta, run, pres, z)
     return lt, le
+
+
+def _time_means(run: RunFile) -> dict:
+    """The run's time means, when it is time-dependent (settled is not 'steady')."""
+    stats = getattr(run, "statistics", None) or {}
+    if stats.get("settled") in (None, "steady"):
+        return {}
+    return stats.get("statistics", {})
+
+
+def _draw_mean_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation, z) -> None:
+    """The time-mean profiles (dashed) with their 95 % bands, over the instantaneous ones."""
+    means = _time_means(run)
+    for ax, name, convert, colour in ((ax_t, "temperature_profile", pres.temperature, 1),
+                                      (ax_eta, "viscosity_profile", pres.viscosity, 0)):
+        if name not in means:
+            continue
+        m, h = np.asarray(means[name]["mean"], float), np.asarray(means[name]["ci95"], float)
+        h = np.where(np.isfinite(h), h, 0.0)
+        ax.fill_betweenx(z, convert(m - h), convert(m + h), color=style.LINE_COLORS[colour],
+                         alpha=0.2, linewidth=0)
+        ax.plot(convert(m), z, color=style.LINE_COLORS[colour], linestyle="--",
+                label=f"time mean from t = {means[name]['from_time']:.3g}")
+    if means:
+        ax_t.legend(loc="best")
 
 
 def draw_series(ax_nu, ax_v, run: RunFile, pres: Presentation):
@@ -241,7 +267,30 @@ def draw_series(ax_nu, ax_v, run: RunFile, pres: Presentation):
             ax.set_xlim(start, float(t[-1]) if t[-1] > start else start + 1.0)
             ax.axvline(shown, color="0.5", linewidth=0.6, linestyle=":", zorder=0)
     ax_nu.tick_params(labelbottom=False)
+    _draw_averaging_window(ax_nu, ax_v, run, pres)
     return top, bottom, vrms
+
+
+def _draw_averaging_window(ax_nu, ax_v, run: RunFile, pres: Presentation) -> None:
+    """Shade the averaging window; the time means as horizontal lines with 95 % bands."""
+    means = _time_means(run)
+    if "nusselt_top" not in means:
+        return
+    start, end = pres.time(means["nusselt_top"]["from_time"]), pres.time(run.series["series_time"][-1])
+    for ax in (ax_nu, ax_v):
+        ax.axvspan(start, end, color=style.GUIDE_COLOR, alpha=0.12, linewidth=0, zorder=0,
+                   label="averaging window" if ax is ax_nu else None)
+    for ax, name, convert, colour, dash in ((ax_nu, "nusselt_top", pres.heat_flux, 1, "-"),
+                                            (ax_nu, "nusselt_bottom", pres.heat_flux, 0, "--"),
+                                            (ax_v, "vrms", pres.velocity, 2, "-")):
+        m, h = means[name]["mean"], means[name]["ci95"]
+        h = h if h is not None and np.isfinite(h) else 0.0
+        ax.hlines(convert(m), start, end, color=style.LINE_COLORS[colour], linewidth=1.2,
+                  linestyles=dash, zorder=3,
+                  label="time mean, 95 % band" if name == "nusselt_top" else None)
+        ax.fill_between([start, end], convert(m - h), convert(m + h),
+                        color=style.LINE_COLORS[colour], alpha=0.25, linewidth=0, zorder=2)
+    ax_nu.legend(loc="best")
 
 
 # -- figures ----------------------------------------------------------------------------------

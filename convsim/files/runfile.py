@@ -35,7 +35,7 @@ import datetime as _dt
 import math
 import os
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import h5py
@@ -258,8 +258,8 @@ def write_statistics(f, summary: dict) -> None:
 
     Attributes ``settled`` and, per scalar quantity q, ``q_mean``, ``q_ci95`` (95 %
     half-width), ``q_from_time``; the profiles as variables ``<profile>_mean`` and
-    ``<profile>_ci95`` over z; the lid diagnostics as attributes ``lid_<name>`` (the
-    upwellings as the variable ``upwellings``); the heat balance as
+    ``<profile>_ci95`` over z; the lid diagnostics as attributes of the subgroup ``lid``
+    (the upwellings as its variable ``upwellings``); the heat balance as
     ``heat_balance_<name>``.  Replaced when a restarted run finishes again.
     """
     if "statistics" in f:
@@ -278,11 +278,12 @@ def write_statistics(f, summary: dict) -> None:
             continue
         for part in ("mean", "ci95", "from_time"):
             g.attrs[f"{name}_{part}"] = _number(est[part])
+    lid = g.create_group("lid")
     for key, value in (summary.get("lid") or {}).items():
         if key == "upwellings":
-            g.create_dataset("upwellings", data=np.asarray(value, float))
+            lid.create_dataset("upwellings", data=np.asarray(value, float))
         else:
-            g.attrs[f"lid_{key}"] = _number(value) if value is None else value
+            lid.attrs[key] = _number(value) if value is None else value
     for key, value in (summary.get("heat_balance") or {}).items():
         g.attrs[f"heat_balance_{key}"] = _number(value) if value is None else value
 
@@ -301,7 +302,7 @@ def read_statistics(f) -> dict:
     attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g.attrs.items()}
     stats = {}
     for key, value in attrs.items():
-        if key.endswith("_from_time") and not key.startswith(("lid_", "heat_balance_")):
+        if key.endswith("_from_time"):
             name = key[: -len("_from_time")]
             if name in PROFILE_STATISTICS:
                 stats[name] = dict(mean=g[f"{name}_mean"][:], ci95=g[f"{name}_ci95"][:],
@@ -309,9 +310,11 @@ def read_statistics(f) -> dict:
             else:
                 stats[name] = dict(mean=attrs[f"{name}_mean"], ci95=attrs[f"{name}_ci95"],
                                    from_time=value)
-    lid = {k[4:]: v for k, v in attrs.items() if k.startswith("lid_")}
-    if "upwellings" in g:
-        lid["upwellings"] = g["upwellings"][:]
+    lid = {}
+    if "lid" in g:
+        lid = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g["lid"].attrs.items()}
+        if "upwellings" in g["lid"]:
+            lid["upwellings"] = g["lid"]["upwellings"][:]
     return dict(settled=attrs.get("settled"), statistics=stats, lid=lid,
                 heat_balance={k[13:]: v for k, v in attrs.items()
                               if k.startswith("heat_balance_")})
@@ -333,6 +336,7 @@ class RunFile:
     fields: dict
     series: dict
     restart: dict
+    statistics: dict = field(default_factory=dict)   # see read_statistics; {} while running
 
     @property
     def config_text(self) -> str:
@@ -364,7 +368,8 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
             attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
             return RunFile(path=path, attrs=attrs, x=f["x"][:], z=f["z"][:], x_node=f["x_node"][:],
                            z_node=f["z_node"][:], times=times, steps=f["step"][:], snapshot=index,
-                           fields=fields, series=series, restart=state)
+                           fields=fields, series=series, restart=state,
+                           statistics=read_statistics(f))
     except SnapshotError:
         raise
     except (OSError, KeyError) as exc:
