@@ -230,8 +230,9 @@ def _time_means(run: RunFile) -> dict:
 
 
 def _draw_mean_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation, z) -> None:
-    """The time-mean profiles (dashed) with their 95 % bands, over the instantaneous ones."""
-    means = _time_means(run)
+    """The time-mean profiles (dashed) with their 95 % bands, over the instantaneous ones
+    (statistically steady runs only: an unfinished run's mean profile is still moving)."""
+    means = _time_means(run) if run.statistics.get("settled") == "statistically-steady" else {}
     for ax, name, convert, colour in ((ax_t, "temperature_profile", pres.temperature, 1),
                                       (ax_eta, "viscosity_profile", pres.viscosity, 0)):
         if name not in means:
