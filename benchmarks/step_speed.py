@@ -4,7 +4,7 @@
 
 For constant viscosity (case 1a set-up) and a viscosity contrast of 1e3 (case 2a set-up), runs
 a short transient from the perturbed conductive start (after a warm-up) and prints the mean
-wall time per step of each phase: advect (explicit tendency), diffuse (implicit solve),
+wall time per step of each phase: advect (explicit term), diffuse (implicit solve),
 stokes (flow solve, including any refactorisation), of which factor, and diagnose; then
 steps per second and the peak resident memory of this process (it only grows, so run one
 grid per process for clean memory figures: --grids 256).
@@ -17,7 +17,8 @@ import time
 import numpy as np
 
 from convsim.config import Config
-from convsim.run.controller import build_model, initial_temperature
+from convsim.run.build import build_model
+from convsim.run.initial import initial_temperature
 
 
 def measure(law, n, steps):

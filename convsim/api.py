@@ -13,7 +13,8 @@ import numpy as np
 from convsim.config import Config, load_config
 from convsim.errors import ConfigError
 from convsim.model.grid import Grid, interpolate_cells
-from convsim.run.controller import ResumePoint, RunResult, Simulation, build_model
+from convsim.run.build import build_model
+from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
 

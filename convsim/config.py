@@ -20,6 +20,8 @@ from pathlib import Path
 from typing import Any
 
 from convsim.errors import ConfigError
+from convsim.model.choices import (ADVECTION_SCHEMES, FACTOR_REUSE, FLOW_CONDITIONS, LIMITERS,
+                                   SIDE_CONDITIONS, THERMAL_CONDITIONS, TIME_SCHEMES)
 
 __all__ = [
     "Config", "Domain", "Physics", "Boundaries", "Viscosity", "Start", "Numerics", "Stop",
@@ -73,17 +75,17 @@ class Boundaries:
     """Mechanical and thermal conditions on the four sides."""
 
     top_flow: str = _key("mechanical condition at z = 1", default="free-slip",
-                         choices=("free-slip", "no-slip"))
+                         choices=FLOW_CONDITIONS)
     bottom_flow: str = _key("mechanical condition at z = 0", default="free-slip",
-                            choices=("free-slip", "no-slip"))
+                            choices=FLOW_CONDITIONS)
     sides: str = _key("side walls: reflecting (free-slip and insulating) or periodic",
-                      default="reflecting", choices=("reflecting", "periodic"))
+                      default="reflecting", choices=SIDE_CONDITIONS)
     top_heat: str = _key("thermal condition at z = 1: fixed temperature or fixed heat flux",
-                         default="temperature", choices=("temperature", "flux"))
+                         default="temperature", choices=THERMAL_CONDITIONS)
     top_value: float = _key("temperature at z = 1, or upward heat flux -dT/dz there",
                             "dT or dT/d", default=0.0, ge=-1.0e6, le=1.0e6)
     bottom_heat: str = _key("thermal condition at z = 0: fixed temperature or fixed heat flux",
-                            default="temperature", choices=("temperature", "flux"))
+                            default="temperature", choices=THERMAL_CONDITIONS)
     bottom_value: float = _key("temperature at z = 0, or upward heat flux -dT/dz there",
                                "dT or dT/d", default=1.0, ge=-1.0e6, le=1.0e6)
 
@@ -136,11 +138,11 @@ class Numerics:
     """Discretisation and solver choices."""
 
     advection: str = _key("advection scheme: TVD (second order, limited) or first-order upwind",
-                          default="tvd", choices=("tvd", "upwind"))
+                          default="tvd", choices=ADVECTION_SCHEMES)
     limiter: str = _key("flux limiter of the TVD scheme", default="van-leer",
-                        choices=("van-leer", "minmod", "superbee", "mc"))
+                        choices=LIMITERS)
     time_scheme: str = _key("IMEX integrator: sbdf2 (second order) or euler (first order)",
-                            default="sbdf2", choices=("sbdf2", "euler"))
+                            default="sbdf2", choices=TIME_SCHEMES)
     cfl: float = _key("Courant number of the adaptive time step", default=0.4, gt=0.0, le=2.0)
     max_dt: float = _key("largest allowed time step", "d^2/kappa", default=1.0e-2, gt=0.0, le=10.0)
     stokes_solver: str = _key(
@@ -149,7 +151,7 @@ class Numerics:
     factor_reuse: str = _key(
         "variable viscosity: refactor every step (always) or reuse the factor as a CG "
         "preconditioner while it pays (adaptive)", default="adaptive",
-        choices=("adaptive", "always"))
+        choices=FACTOR_REUSE)
 
 
 @dataclass(frozen=True)
@@ -225,18 +227,36 @@ class Config:
     title: str = ""
 
     def replace(self, **tables) -> "Config":
-        """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``)."""
-        changes = {}
+        """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``).
+
+        Validated exactly like a config file: the changed config is written out as a
+        mapping and read back by ``parse_config`` (unknown keys, types, ranges, choices and
+        the rules between keys), so bad values raise ``ConfigError`` naming the key.
+        """
+        data = to_dict(self)
         for name, value in tables.items():
             if "__" in name:
                 section, key = name.split("__", 1)
-                current = changes.get(section, getattr(self, section))
-                changes[section] = dataclasses.replace(current, **{key: value})
+                table = data.setdefault(section, {})
+                if not isinstance(table, dict):
+                    raise ConfigError(f"{section}: not a table")
+                table[key] = _plain(value)
+            elif dataclasses.is_dataclass(value):
+                data[name] = {k: _plain(v) for k, v in dataclasses.asdict(value).items()}
+            elif value is None:
+                data.pop(name, None)
             else:
-                changes[name] = value
-        new = dataclasses.replace(self, **changes)
-        _check_consistency(new)
-        return new
+                data[name] = _plain(value)
+        return parse_config(data, source="Config.replace")
+
+
+def _plain(value):
+    """A numpy scalar as the Python number it holds; lists and tuples element by element."""
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if hasattr(value, "item") and hasattr(value, "dtype") and getattr(value, "ndim", 1) == 0:
+        return value.item()
+    return value
 
 
 TABLES = {f.name: f.default_factory for f in dataclasses.fields(Config)

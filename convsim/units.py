@@ -48,6 +48,7 @@ from dataclasses import dataclass
 import pint
 
 from convsim.errors import ConfigError
+from convsim.model.choices import FLOW_CONDITIONS
 
 __all__ = [
     "UREG", "SECONDS_PER_YEAR", "SECONDS_PER_MYR", "PROPERTIES", "Property", "Scales",
@@ -420,8 +421,6 @@ def scales_from_body(body=None, overrides=None, *, options=None) -> Scales:
 # Onset: the critical Rayleigh number from the linear-stability solver (convsim.analysis.stability)
 # ------------------------------------------------------------------------------------------
 
-#: Mechanical conditions known to ``critical_rayleigh_for``.
-FLOW_CONDITIONS = ("free-slip", "no-slip")
 
 
 @functools.lru_cache(maxsize=None)

@@ -2,7 +2,8 @@
 
 One rule per folder of the package:
 
-- ``errors`` and ``model/kernels`` import nothing of convsim; ``config`` only ``errors``;
+- ``errors``, ``model/kernels`` and ``model/choices`` import nothing of convsim; ``config`` only
+  ``errors`` and the choice names of ``model/choices``;
 - ``model/`` takes numbers, arrays and declarations: never ``config``, ``run``, ``files``,
   ``figures``, ``studies``, ``analysis`` or ``cli``;
 - ``run/`` never imports ``files``, ``figures``, ``studies`` or ``cli`` (writers come in as
@@ -56,7 +57,10 @@ def _check(room: str, forbidden: set) -> None:
 def test_foundations_import_nothing_of_convsim():
     assert _imports(PACKAGE / "errors.py")[0] == set()
     assert _imports(PACKAGE / "model" / "kernels.py")[0] == set()
-    assert _imports(PACKAGE / "config.py")[0] <= {"errors"}
+    assert _imports(PACKAGE / "model" / "choices.py")[0] == set()
+    config_imports = {n.module for n in ast.walk(ast.parse((PACKAGE / "config.py").read_text()))
+                      if isinstance(n, ast.ImportFrom) and n.module.startswith("convsim")}
+    assert config_imports <= {"convsim.errors", "convsim.model.choices"}
 
 
 def test_model_takes_numbers_not_configs():

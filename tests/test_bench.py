@@ -23,12 +23,14 @@ ROOT = Path(__file__).resolve().parent.parent
 
 # -- configs -------------------------------------------------------------------------------------
 @pytest.mark.parametrize("case", published.known_cases())
-def test_package_case_configs_identical_to_repo_configs(case):
+def test_each_case_config_has_one_source(case):
+    """The package copy is the case file; configs/ only links to it (no second copy to drift)."""
     name = f"benchmark_case_{case}.toml"
     shipped = bench.package_cases_dir() / name
     repo = ROOT / "configs" / name
-    assert shipped.read_bytes() == repo.read_bytes(), \
-        f"convsim/studies/cases/{name} differs from configs/{name}: copy configs/ into convsim/studies/cases/"
+    assert bench.case_config_path(case) == shipped
+    assert repo.is_symlink() and repo.resolve() == shipped.resolve(), \
+        f"configs/{name} must be a link to convsim/studies/cases/{name}, not a copy"
 
 
 def test_case_config_path_and_unknown_case():
@@ -72,10 +74,10 @@ def test_every_published_value_has_a_citation_and_definition():
 def test_published_values_as_quoted():
     # the numbers of Blankenbach et al. (1989), best estimates (quoted from memory)
     p = published.PUBLISHED
-    assert p["1a"]["nusselt"].value == 4.884409 and p["1a"]["vrms"].value == 42.864947
-    assert p["1b"]["nusselt"].value == 10.534095 and p["1b"]["vrms"].value == 193.21454
-    assert p["1c"]["nusselt"].value == 21.972465 and p["1c"]["vrms"].value == 833.98977
-    assert p["2a"]["nusselt"].value == 10.0660 and p["2a"]["vrms"].value == 480.4334
+    assert p["1a"]["nusselt_top"].value == 4.884409 and p["1a"]["vrms"].value == 42.864947
+    assert p["1b"]["nusselt_top"].value == 10.534095 and p["1b"]["vrms"].value == 193.21454
+    assert p["1c"]["nusselt_top"].value == 21.972465 and p["1c"]["vrms"].value == 833.98977
+    assert p["2a"]["nusselt_top"].value == 10.0660 and p["2a"]["vrms"].value == 480.4334
     assert p["1a"]["q1"].value > p["1a"]["q2"].value        # q1 above the upwelling
 
 
@@ -99,7 +101,7 @@ def _rows(case, grids, law):
         h = 1.0 / n
         vals = {q: law(pub[q], h, i) for i, q in enumerate(published.QUANTITIES)}
         row = bench.BenchRow(case=case, grid=n, h=h, status="steady", message="ok",
-                             nusselt=vals["nusselt"], nusselt_bottom=vals["nusselt"],
+                             nusselt_top=vals["nusselt_top"], nusselt_bottom=vals["nusselt_top"],
                              vrms=vals["vrms"], q1=vals["q1"], q2=vals["q2"], wall_seconds=1.0,
                              steps=100, time=0.1, phase_seconds={}, peak_rss_mib=1.0,
                              run_rss_mib=0.0, upwelling="x=0", stage_steps=[])
@@ -120,17 +122,17 @@ def test_analysis_of_a_second_order_sequence_passes():
 def test_analysis_reports_oscillation_and_fails():
     rows = _rows("1b", (32, 64, 128), lambda f0, h, i: f0 * (1.0 + (-1) ** round(1 / h / 32) * h))
     s = bench.analyse_case("1b", rows, bench.case_config_path("1b"))
-    assert s.convergence["nusselt"].behaviour == "oscillatory"
-    assert math.isnan(s.extrapolated["nusselt"])
+    assert s.convergence["nusselt_top"].behaviour == "oscillatory"
+    assert math.isnan(s.extrapolated["nusselt_top"])
     assert not s.passed
     failed = {(c.quantity, c.kind) for c in s.checks if not c.passed}
-    assert ("nusselt", "extrapolated") in failed
+    assert ("nusselt_top", "extrapolated") in failed
 
 
 def test_analysis_first_order_fails_the_order_check():
     rows = _rows("2a", (32, 64, 128), lambda f0, h, i: f0 * (1.0 + 0.01 * h))
     s = bench.analyse_case("2a", rows, bench.case_config_path("2a"))
-    assert s.observed_order["nusselt"] == pytest.approx(1.0, rel=1e-6)
+    assert s.observed_order["nusselt_top"] == pytest.approx(1.0, rel=1e-6)
     order = [c for c in s.checks if c.kind == "order"]
     assert order and not order[0].passed
 
@@ -152,7 +154,7 @@ def test_unsteady_row_fails_and_is_left_out():
     rows = _rows("1a", (16, 32, 64, 128), lambda f0, h, i: f0 * (1.0 + h * h))
     rows[-1].status = "step-limit"
     s = bench.analyse_case("1a", rows, bench.case_config_path("1a"))
-    assert s.convergence["nusselt"].h == (1 / 64, 1 / 32, 1 / 16)
+    assert s.convergence["nusselt_top"].h == (1 / 64, 1 / 32, 1 / 16)
     assert not s.passed
 
 
@@ -184,17 +186,17 @@ def test_smoke_json_shape(smoke):
     assert case["case"] == "1a"
     assert [r["grid"] for r in case["rows"]] == [8, 12, 16]
     for r in case["rows"]:
-        for key in ("grid", "nusselt", "vrms", "q1", "q2", "wall_seconds", "steps"):
+        for key in ("grid", "nusselt_top", "vrms", "q1", "q2", "wall_seconds", "steps"):
             assert key in r
         assert r["status"] == "steady" and r["steps"] > 0 and r["wall_seconds"] > 0
     for key in ("observed_order", "extrapolated", "published"):
-        assert {"nusselt", "vrms"} <= set(case[key])
-    assert case["published"]["nusselt"] == 4.884409
+        assert {"nusselt_top", "vrms"} <= set(case[key])
+    assert case["published"]["nusselt_top"] == 4.884409
     # coarse, but the right answer: within 2 % of Blankenbach et al. (1989) on 16 x 16
-    assert case["rows"][-1]["nusselt"] == pytest.approx(4.884409, rel=0.02)
+    assert case["rows"][-1]["nusselt_top"] == pytest.approx(4.884409, rel=0.02)
     assert case["rows"][-1]["vrms"] == pytest.approx(42.864947, rel=0.02)
     # and converging towards it
-    errs = [abs(r["relative_error"]["nusselt"]) for r in case["rows"]]
+    errs = [abs(r["relative_error"]["nusselt_top"]) for r in case["rows"]]
     assert errs[0] > errs[1] > errs[2]
     assert data["provenance"]["versions"]["numpy"] and data["provenance"]["cpu_count"] >= 1
 

@@ -238,7 +238,7 @@ def test_property_table_matches_body_declaration():
     for p in PROPERTIES:
         declared = UREG.Quantity(1.0, fields[p.body_key].metadata["units"])
         assert declared.dimensionality == UREG.Quantity(1.0, p.units).dimensionality, p.name
-    flags = {row[0]: row[3] for row in cli._RAYLEIGH_FLAGS}
+    flags = {row[0]: row[3] for row in cli.rayleigh._RAYLEIGH_FLAGS}
     assert flags == {p.name: p.units for p in PROPERTIES}
 
 

@@ -39,6 +39,8 @@ import scipy.linalg as sla
 from scipy.optimize import brentq, minimize_scalar
 
 from convsim.errors import ConfigError
+from convsim.model.choices import FLOW_CONDITIONS, THERMAL_CONDITIONS as HEAT_CONDITIONS
+from convsim.model.energy import conductive_coefficients
 
 __all__ = ["Layer", "StabilityProblem", "conductive_profile", "conductive_gradient",
            "chebyshev", "default_points", "RA_INFINITE", "FLOW_CONDITIONS",
@@ -46,8 +48,6 @@ __all__ = ["Layer", "StabilityProblem", "conductive_profile", "conductive_gradie
 
 log = logging.getLogger("convsim.analysis.stability")
 
-FLOW_CONDITIONS = ("free-slip", "no-slip")
-HEAT_CONDITIONS = ("temperature", "flux")
 
 #: A neutral Rayleigh number above this is reported as infinite (no steady instability).
 RA_INFINITE = 1.0e30
@@ -117,17 +117,9 @@ class Layer:
 
 
 def _profile_coefficients(layer: Layer) -> tuple[float, float]:
-    """(a, b) of T0 = -H z^2/2 + a z + b."""
-    H = layer.internal_heating
-    if layer.top_heat == "temperature" and layer.bottom_heat == "temperature":
-        b = layer.bottom_value
-        a = layer.top_value - b + 0.5 * H
-    elif layer.bottom_heat == "flux":        # -T0'(0) = q_bottom, T0(1) = T_top
-        a = -layer.bottom_value
-        b = layer.top_value + 0.5 * H - a
-    else:                                    # -T0'(1) = q_top, T0(0) = T_bottom
-        a = H - layer.top_value
-        b = layer.bottom_value
+    """(a, b) of T0 = -H z^2/2 + a z + b (the model's one conductive profile)."""
+    b, a = conductive_coefficients(layer.top_heat, layer.top_value, layer.bottom_heat,
+                                   layer.bottom_value, layer.internal_heating)
     return a, b
 
 
@@ -198,6 +190,73 @@ def default_points(layer: Layer) -> int:
     return int(min(256, 8 * math.ceil((32.0 + 0.5 * spread) / 8.0)))
 
 
+def _collocation(layer: Layer, points: int):
+    """Nodes z (top down) and the first-derivative matrix of the Chebyshev blocks, split
+    where eta has a kink (``layer.breaks``); ``first``, ``last``: each block's top and
+    bottom node."""
+    edges = [1.0] + sorted(layer.breaks, reverse=True) + [0.0]
+    blocks = []
+    for top, bottom in zip(edges[:-1], edges[1:]):
+        n_b = points if len(edges) == 2 else max(8, 8 * math.ceil(points * (top - bottom) / 8))
+        z_b, d_b = chebyshev(n_b)
+        blocks.append((bottom + (top - bottom) * z_b, d_b / (top - bottom), n_b))
+    z = np.concatenate([b[0] for b in blocks])
+    D1 = sla.block_diag(*[b[1] for b in blocks])
+    first = np.cumsum([0] + [b[2] + 1 for b in blocks[:-1]])
+    last = first + np.array([b[2] for b in blocks])
+    return z, D1, first, last
+
+
+def _phi_conditions(layer: Layer, derivatives, g1, first, last):
+    """Rows of the flow equation replaced by conditions on Phi, two at each end of each block.
+
+    Walls: Phi = 0 and the slip condition.  Interfaces (node a above, b below): Phi,
+    Phi', Phi'' and q'/eta = g' (Phi'' + k^2 Phi) + Phi''' + k^2 Phi' continuous, where
+    q = eta (Phi'' + k^2 Phi) is the shear stress (eta itself is continuous).  Returns
+    the row indices and the coefficients of Phi and of k^2 Phi in each condition.
+    """
+    D1, D2, D3 = derivatives
+    size = D1.shape[0]
+    eye = np.eye(size)
+    flow_row = {"free-slip": D2, "no-slip": D1}
+    rows, bc0, bc2 = [], [], []
+
+    def put(row, c0, c2=None):
+        rows.append(row)
+        bc0.append(c0)
+        bc2.append(np.zeros(size) if c2 is None else c2)
+    put(first[0], eye[first[0]])
+    put(first[0] + 1, flow_row[layer.top_flow][first[0]])
+    for a, b in zip(last[:-1], first[1:]):
+        put(a - 1, eye[a] - eye[b])
+        put(a, D1[a] - D1[b])
+        put(b, D2[a] - D2[b])
+        put(b + 1, g1[a] * D2[a] + D3[a] - g1[b] * D2[b] - D3[b],
+            g1[a] * eye[a] + D1[a] - g1[b] * eye[b] - D1[b])
+    put(last[-1] - 1, flow_row[layer.bottom_flow][last[-1]])
+    put(last[-1], eye[last[-1]])
+    return np.array(rows), np.array(bc0), np.array(bc2)
+
+
+def _theta_extension(layer: Layer, D1, first, last):
+    """Theta's unknowns are the nodes inside the blocks; the block ends follow from the
+    thermal conditions at the walls and continuity of Theta and Theta' at interfaces.
+    Returns ``ext`` (Theta at every node = ext @ Theta inside) and the inner node indices."""
+    size = D1.shape[0]
+    eye = np.eye(size)
+    heat_row = {"temperature": eye, "flux": D1}
+    bc = [heat_row[layer.top_heat][first[0]], heat_row[layer.bottom_heat][last[-1]]]
+    for a, b in zip(last[:-1], first[1:]):
+        bc += [eye[a] - eye[b], D1[a] - D1[b]]
+    bc = np.array(bc)
+    ends = np.array([first[0], last[-1]] + [i for ab in zip(last[:-1], first[1:]) for i in ab])
+    inner = np.setdiff1d(np.arange(size), ends)
+    ext = np.zeros((size, inner.size))
+    ext[inner, np.arange(inner.size)] = 1.0
+    ext[ends] = -np.linalg.solve(bc[:, ends], bc[:, inner])
+    return ext, inner
+
+
 class StabilityProblem:
     """The discretised linear-stability problem of one layer: build once, query many wavenumbers.
 
@@ -216,20 +275,10 @@ class StabilityProblem:
             raise ConfigError(f"points = {points!r}: expected a whole number, 8 <= points <= 512")
         self.layer = layer
         self.points = points
-        # Blocks from the top down, split where eta has a kink (layer.breaks).
-        edges = [1.0] + sorted(layer.breaks, reverse=True) + [0.0]
-        blocks = []
-        for top, bottom in zip(edges[:-1], edges[1:]):
-            n_b = points if len(edges) == 2 else max(8, 8 * math.ceil(points * (top - bottom) / 8))
-            z_b, d_b = chebyshev(n_b)
-            blocks.append((bottom + (top - bottom) * z_b, d_b / (top - bottom), n_b))
-        z = np.concatenate([b[0] for b in blocks])
-        D1 = sla.block_diag(*[b[1] for b in blocks])
+        z, D1, first, last = _collocation(layer, points)
         D2 = D1 @ D1
         D3 = D1 @ D2
         size = z.size
-        first = np.cumsum([0] + [b[2] + 1 for b in blocks[:-1]])     # top node of each block
-        last = first + np.array([b[2] for b in blocks])              # bottom node of each block
         self.z = z
         self.T0 = conductive_profile(layer, z)
         self.dT0 = conductive_gradient(layer, z)
@@ -244,52 +293,16 @@ class StabilityProblem:
         g = np.log(eta)
         g1 = D1 @ g
         h = D2 @ g + g1 * g1
-        eye = np.eye(size)
         self._L0 = D2 @ D2 + 2.0 * g1[:, None] * D3 + h[:, None] * D2
         self._L2 = -2.0 * D2 - 2.0 * g1[:, None] * D1 + np.diag(h)
-        self._L4 = eye
-        # Rows of (1) replaced by conditions on Phi, two at each end of each block.
-        # Walls: Phi = 0 and the slip condition.  Interfaces (node a above, b below): Phi,
-        # Phi', Phi'' and q'/eta = g' (Phi'' + k^2 Phi) + Phi''' + k^2 Phi' continuous, where
-        # q = eta (Phi'' + k^2 Phi) is the shear stress (eta itself is continuous).
-        flow_row = {"free-slip": D2, "no-slip": D1}
-        rows, bc0, bc2 = [], [], []
-
-        def put(row, c0, c2=None):
-            rows.append(row)
-            bc0.append(c0)
-            bc2.append(np.zeros(size) if c2 is None else c2)
-        put(first[0], eye[first[0]])
-        put(first[0] + 1, flow_row[layer.top_flow][first[0]])
-        for a, b in zip(last[:-1], first[1:]):
-            put(a - 1, eye[a] - eye[b])
-            put(a, D1[a] - D1[b])
-            put(b, D2[a] - D2[b])
-            put(b + 1, g1[a] * D2[a] + D3[a] - g1[b] * D2[b] - D3[b],
-                g1[a] * eye[a] + D1[a] - g1[b] * eye[b] - D1[b])
-        put(last[-1] - 1, flow_row[layer.bottom_flow][last[-1]])
-        put(last[-1], eye[last[-1]])
-        self._phi_rows = np.array(rows)
-        self._phi_bc0 = np.array(bc0)
-        self._phi_bc2 = np.array(bc2)
-        # Theta: unknowns at the nodes inside the blocks; the block ends follow from the
-        # thermal conditions at the walls and continuity of Theta and Theta' at interfaces.
-        heat_row = {"temperature": eye, "flux": D1}
-        bc = [heat_row[layer.top_heat][first[0]], heat_row[layer.bottom_heat][last[-1]]]
-        for a, b in zip(last[:-1], first[1:]):
-            bc += [eye[a] - eye[b], D1[a] - D1[b]]
-        bc = np.array(bc)
-        ends = np.array([first[0], last[-1]] + [i for ab in zip(last[:-1], first[1:]) for i in ab])
-        inner = np.setdiff1d(np.arange(size), ends)
-        ext = np.zeros((size, inner.size))
-        ext[inner, np.arange(inner.size)] = 1.0
-        ext[ends] = -np.linalg.solve(bc[:, ends], bc[:, inner])
-        self._ext = ext                       # theta_full = ext @ theta_interior
-        self._inner = inner
+        self._L4 = np.eye(size)
+        self._phi_rows, self._phi_bc0, self._phi_bc2 = _phi_conditions(layer, (D1, D2, D3), g1,
+                                                                       first, last)
+        self._ext, self._inner = _theta_extension(layer, D1, first, last)  # Theta = ext @ inner
         self._D2 = D2
         rhs = np.diag(1.0 / eta)
         rhs[self._phi_rows] = 0.0
-        self._rhs = rhs @ ext                 # right side of (1) per unit k Ra Theta_interior
+        self._rhs = rhs @ self._ext           # right side of (1) per unit k Ra Theta_interior
 
     # -- operators --------------------------------------------------------------------
     def operators(self, k: float) -> tuple[np.ndarray, np.ndarray]:

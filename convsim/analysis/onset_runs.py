@@ -28,17 +28,16 @@ from __future__ import annotations
 
 import logging
 import math
-import multiprocessing
 import os
 import time
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import brentq
 
 from convsim.config import Config
 from convsim.errors import ConfigError
+from convsim.analysis.growth_rates import RateFit, critical_from_rates, fit_growth_rate
+from convsim.pool import process_pool
 
 __all__ = ["RateFit", "RunBracket", "DEFAULT_FACTORS", "fit_growth_rate",
            "critical_from_rates", "bracket_configs", "default_grid", "onset_from_config",
@@ -48,154 +47,6 @@ log = logging.getLogger(__name__)
 
 #: Rayleigh numbers of the bracket, as multiples of the eigen-solver's box Ra_c.
 DEFAULT_FACTORS = (0.8, 0.9, 1.0, 1.1, 1.25)
-
-
-# --------------------------------------------------------------------------------------
-# Fitting a growth rate
-# --------------------------------------------------------------------------------------
-
-@dataclass(frozen=True)
-class RateFit:
-    """The growth rate of one run, fitted over its linear phase.
-
-    Attributes
-    ----------
-    rate : float
-        s in ln vrms = c + s t, in kappa/d^2 (nan when no window was found).
-    stderr : float
-        Standard error of the slope from the fit residuals.
-    t_start, t_end : float
-        The fitting window (d^2/kappa).
-    samples : int
-        Series points inside the window.
-    status : str
-        'ok'; 'short' (fewer than ``min_samples`` points in the window: the rate is
-        a rough one); 'no-data' (no usable points).
-    """
-
-    rate: float
-    stderr: float
-    t_start: float
-    t_end: float
-    samples: int
-    status: str
-
-
-def fit_growth_rate(t, vrms, *, growth_limit: float = 1.0e3, rate_scale: float = 1.0,
-                    settle_tolerance: float = 1.0e-3, min_samples: int = 10) -> RateFit:
-    """Exponential growth (or decay) rate of the rms velocity over its linear phase.
-
-    Fits ln vrms(t) = c + s t by least squares.  The window
-
-    - ends before nonlinear saturation: at the last sample with
-      vrms <= growth_limit * vrms[0] (the perturbation has grown by at most that
-      factor, so it stays small when the run starts from a small one);
-    - starts once the initial transient has died away: at the first sample after
-      which the local log-slope d ln vrms / dt stays within
-      settle_tolerance * rate_scale of the slope over the later half of the window.
-
-    Parameters
-    ----------
-    t, vrms : array_like, shape (m,)
-        The run's time series (d^2/kappa; kappa/d).
-    growth_limit : float
-        Largest growth of vrms over its first value still taken as linear (> 1).
-    rate_scale : float
-        The natural rate of the problem (kappa/d^2), e.g. the diffusive decay rate
-        k^2 + pi^2 of the mode; the settling tolerance is relative to it.
-    settle_tolerance : float
-        Relative tolerance of the settled log-slope.
-    min_samples : int
-        Fewer points in the window give status 'short'.
-
-    Returns
-    -------
-    RateFit
-    """
-    t = np.asarray(t, dtype=float)
-    v = np.asarray(vrms, dtype=float)
-    ok = np.isfinite(t) & np.isfinite(v) & (v > 0.0)
-    t, v = t[ok], v[ok]
-    if t.size:                                # strictly increasing times only
-        later_than_all = np.concatenate([[True], t[1:] > np.maximum.accumulate(t)[:-1]])
-        t, v = t[later_than_all], v[later_than_all]
-    if t.size > 2:                            # drop slivers (a last step cut to the end time)
-        gaps = np.diff(t)
-        wide = np.concatenate([[True], gaps >= 1e-3 * np.median(gaps)])
-        t, v = t[wide], v[wide]
-    if t.size < 3:
-        return RateFit(math.nan, math.nan, math.nan, math.nan, int(t.size), "no-data")
-    above = np.nonzero(v > growth_limit * v[0])[0]
-    end = int(above[0]) if above.size else t.size          # exclusive
-    t, lv = t[:end], np.log(v[:end])
-    if t.size < 3:
-        return RateFit(math.nan, math.nan, math.nan, math.nan, int(t.size), "no-data")
-    slope = np.diff(lv) / np.diff(t)          # slope i joins samples i and i + 1
-    later = t >= t[0] + 0.5 * (t[-1] - t[0])
-    reference = np.polyfit(t[later], lv[later], 1)[0] if later.sum() >= 2 else slope[-1]
-    bad = np.nonzero(np.abs(slope - reference) > settle_tolerance * rate_scale)[0]
-    start = min(int(bad[-1]) + 1 if bad.size else 0, t.size - 2)
-    tw, lw = t[start:], lv[start:]
-    n = tw.size
-    coef, res, *_ = np.polyfit(tw, lw, 1, full=True)
-    rate = float(coef[0])
-    if n > 2:
-        sxx = float(np.sum((tw - tw.mean()) ** 2))
-        resid = float(res[0]) if np.size(res) else 0.0
-        stderr = math.sqrt(max(resid, 0.0) / (n - 2) / sxx) if sxx > 0 else math.nan
-    else:
-        stderr = math.nan
-    status = "ok" if n >= min_samples else "short"
-    return RateFit(rate, stderr, float(tw[0]), float(tw[-1]), int(n), status)
-
-
-# --------------------------------------------------------------------------------------
-# Where the rate crosses zero
-# --------------------------------------------------------------------------------------
-
-def critical_from_rates(rayleigh, rates) -> tuple[float, str]:
-    """The Rayleigh number where the growth rate s(Ra) crosses zero.
-
-    A least-squares polynomial s(Ra) of degree min(2, m - 1) through the m points;
-    its root inside the bracketing pair of points (the first sign change from
-    decay to growth), found by Brent's method.  Without a sign change the
-    straight-line fit through all points is extrapolated.
-
-    Parameters
-    ----------
-    rayleigh, rates : array_like, shape (m,), m >= 2
-        Ra and s (finite values only are used).
-
-    Returns
-    -------
-    (float, str)
-        Ra where s = 0 (nan if none), and how it was found: 'bracketed',
-        'extrapolated' or 'none'.
-    """
-    ra = np.asarray(rayleigh, dtype=float)
-    s = np.asarray(rates, dtype=float)
-    ok = np.isfinite(ra) & np.isfinite(s)
-    ra, s = ra[ok], s[ok]
-    order = np.argsort(ra)
-    ra, s = ra[order], s[order]
-    if ra.size < 2:
-        return math.nan, "none"
-    scale = float(np.mean(ra))
-    x = ra / scale
-    poly = np.polynomial.Polynomial.fit(x, s, min(2, ra.size - 1))
-    change = np.nonzero((s[:-1] < 0.0) & (s[1:] >= 0.0))[0]
-    if change.size:
-        i = int(change[0])
-        a, b = x[i], x[i + 1]
-        if poly(a) < 0.0 <= poly(b):
-            return float(brentq(poly, a, b, xtol=1e-14) * scale), "bracketed"
-        # the smooth fit disagrees in sign: interpolate the bracketing pair linearly
-        return float((a - s[i] * (b - a) / (s[i + 1] - s[i])) * scale), "bracketed"
-    line = np.polynomial.Polynomial.fit(x, s, 1).convert()
-    c0, c1 = line.coef if line.coef.size == 2 else (line.coef[0], 0.0)
-    if c1 <= 0.0:
-        return math.nan, "none"
-    return float(-c0 / c1 * scale), "extrapolated"
 
 
 # --------------------------------------------------------------------------------------
@@ -236,20 +87,11 @@ def _run_one(cfg: Config) -> dict:
                 vrms=np.asarray(result.series["vrms"]))
 
 
-def _one_thread_per_worker() -> None:
-    """Worker initializer: one BLAS thread each (the runs themselves are the parallelism)."""
-    from convsim.model.linsolve import limit_blas_threads
-    limit_blas_threads(1)
-
-
 def _run_all(configs, jobs: int) -> list[dict]:
     if jobs <= 1 or len(configs) == 1:
         return [_run_one(c) for c in configs]
     # fork where there is one: a spawned worker would re-run the caller's main script
-    methods = multiprocessing.get_all_start_methods()
-    ctx = multiprocessing.get_context("fork" if "fork" in methods else "spawn")
-    with ProcessPoolExecutor(max_workers=min(jobs, len(configs)), mp_context=ctx,
-                             initializer=_one_thread_per_worker) as pool:
+    with process_pool(min(jobs, len(configs)), start="fork-if-available") as pool:
         return list(pool.map(_run_one, configs))
 
 
@@ -422,10 +264,46 @@ def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=Non
     -------
     RunBracket
     """
-    from convsim.analysis.stability import StabilityProblem
-
     if onset is None:
         onset = onset_from_config(config)
+    plan = _plan_bracket(config, onset, factors, grid, amplitude, end_time, max_dt,
+                         growth_limit, richardson, jobs)
+    configs = []
+    for g in plan.grids:
+        configs += bracket_configs(config, plan.rayleigh, plan.mode, grid=g, amplitude=amplitude,
+                                   end_time=plan.end_time, max_dt=plan.max_dt)
+    t0 = time.perf_counter()
+    outputs = _run_all(configs, plan.jobs)
+    wall = time.perf_counter() - t0
+    log.info("onset runs: %d runs in %.2f s on %d workers", len(configs), wall, plan.jobs)
+    theory = _theory_rates(onset, plan)
+    common = dict(theory_rates=theory[0], theory_curve=theory[1], wall_seconds=wall,
+                  max_dt=float(min(plan.max_dt, config.numerics.max_dt)))
+    m = len(plan.rayleigh)
+    coarse = _assemble(plan, outputs[m:], plan.grids[1], common) if richardson else None
+    return _assemble(plan, outputs[:m], plan.grids[0], common, coarse)
+
+
+@dataclass(frozen=True)
+class _BracketPlan:
+    """The checked settings of a run bracket."""
+
+    box_rayleigh: float
+    mode: int
+    wavenumber: float
+    rayleigh: np.ndarray
+    grids: list
+    amplitude: float
+    growth_limit: float
+    rate_scale: float
+    end_time: float
+    max_dt: float
+    jobs: int
+
+
+def _plan_bracket(config, onset, factors, grid, amplitude, end_time, max_dt, growth_limit,
+                  richardson, jobs) -> _BracketPlan:
+    """Check the settings of ``run_bracket`` and fill in the defaults."""
     box_ra, mode, k = onset.box_critical_rayleigh, onset.box_mode, onset.box_wavenumber
     if mode is None or not math.isfinite(box_ra):
         raise ConfigError("onset: the eigen-solver finds no instability in this box, so there "
@@ -440,9 +318,7 @@ def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=Non
     max_dt = 0.02 / rate_scale if max_dt is None else max_dt
     _check_positive("end_time", end_time)
     _check_positive("max_dt", max_dt)
-    if grid is None:
-        grid = default_grid(config.domain.aspect)
-    nx, nz = (int(g) for g in grid)
+    nx, nz = (int(g) for g in (default_grid(config.domain.aspect) if grid is None else grid))
     if not (4 <= nx <= 4096 and 4 <= nz <= 4096):
         raise ConfigError(f"grid = {grid!r}: expected (nx, nz) with 4 <= nx, nz <= 4096")
     if jobs is None:
@@ -450,58 +326,53 @@ def run_bracket(config: Config, onset=None, *, factors=DEFAULT_FACTORS, grid=Non
             else (os.cpu_count() or 1)
     if isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1:
         raise ConfigError(f"jobs = {jobs!r}: expected a whole number >= 1")
-    rayleigh = np.array(sorted(box_ra * f for f in factors))
     grids = [(nx, nz)]
     if richardson:
         if nx % 2 or nz % 2 or nz < 16:
             raise ConfigError(f"grid = {nx}x{nz}: Richardson extrapolation needs even nx and "
                               "nz, nz >= 16 (the coarse grid halves both)")
         grids.append((nx // 2, nz // 2))
-    configs = []
-    for g in grids:
-        configs += bracket_configs(config, rayleigh, mode, grid=g, amplitude=amplitude,
-                                   end_time=end_time, max_dt=max_dt)
-    t0 = time.perf_counter()
-    outputs = _run_all(configs, jobs)
-    wall = time.perf_counter() - t0
-    log.info("onset runs: %d runs in %.2f s on %d workers", len(configs), wall, jobs)
+    return _BracketPlan(box_ra, int(mode), float(k), np.array(sorted(box_ra * f for f in factors)),
+                        grids, float(amplitude), float(growth_limit), rate_scale, float(end_time),
+                        float(max_dt), jobs)
 
+
+def _theory_rates(onset, plan: _BracketPlan):
+    """The eigen-solver's growth rate at each Ra of the plan, and a curve over the range."""
+    from convsim.analysis.stability import StabilityProblem
     problem = StabilityProblem(onset.layer, onset.points)
 
     def theory(ra):
-        return float(np.max(problem.growth_rates(float(ra), k).real))
-    theory_rates = np.array([theory(ra) for ra in rayleigh])
-    lo, hi = rayleigh[0], rayleigh[-1]
+        return float(np.max(problem.growth_rates(float(ra), plan.wavenumber).real))
+    lo, hi = plan.rayleigh[0], plan.rayleigh[-1]
     pad = 0.05 * (hi - lo)
     curve_ra = np.linspace(lo - pad, hi + pad, 41)
-    curve = (curve_ra, np.array([theory(ra) for ra in curve_ra]))
+    return (np.array([theory(ra) for ra in plan.rayleigh]),
+            (curve_ra, np.array([theory(ra) for ra in curve_ra])))
 
-    def assemble(chunk, g, coarse=None):
-        fits = tuple(fit_growth_rate(o["time"], o["vrms"], growth_limit=growth_limit,
-                                     rate_scale=rate_scale) for o in chunk)
-        for f, o, ra in zip(fits, chunk, rayleigh):
-            if o["status"] != "end-time":
-                log.warning("onset run at Ra = %.6g ended '%s': %s", ra, o["status"],
-                            o["message"])
-            if f.status != "ok":
-                log.warning("onset run at Ra = %.6g: rate fit '%s' (%d samples in the "
-                            "linear phase)", ra, f.status, f.samples)
-        rates = np.array([f.rate for f in fits])
-        ra_c, method = critical_from_rates(rayleigh, rates)
-        extra = {}
-        if coarse is not None:
-            ra_x = (4.0 * ra_c - coarse.critical_rayleigh) / 3.0
-            extra = dict(coarse=coarse, extrapolated_rayleigh=ra_x,
-                         extrapolated_difference=ra_x / box_ra - 1.0)
-        return RunBracket(rayleigh=rayleigh, rates=rates,
-                          stderr=np.array([f.stderr for f in fits]), theory_rates=theory_rates,
-                          fits=fits, run_status=tuple(o["status"] for o in chunk),
-                          critical_rayleigh=ra_c, method=method, eigen_critical_rayleigh=box_ra,
-                          relative_difference=ra_c / box_ra - 1.0, mode=int(mode),
-                          wavenumber=float(k), grid=g, amplitude=float(amplitude),
-                          end_time=float(end_time), max_dt=float(min(max_dt,
-                                                                      config.numerics.max_dt)),
-                          theory_curve=curve, wall_seconds=wall, **extra)
-    m = len(rayleigh)
-    coarse = assemble(outputs[m:], grids[1]) if richardson else None
-    return assemble(outputs[:m], grids[0], coarse)
+
+def _assemble(plan: _BracketPlan, chunk, grid, common: dict, coarse=None) -> RunBracket:
+    """The bracket of one grid from its runs' outputs (``coarse``: for the extrapolation)."""
+    fits = tuple(fit_growth_rate(o["time"], o["vrms"], growth_limit=plan.growth_limit,
+                                 rate_scale=plan.rate_scale) for o in chunk)
+    for f, o, ra in zip(fits, chunk, plan.rayleigh):
+        if o["status"] != "end-time":
+            log.warning("onset run at Ra = %.6g ended '%s': %s", ra, o["status"], o["message"])
+        if f.status != "ok":
+            log.warning("onset run at Ra = %.6g: rate fit '%s' (%d samples in the linear phase)",
+                        ra, f.status, f.samples)
+    rates = np.array([f.rate for f in fits])
+    ra_c, method = critical_from_rates(plan.rayleigh, rates)
+    box_ra = plan.box_rayleigh
+    extra = {}
+    if coarse is not None:
+        ra_x = (4.0 * ra_c - coarse.critical_rayleigh) / 3.0
+        extra = dict(coarse=coarse, extrapolated_rayleigh=ra_x,
+                     extrapolated_difference=ra_x / box_ra - 1.0)
+    return RunBracket(rayleigh=plan.rayleigh, rates=rates,
+                      stderr=np.array([f.stderr for f in fits]), fits=fits,
+                      run_status=tuple(o["status"] for o in chunk), critical_rayleigh=ra_c,
+                      method=method, eigen_critical_rayleigh=box_ra,
+                      relative_difference=ra_c / box_ra - 1.0, mode=plan.mode,
+                      wavenumber=plan.wavenumber, grid=grid, amplitude=plan.amplitude,
+                      end_time=plan.end_time, **common, **extra)

@@ -50,6 +50,7 @@ from typing import Callable
 import numpy as np
 from scipy.optimize import brentq
 
+from convsim.model.choices import SIDE_CONDITIONS
 from convsim.analysis._stability_operator import (RA_INFINITE, Layer, StabilityProblem, chebyshev,
                                   conductive_gradient, conductive_profile, default_points)
 from convsim.model import rheology
@@ -64,7 +65,6 @@ __all__ = [
 
 log = logging.getLogger(__name__)
 
-SIDE_CONDITIONS = ("reflecting", "periodic")
 
 
 # --------------------------------------------------------------------------------------

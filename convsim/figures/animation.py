@@ -16,6 +16,7 @@ from convsim.figures import style
 from convsim.errors import ConfigError
 from convsim.figures.fields import _field_size, draw_streamlines, draw_temperature
 from convsim.figures.presentation import presentation_for
+from convsim.files.atomic import atomic_path
 from convsim.files.runfile import check_writable, iter_fields, read_run
 
 __all__ = ["animate_run", "animation_writer", "default_animation_path"]
@@ -87,8 +88,8 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
         frames = iter_fields(path, ("temperature", "streamfunction"))
         if progress is not None:
             frames = progress(frames, count)
-        part = output.with_name(output.name + ".part" + output.suffix)
-        with writer.saving(fig, str(part), dpi):
+        with atomic_path(output, suffix=output.suffix) as part, \
+                writer.saving(fig, str(part), dpi):
             for index, t, f in frames:
                 mesh.set_array(pres.temperature(f["temperature"]))
                 for artist in list(ax.collections):
@@ -97,5 +98,4 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
                 draw_streamlines(ax, run, pres, psi=f["streamfunction"])
                 ax.set_title(pres.time_text(t) + f"  (snapshot {index})", loc="left")
                 writer.grab_frame()
-    part.replace(output)
     return output

@@ -17,7 +17,7 @@ from convsim.figures import style
 __all__ = ["QUANTITIES", "convergence_plot", "cost_plot", "convergence_figure", "cost_figure"]
 
 #: The quantities compared with published values, with their legend labels.
-QUANTITIES = {"nusselt": "Nu", "vrms": r"$v_\mathrm{rms}$", "q1": "$q_1$", "q2": "$q_2$"}
+QUANTITIES = {"nusselt_top": "Nu", "vrms": r"$v_\mathrm{rms}$", "q1": "$q_1$", "q2": "$q_2$"}
 _FORMATS = ("png", "pdf")
 _HEIGHT = 2.6          # [in] of the panels' row
 _YLABEL = "|relative error| vs published"
@@ -90,7 +90,7 @@ def convergence_plot(bench: dict) -> Figure:
                 if xo:                                   # not steady: open markers
                     ax.loglog(xo, yo, ls="none", marker=marker, ms=6, mfc="white", color=color,
                               label="not steady (open)")
-            x, y = _finite_positive(hs, [r["relative_error"].get("nusselt") for r in rows])
+            x, y = _finite_positive(hs, [r["relative_error"].get("nusselt_top") for r in rows])
             if x:
                 h0, e0 = min(zip(x, y))
                 hmax = max(x)
@@ -109,7 +109,7 @@ def cost_plot(bench: dict) -> Figure:
     """
     with style.context():
         fig, axes = _figure(2)
-        for ax, q in zip(axes, ("nusselt", "vrms")):
+        for ax, q in zip(axes, ("nusselt_top", "vrms")):
             for i, case in enumerate(bench["cases"]):
                 rows = case["rows"]
                 x, y = _finite_positive([r["wall_seconds"] for r in rows],

@@ -46,7 +46,6 @@ from __future__ import annotations
 
 import logging
 import math
-import os
 from pathlib import Path
 
 import matplotlib
@@ -54,6 +53,8 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib import ticker
 from matplotlib.figure import Figure
+
+from convsim.files.atomic import atomic_path
 
 __all__ = ["COLUMN_WIDTH", "PAGE_WIDTH", "TEMPERATURE_CMAP", "VISCOSITY_CMAP", "DIVERGING_CMAP",
            "LINE_COLORS", "LINE_STYLES", "MARKERS", "GUIDE_COLOR", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
@@ -296,10 +297,8 @@ def save_file(fig: Figure, path: str | Path, *, title: str = "",
     if fmt not in FORMATS:
         raise ValueError(f"figure path {str(path)!r}: suffix {path.suffix!r} is not one of "
                          f"{', '.join('.' + f for f in FORMATS)}")
-    path.parent.mkdir(parents=True, exist_ok=True)
-    (tmp,) = save(fig, path.with_name(f"{path.name}.part{os.getpid()}"), (fmt,), title=title,
-                  creator=creator)
-    tmp.replace(path)
+    with atomic_path(path, suffix=f".{fmt}") as tmp:
+        save(fig, tmp.with_suffix(""), (fmt,), title=title, creator=creator)
     return path
 
 

@@ -7,36 +7,17 @@ strings, lists and dicts; the CLI prints them as text or JSON.
 
 from __future__ import annotations
 
-import math
 import tomllib
 from pathlib import Path
 
-import numpy as np
 
 from convsim.errors import SnapshotError
+from convsim.files.jsonio import plain
 from convsim.files.runfile import FIELDS, SERIES, open_run_file, read_statistics
 
 __all__ = ["describe_run", "format_info"]
 
 _PROVENANCE = ("title", "source", "convsim_version", "created", "Conventions", "wall_seconds")
-
-
-def _plain(value):
-    """numpy scalars and arrays as plain Python values (NaN and inf as None, for JSON)."""
-    if isinstance(value, bytes):
-        return value.decode()
-    if isinstance(value, np.ndarray):
-        return [_plain(v) for v in value.tolist()]
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    if isinstance(value, (np.bool_, bool)):
-        return bool(value)
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (np.floating, float)):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    return value
 
 
 def describe_run(path: str | Path) -> dict:
@@ -60,17 +41,17 @@ def describe_run(path: str | Path) -> dict:
         raise SnapshotError(f"run file {str(path)!r}: not found")
     try:
         with open_run_file(path) as f:
-            attrs = {k: _plain(v) for k, v in f.attrs.items()}
+            attrs = {k: plain(v) for k, v in f.attrs.items()}
             x_node, z_node = f["x_node"][:], f["z_node"][:]
             times, steps = f["time"][:], f["step"][:]
             fields = {name: {"dims": ["time"] + list(FIELDS[name][0]),
                              "shape": list(f[name].shape),
-                             "units": _plain(f[name].attrs.get("units")),
-                             "long_name": _plain(f[name].attrs.get("long_name"))}
+                             "units": plain(f[name].attrs.get("units")),
+                             "long_name": plain(f[name].attrs.get("long_name"))}
                       for name in FIELDS if name in f}
             records = int(f["series_time"].shape[0])
-            last = {name: _plain(f[name][-1]) for name in SERIES if records and name in f}
-            first_time = _plain(f["series_time"][0]) if records else None
+            last = {name: plain(f[name][-1]) for name in SERIES if records and name in f}
+            first_time = plain(f["series_time"][0]) if records else None
             statistics = read_statistics(f)
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
@@ -91,20 +72,20 @@ def describe_run(path: str | Path) -> dict:
                  "xdmf": str(sidecar) if sidecar.is_file() else None},
         "status": attrs.get("status"),
         "provenance": {k: attrs.get(k) for k in _PROVENANCE},
-        "grid": {"nx": nx, "nz": nz, "aspect": _plain(x_node[-1] - x_node[0]),
+        "grid": {"nx": nx, "nz": nz, "aspect": plain(x_node[-1] - x_node[0]),
                  "periodic": bool(attrs.get("periodic", 0)),
-                 "dx": _plain((x_node[-1] - x_node[0]) / nx),
-                 "dz": _plain((z_node[-1] - z_node[0]) / nz)},
-        "snapshots": {"count": int(len(times)), "times": _plain(times), "steps": _plain(steps)},
+                 "dx": plain((x_node[-1] - x_node[0]) / nx),
+                 "dz": plain((z_node[-1] - z_node[0]) / nz)},
+        "snapshots": {"count": int(len(times)), "times": plain(times), "steps": plain(steps)},
         "series": {"records": records, "first_time": first_time,
                    "last_time": last.get("series_time"), "names": list(SERIES)},
         "fields": fields,
         "final": final,
         "settled": statistics.get("settled"),
-        "statistics": {k: {p: _plain(v) for p, v in e.items()}
+        "statistics": {k: {p: plain(v) for p, v in e.items()}
                        for k, e in statistics.get("statistics", {}).items()},
-        "lid": {k: _plain(v) for k, v in statistics.get("lid", {}).items()},
-        "heat_balance": {k: _plain(v) for k, v in statistics.get("heat_balance", {}).items()},
+        "lid": {k: plain(v) for k, v in statistics.get("lid", {}).items()},
+        "heat_balance": {k: plain(v) for k, v in statistics.get("heat_balance", {}).items()},
         "config": config,
     }
 

@@ -33,6 +33,7 @@ from pathlib import Path
 
 
 from convsim.errors import SnapshotError
+from convsim.files.atomic import atomic_write_text
 from convsim.files.runfile import check_writable, open_run_file
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
@@ -128,7 +129,5 @@ def write_xdmf(run_path: str | Path, output: str | Path | None = None, *,
                             f"{str(run_path)!r} (the data are referenced by relative path)")
     text = xdmf_text(run_path)
     check_writable(output, overwrite)
-    part = output.with_name(output.name + ".part")
-    part.write_text(text, encoding="utf-8")
-    part.replace(output)
+    atomic_write_text(output, text)
     return output

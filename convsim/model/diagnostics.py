@@ -36,8 +36,8 @@ def wall_temperatures(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tuple
     """Temperature on the bottom and top walls, each (nx,): imposed, or extrapolated (fixed flux)."""
     dz = grid.dz
     out = []
-    for kind, value, t1, t2, sign in ((bc.bottom_kind, bc.bottom_value, T[0], T[1], 1.0),
-                                      (bc.top_kind, bc.top_value, T[-1], T[-2], -1.0)):
+    for kind, value, t1, t2, sign in ((bc.bottom_heat, bc.bottom_value, T[0], T[1], 1.0),
+                                      (bc.top_heat, bc.top_value, T[-1], T[-2], -1.0)):
         if kind == "temperature":
             out.append(np.full(grid.nx, value))
         else:  # quadratic through the two cells with slope b = dT/dn (n: distance from the wall)

@@ -26,28 +26,61 @@ import numpy as np
 import scipy.fft as sfft
 
 from convsim.model import kernels
+from convsim.model.choices import THERMAL_CONDITIONS
 from convsim.model.grid import Grid
 
-__all__ = ["ThermalBoundaries", "pad_temperature", "advection", "DiffusionSolver",
+__all__ = ["ThermalBoundaries", "conductive_coefficients", "conductive_profile",
+           "pad_temperature", "advection", "DiffusionSolver",
            "boundary_heat_flux", "THERMAL_CONDITIONS", "LIMITERS"]
 
-THERMAL_CONDITIONS = ("temperature", "flux")
 LIMITERS = tuple(kernels.LIMITER_CODES)
 
 
 @dataclass(frozen=True)
 class ThermalBoundaries:
-    """Thermal conditions: kind 'temperature' (value = T) or 'flux' (value = -dT/dz)."""
+    """Thermal conditions at z = 1 (top) and z = 0 (bottom).
 
-    top_kind: str = "temperature"
+    ``top_heat``, ``bottom_heat``: 'temperature' (value = T) or 'flux' (value = the
+    upward heat flux -dT/dz); the same words as the config's [boundaries] keys and
+    the onset solver's ``Layer``.
+    """
+
+    top_heat: str = "temperature"
     top_value: float = 0.0
-    bottom_kind: str = "temperature"
+    bottom_heat: str = "temperature"
     bottom_value: float = 1.0
 
     def __post_init__(self):
-        for kind in (self.top_kind, self.bottom_kind):
+        for kind in (self.top_heat, self.bottom_heat):
             if kind not in THERMAL_CONDITIONS:
                 raise ValueError(f"thermal condition {kind!r}: expected one of {THERMAL_CONDITIONS}")
+
+
+def conductive_coefficients(top_heat: str, top_value: float, bottom_heat: str,
+                            bottom_value: float, heating: float) -> tuple[float, float]:
+    """(T0, s) of the steady conductive profile T(z) = T0 + s z - H z^2 / 2.
+
+    It solves T'' = -H on 0 <= z <= 1 with each wall at a fixed temperature
+    (value = T) or a fixed upward heat flux (value = q = -dT/dz); at least one wall
+    must fix the temperature.  Both fixed: T(0) = Tb, T(1) = Tt.  Flux at the top:
+    T(0) = Tb, -T'(1) = q.  Flux at the bottom: -T'(0) = q, T(1) = Tt.
+    """
+    H = heating
+    if bottom_heat == "temperature" and top_heat == "temperature":
+        return bottom_value, top_value - bottom_value + 0.5 * H
+    if bottom_heat == "temperature":
+        return bottom_value, H - top_value
+    slope = -bottom_value
+    return top_value - slope + 0.5 * H, slope
+
+
+def conductive_profile(z: np.ndarray, bc: ThermalBoundaries, heating: float) -> np.ndarray:
+    """The steady conductive temperature T(z) = T0 + s z - H z^2 / 2 at heights z
+    (see ``conductive_coefficients``), in units of the temperature contrast."""
+    t0, slope = conductive_coefficients(bc.top_heat, bc.top_value, bc.bottom_heat,
+                                        bc.bottom_value, heating)
+    z = np.asarray(z, dtype=float)
+    return t0 + slope * z - 0.5 * heating * z * z
 
 
 def pad_temperature(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> np.ndarray:
@@ -62,8 +95,8 @@ def pad_temperature(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> np.ndar
     p[2:-2, 2:-2] = T
     dz = grid.dz
     for (g_near, g_far, c_near, c_far, kind, value, sign) in (
-            (1, 0, 2, 3, bc.bottom_kind, bc.bottom_value, +1.0),
-            (nz + 2, nz + 3, nz + 1, nz, bc.top_kind, bc.top_value, -1.0)):
+            (1, 0, 2, 3, bc.bottom_heat, bc.bottom_value, +1.0),
+            (nz + 2, nz + 3, nz + 1, nz, bc.top_heat, bc.top_value, -1.0)):
         if kind == "temperature":
             p[g_near, 2:-2] = 2.0 * value - p[c_near, 2:-2]
             p[g_far, 2:-2] = 2.0 * value - p[c_far, 2:-2]
@@ -100,11 +133,11 @@ def boundary_heat_flux(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tupl
     These are the fluxes the finite-volume scheme itself uses, so they close the
     heat budget exactly.
     """
-    if bc.bottom_kind == "temperature":
+    if bc.bottom_heat == "temperature":
         bottom = -(T[0] - bc.bottom_value) / (0.5 * grid.dz)
     else:
         bottom = np.full(grid.nx, bc.bottom_value)
-    if bc.top_kind == "temperature":
+    if bc.top_heat == "temperature":
         top = -(bc.top_value - T[-1]) / (0.5 * grid.dz)
     else:
         top = np.full(grid.nx, bc.top_value)
@@ -124,13 +157,13 @@ class DiffusionSolver:
         kz = (np.diag(np.full(nz - 1, 1.0), -1) + np.diag(np.full(nz - 1, 1.0), 1)
               - 2.0 * np.eye(nz)) / dz ** 2
         g = np.zeros(nz)
-        if bc.bottom_kind == "temperature":
+        if bc.bottom_heat == "temperature":
             kz[0, 0] = -3.0 / dz ** 2
             g[0] = 2.0 * bc.bottom_value / dz ** 2
         else:
             kz[0, 0] = -1.0 / dz ** 2
             g[0] = bc.bottom_value / dz
-        if bc.top_kind == "temperature":
+        if bc.top_heat == "temperature":
             kz[-1, -1] = -3.0 / dz ** 2
             g[-1] = 2.0 * bc.top_value / dz ** 2
         else:

@@ -25,6 +25,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as sla
 
 from convsim.errors import SolverError
+from convsim.model.choices import FACTOR_REUSE
 
 __all__ = ["FACTORIZERS", "limit_blas_threads", "available_factorizers", "make_factorizer", "solve_spd",
            "LaggedFactorSolver", "SolveReport"]
@@ -168,8 +169,9 @@ class LaggedFactorSolver:
 
     def __init__(self, factorizer, policy: str = "adaptive", rtol: float = 1e-10,
                  max_iterations: int = 6):
-        if policy not in ("adaptive", "always"):
-            raise SolverError(f"factor_reuse = {policy!r}: allowed 'adaptive', 'always'")
+        if policy not in FACTOR_REUSE:
+            raise SolverError(f"factor_reuse = {policy!r}: allowed "
+                              + ", ".join(repr(c) for c in FACTOR_REUSE))
         self.factorizer, self.policy = factorizer, policy
         self.rtol, self.max_iterations = rtol, max_iterations
         self.factored_weights = None     # the viscosity weights of the current factor

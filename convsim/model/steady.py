@@ -58,7 +58,7 @@ def steady_residual(model, T: np.ndarray, psi_guess=None):
         psi, _ = model.solve_flow(T, psi_guess)
     except ArithmeticError:
         return np.full_like(T, np.nan), psi_guess
-    return model.tendency(T, psi) + model.diffusion.apply(T), psi
+    return model.explicit_term(T, psi) + model.diffusion.apply(T), psi
 
 
 def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
@@ -88,70 +88,87 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
     -------
     T, psi, NewtonReport
     """
-    K = diffusion_matrix(model.grid, model.thermal)
-    identity = sp.identity(K.shape[0], format="csc")
-    shape = T0.shape
+    newton = _PseudoTransient(model, T0.shape, gmres_restart)
     T, psi = T0.copy(), psi0
     F, psi = steady_residual(model, T, psi)
-    evaluations = 1
-    history = []
     fmax = float(np.abs(F).max())
-    fnorm = float(np.linalg.norm(F))
     delta = delta0 if delta0 is not None else FIRST_DELTA_STEPS * model.courant_dt(psi)
     for it in range(1, max_iterations + 1):
         if fmax <= tolerance:
-            return T, psi, NewtonReport(True, it - 1, evaluations, fmax, history)
+            return T, psi, NewtonReport(True, it - 1, newton.evaluations, fmax, newton.history)
         if not np.isfinite(fmax):
             break
+        step = newton.step(T, delta)
+        if step is None:
+            log.info("newton: no acceptable pseudo-time step at iteration %d", it)
+            break
+        T, F, psi, delta, info = step
+        fmax = float(np.abs(F).max())
+        newton.history.append(fmax)
+        log.info("newton %d: max|F| = %.3e, next pseudo-time step %.3g (gmres info %d)",
+                 it, fmax, delta, info)
+    converged = bool(fmax <= tolerance)
+    return T, psi, NewtonReport(converged, len(newton.history), newton.evaluations, fmax,
+                                newton.history)
+
+
+class _PseudoTransient:
+    """The pieces of one pseudo-transient Newton-Krylov iteration (see ``newton_steady``)."""
+
+    def __init__(self, model, shape, gmres_restart: int):
+        self.model, self.shape, self.gmres_restart = model, shape, gmres_restart
+        self.K = diffusion_matrix(model.grid, model.thermal)
+        self.identity = sp.identity(self.K.shape[0], format="csc")
+        self.evaluations = 1            # the residual at the start
+        self.history: list = []
+
+    def _linearise(self, T):
+        """F(T) (flat), the flow of T, the Jacobian-vector product and the local part
+        K - C(u) of the Jacobian (the preconditioner)."""
+        model, K = self.model, self.K
         psi, dflow = model.linearised_flow(T)
-        base = model.tendency(T, psi)
-        F = base + model.diffusion.apply(T)
+        base = model.explicit_term(T, psi)
+        f = (base + model.diffusion.apply(T)).ravel()
         u, w = face_velocities(model.grid, psi)
         local = (K - upwind_matrix(model.grid, u, w)).tocsc()
-        f = F.ravel()
-        fnorm = float(np.linalg.norm(f))
 
-        def jv(v, T=T, psi=psi, base=base):
-            nonlocal evaluations
-            vv = v.reshape(shape)
+        def jv(v):
+            vv = v.reshape(self.shape)
             vn = float(np.abs(vv).max())
             if vn == 0.0:
                 return np.zeros_like(v)
             eps = 1e-7 * (1.0 + float(np.abs(T).max())) / vn
-            moved = model.tendency(T + eps * vv, psi + eps * dflow(vv))
-            evaluations += 1
+            moved = model.explicit_term(T + eps * vv, psi + eps * dflow(vv))
+            self.evaluations += 1
             return ((moved - base) / eps).ravel() + K @ v
+        return f, psi, jv, local
 
+    def _residual(self, T, psi):
+        F, psi = steady_residual(self.model, T, psi)
+        self.evaluations += 1
+        return F, psi, float(np.linalg.norm(F))
+
+    def step(self, T, delta: float):
+        """One accepted pseudo-time step from T: (T, F, psi, next delta, gmres info), or None
+        when six reductions of delta found no acceptable step."""
+        f, psi, jv, local = self._linearise(T)
+        fnorm = float(np.linalg.norm(f))
         n = f.size
         for _attempt in range(6):
-            lu = sla.splu((identity / delta - local).tocsc())
+            lu = sla.splu((self.identity / delta - local).tocsc())
             A = sla.LinearOperator((n, n), matvec=lambda v, d=delta: v / d - jv(v))
             M = sla.LinearOperator((n, n), matvec=lu.solve)
-            d, info = sla.gmres(A, f, rtol=1e-3, atol=0.0, restart=gmres_restart,
+            d, info = sla.gmres(A, f, rtol=1e-3, atol=0.0, restart=self.gmres_restart,
                                 maxiter=2, M=M)
-            T_try = T + d.reshape(shape)
-            F_try, psi_try = steady_residual(model, T_try, psi)
-            evaluations += 1
-            norm_try = float(np.linalg.norm(F_try))
+            d = d.reshape(self.shape)
+            T_try, (F_try, psi_try, norm_try) = T + d, self._residual(T + d, psi)
             if not norm_try <= fnorm:       # also try half the step; keep the better one
-                T_half = T + 0.5 * d.reshape(shape)
-                F_half, psi_half = steady_residual(model, T_half, psi)
-                evaluations += 1
-                norm_half = float(np.linalg.norm(F_half))
+                F_half, psi_half, norm_half = self._residual(T + 0.5 * d, psi)
                 if norm_half < norm_try:
-                    T_try, F_try, psi_try, norm_try = T_half, F_half, psi_half, norm_half
+                    T_try, F_try, psi_try, norm_try = T + 0.5 * d, F_half, psi_half, norm_half
             if np.isfinite(norm_try) and norm_try <= ACCEPT_GROWTH * fnorm:
-                break
+                ratio = fnorm / max(norm_try, 1e-300)
+                delta = min(delta * (max(ratio, MIN_GROWTH) if ratio > 1.0 else ratio), 1e12)
+                return T_try, F_try, psi_try, delta, info
             delta *= 0.25
-        else:
-            log.info("newton: no acceptable pseudo-time step at iteration %d", it)
-            break
-        ratio = fnorm / max(norm_try, 1e-300)
-        delta = min(delta * (max(ratio, MIN_GROWTH) if ratio > 1.0 else ratio), 1e12)
-        T, F, psi, fnorm = T_try, F_try, psi_try, norm_try
-        fmax = float(np.abs(F).max())
-        history.append(fmax)
-        log.info("newton %d: max|F| = %.3e, next pseudo-time step %.3g (gmres info %d)",
-                 it, fmax, delta, info)
-    converged = bool(fmax <= tolerance)
-    return T, psi, NewtonReport(converged, len(history), evaluations, fmax, history)
+        return None

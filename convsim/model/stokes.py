@@ -40,12 +40,11 @@ import numpy as np
 import scipy.fft as sfft
 import scipy.sparse as sp
 
+from convsim.model.choices import FLOW_CONDITIONS
 from convsim.model.grid import Grid
 
 __all__ = ["StokesOperator", "TransformSolver", "buoyancy_rhs", "face_velocities",
            "node_velocities"]
-
-FLOW_CONDITIONS = ("free-slip", "no-slip")
 
 
 @dataclass(frozen=True)

@@ -2,14 +2,15 @@
 
 One step, from the state (T^n, psi^n) at time t_n (psi^n already solved from T^n):
 
-1. explicit tendency N^n = -div(u^n T^n) + H (``energy.advection``);
+1. explicit term N^n = -div(u^n T^n) + H (``energy.advection``; the tendency dT/dt
+   is the whole right side, its largest value ``StepReport.tendency_max``);
 2. dt from the Courant number of u^n, capped by ``max_dt`` and by a growth of at
    most 25 % over the previous step;
 3. implicit-explicit update (diffusion implicit, advection and heating explicit).
-   Second-order SBDF with step ratio w = dt_n / dt_{n-1}:
+   Second-order SBDF with step ratio r = dt_n / dt_{n-1} (w is the vertical velocity):
 
-       (1+2w)/(1+w) T^{n+1} - (1+w) T^n + w^2/(1+w) T^{n-1}
-           = dt_n [ (1+w) N^n - w N^{n-1} + lap T^{n+1} ],
+       (1+2r)/(1+r) T^{n+1} - (1+r) T^n + r^2/(1+r) T^{n-1}
+           = dt_n [ (1+r) N^n - r N^{n-1} + lap T^{n+1} ],
 
    or first-order IMEX Euler, T^{n+1} - T^n = dt (N^n + lap T^{n+1}) (also the
    first step of SBDF2).  Both have the coefficients of T summing to zero and the
@@ -52,7 +53,7 @@ class ModelState:
     temperature: np.ndarray                 # (nz, nx) T^n
     psi: np.ndarray                         # (nz + 1, nx + 1) streamfunction of T^n
     previous_temperature: np.ndarray | None = None   # T^{n-1}
-    previous_tendency: np.ndarray | None = None      # N^{n-1}
+    previous_tendency: np.ndarray | None = None      # N^{n-1}, the explicit term
     previous_dt: float = 0.0
     factor_weights: np.ndarray | None = None         # viscosity weights of the Stokes factor
 
@@ -201,7 +202,7 @@ class Model:
         return ModelState(time=time_, step=step, temperature=T.copy(), psi=psi,
                           factor_weights=self.factor_weights)
 
-    def tendency(self, T: np.ndarray, psi: np.ndarray) -> np.ndarray:
+    def explicit_term(self, T: np.ndarray, psi: np.ndarray) -> np.ndarray:
         """Explicit part N = -div(u T) + H, shape (nz, nx)."""
         u, w = face_velocities(self.grid, psi)
         return advection(self.grid, T, u, w, self.thermal, self.limiter) + self.internal_heating
@@ -218,7 +219,7 @@ class Model:
         timings = {}
         t0 = time.perf_counter()
         T, psi = state.temperature, state.psi
-        N = self.tendency(T, psi)
+        N = self.explicit_term(T, psi)
         timings["advect"] = time.perf_counter() - t0
         dt = self.courant_dt(psi)
         if state.previous_dt > 0.0:
@@ -231,10 +232,10 @@ class Model:
             t0 = time.perf_counter()
             # a0 T^{n+1} - a1 T^n + a2 T^{n-1} = dt (explicit part + lap T^{n+1})
             if use_sbdf2:
-                w = dt / state.previous_dt
-                a0, a1, a2 = (1.0 + 2.0 * w) / (1.0 + w), 1.0 + w, w * w / (1.0 + w)
+                r = dt / state.previous_dt
+                a0, a1, a2 = (1.0 + 2.0 * r) / (1.0 + r), 1.0 + r, r * r / (1.0 + r)
                 rhs = (a1 * T - a2 * state.previous_temperature
-                       + dt * ((1.0 + w) * N - w * state.previous_tendency))
+                       + dt * ((1.0 + r) * N - r * state.previous_tendency))
             else:
                 a0, a1, a2 = 1.0, 1.0, 0.0
                 rhs = T + dt * N

@@ -24,9 +24,9 @@ and viscosity profiles.  From the buffer:
   <Nu_top> = <Nu_bottom> + H, within their intervals.
 
 The mean-precision stop rule (``precision_met``) asks for a statistically
-steady series and both Nu means known to a relative half-width of ``stop.mean_precision``; it is
-checked every ``CHECK_EVERY`` steps so that it costs nothing per step and a
-restart takes the same decisions.
+steady series and both Nu means known to a relative half-width of ``stop.mean_precision``; the
+rule (``run.stops.MeanPrecision``) asks every 100 steps, so that it costs
+nothing per step and a restart takes the same decisions.
 """
 
 from __future__ import annotations
@@ -39,8 +39,8 @@ from convsim.model import diagnostics as diag
 from convsim.model import lid
 from convsim.run import statistics as st
 
-__all__ = ["RunAverages", "QUANTITIES", "SETTLED_WORDS", "CHECK_EVERY", "step_quantities",
-           "run_statistics", "lid_report", "heat_balance"]
+__all__ = ["RunAverages", "QUANTITIES", "SETTLED_WORDS", "step_quantities",
+           "run_statistics", "lid_report", "heat_balance", "finish_statistics", "wall_contrast"]
 
 #: scalar quantities averaged over time, with their long names (units: see README)
 QUANTITIES = {
@@ -54,7 +54,6 @@ QUANTITIES = {
 }
 SPIN_UP_COLUMNS = ("nusselt_top", "nusselt_bottom", "vrms", "mean_temperature")
 SETTLED_WORDS = ("steady", "statistically-steady", "unfinished")
-CHECK_EVERY = 100
 CAPACITY = 2048
 
 
@@ -107,7 +106,7 @@ class RunAverages:
         """Forget everything (a new continuation stage starts)."""
         self.buffer.clear()
 
-    def state(self) -> dict:
+    def restart_state(self) -> dict:
         """Plain data for the restart group (arrays and numbers)."""
         s = self.buffer.state()
         return dict(averages_rows=s["rows"], averages_stride=s["stride"],
@@ -238,3 +237,38 @@ def lid_report(stats: dict, law, grid, psi, law_contrast: float,
                 lid_viscosity_contrast=lid.lid_viscosity_contrast(z, eta, thickness),
                 viscosity_contrast=law_contrast, cells=cells, upwellings=ups.tolist(),
                 regime_rule=thresholds.text())
+
+
+def _law_contrast(model, temperature: np.ndarray) -> float:
+    th = model.thermal
+    if th.top_heat == "temperature" and th.bottom_heat == "temperature":
+        lo, hi = sorted((th.top_value, th.bottom_value))
+    else:
+        lo, hi = float(temperature.min()), float(temperature.max())
+    return lid.law_viscosity_contrast(model.law, lo, hi)
+
+
+def wall_contrast(model) -> float:
+    """Bottom minus top wall temperature; NaN with a fixed-flux wall (the contrast varies)."""
+    th = model.thermal
+    if th.top_heat == "temperature" and th.bottom_heat == "temperature":
+        return th.bottom_value - th.top_value
+    return math.nan
+
+
+def finish_statistics(result, averages: RunAverages, model, state, steady_tolerance: float):
+    """Fill a ``RunResult``'s statistics, settled word, lid diagnostics and heat balance
+    (``steady_tolerance``: the heat-balance slack of a steady run)."""
+    from types import SimpleNamespace
+    report = SimpleNamespace(nusselt_top=result.nusselt_top, nusselt_bottom=result.nusselt_bottom,
+                             vrms=result.vrms, surface_vrms=result.surface_vrms,
+                             mean_temperature=result.mean_temperature)
+    final = step_quantities(model.grid, state.temperature, state.psi, result.viscosity, report)
+    result.statistics, result.settled = run_statistics(averages, result.status, final,
+                                                       state.time)
+    result.lid = lid_report(result.statistics, model.law, model.grid, state.psi,
+                            _law_contrast(model, state.temperature))
+    tolerance = steady_tolerance if result.status == "steady" else 1e-9
+    result.heat_balance = heat_balance(result.statistics, model.internal_heating,
+                                       wall_contrast(model), tolerance)
+    return result

@@ -1,7 +1,7 @@
 """Benchmark harness: published steady cases on a series of grids, side by side on local cores.
 
-For each case (a config in configs/, also shipped as package data in
-convsim/studies/cases/) and each grid n, one run ``api.run(cfg.replace(domain__nx=n,
+For each case (a config shipped as package data in convsim/studies/cases/; the
+repository's configs/ links to it) and each grid n, one run ``api.run(cfg.replace(domain__nx=n,
 domain__nz=n))`` to steady state records Nu (top and bottom), vrms, q1, q2,
 wall time, steps, time per phase and peak memory.  From the three finest grids
 each quantity gets an observed order, a Richardson-extrapolated value and a
@@ -33,17 +33,18 @@ import os
 import platform
 import subprocess
 import sys
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import as_completed
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
+from convsim.pool import process_pool
 from convsim.studies.published import ACCEPTANCE, CASE_SETUP, PUBLISHED, QUANTITIES, known_cases
 
 __all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
-           "BenchResult", "case_config_path", "repo_configs_dir", "package_cases_dir",
+           "BenchResult", "case_config_path", "package_cases_dir",
            "parse_grids", "parse_cases", "plan", "run_task", "run_bench", "analyse_case",
            "provenance"]
 
@@ -63,24 +64,14 @@ def package_cases_dir() -> Path:
     return Path(__file__).resolve().parent / "cases"
 
 
-def repo_configs_dir() -> Path | None:
-    """The repository's configs/ folder beside the package, if this is a source checkout."""
-    path = Path(__file__).resolve().parents[2] / "configs"
-    return path if path.is_dir() else None
-
-
 def case_config_path(case: str) -> Path:
-    """The config file of a published case: configs/ of the checkout, else the package copy."""
+    """The config file of a published case: the package copy, the one source
+    (``configs/benchmark_case_*.toml`` of the repository are links to it)."""
     if case not in PUBLISHED:
         raise ConfigError(f"case {case!r}: unknown; known cases: {', '.join(known_cases())}")
-    name = f"benchmark_case_{case}.toml"
-    repo = repo_configs_dir()
-    if repo is not None and (repo / name).is_file():
-        return repo / name
-    path = package_cases_dir() / name
+    path = package_cases_dir() / f"benchmark_case_{case}.toml"
     if not path.is_file():
-        raise ConfigError(f"case {case!r}: config {name} found neither in configs/ nor in "
-                          f"{package_cases_dir()}")
+        raise ConfigError(f"case {case!r}: config {path.name} not found in {package_cases_dir()}")
     return path
 
 
@@ -138,7 +129,7 @@ class BenchRow:
     h: float                       # grid spacing 1 / nz (unit depth)
     status: str
     message: str
-    nusselt: float                 # top
+    nusselt_top: float                 # top
     nusselt_bottom: float
     vrms: float
     q1: float
@@ -186,8 +177,6 @@ def run_task(task: BenchTask) -> BenchRow:
     """Run one case on one grid (the worker function; top level so that it pickles)."""
     from convsim import api
     from convsim.config import load_config
-    from convsim.model.linsolve import limit_blas_threads
-    limit_blas_threads(1)          # the parallel runs are the parallelism (two BLAS pools spin)
     cfg = load_config(task.config_path, list(task.overrides))
     if task.warmup:
         warm = cfg.replace(domain__nx=8, domain__nz=8, stop__steady=False, stop__max_steps=5,
@@ -202,7 +191,7 @@ def run_task(task: BenchTask) -> BenchRow:
     upwelling = "x=0" if T[mid, 0] >= T[mid, -1] else "x=1"
     q = [float(v) for v in result.corner_gradients]
     row = BenchRow(case=task.case, grid=task.grid, h=1.0 / task.grid, status=result.status,
-                   message=result.message, nusselt=float(result.nusselt_top),
+                   message=result.message, nusselt_top=float(result.nusselt_top),
                    nusselt_bottom=float(result.nusselt_bottom), vrms=float(result.vrms),
                    q1=q[0], q2=q[1], wall_seconds=float(result.wall_seconds),
                    steps=int(result.steps), time=float(result.time),
@@ -218,7 +207,7 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
     nan = math.nan
     log.error("%s grid %d failed: %s", task.case, task.grid, exc)
     return BenchRow(case=task.case, grid=task.grid, h=1.0 / task.grid, status="error",
-                    message=f"{type(exc).__name__}: {exc}", nusselt=nan, nusselt_bottom=nan,
+                    message=f"{type(exc).__name__}: {exc}", nusselt_top=nan, nusselt_bottom=nan,
                     vrms=nan, q1=nan, q2=nan, wall_seconds=nan, steps=0, time=nan,
                     phase_seconds={}, peak_rss_mib=nan, run_rss_mib=nan, upwelling="",
                     stage_steps=[], relative_error={q: nan for q in QUANTITIES})
@@ -453,7 +442,6 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
     -------
     BenchResult
     """
-    import multiprocessing
     import time
     cases = parse_cases(cases)
     grids = parse_grids(grids)
@@ -466,9 +454,7 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
         load_config(case_config_path(c), list(overrides))
     t0 = time.perf_counter()
     rows = []
-    ctx = multiprocessing.get_context("spawn")
-    with ProcessPoolExecutor(max_workers=min(jobs, len(tasks)), mp_context=ctx,
-                             max_tasks_per_child=1) as pool:
+    with process_pool(min(jobs, len(tasks)), max_tasks_per_child=1) as pool:
         futures = {pool.submit(run_task, t): t for t in tasks}
         for fut in as_completed(futures):
             try:

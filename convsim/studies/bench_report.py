@@ -8,12 +8,13 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 from pathlib import Path
 
 from convsim.analysis.convergence import SAFETY_FACTOR
 from convsim.errors import OutputExistsError
+from convsim.files.atomic import atomic_write_text
+from convsim.files.jsonio import plain, write_json
 from convsim.studies.published import ACCEPTANCE, DEFINITIONS, PUBLISHED, QUANTITIES
 
 __all__ = ["REPORT_FILES", "report_paths", "check_outputs", "write_report", "markdown",
@@ -22,24 +23,16 @@ __all__ = ["REPORT_FILES", "report_paths", "check_outputs", "write_report", "mar
 REPORT_FILES = ("report.md", "rows.csv", "bench.json", "convergence.png", "convergence.pdf",
                 "cost.png", "cost.pdf")
 PHASES = ("advect", "diffuse", "stokes", "factor", "diagnose")
-CSV_COLUMNS = ("case", "grid", "h", "status", "nusselt", "nusselt_bottom", "vrms", "q1", "q2",
+CSV_COLUMNS = ("case", "grid", "h", "status", "nusselt_top", "nusselt_bottom", "vrms", "q1", "q2",
                "rel_err_nusselt", "rel_err_vrms", "rel_err_q1", "rel_err_q2", "wall_seconds",
                "steps", "steps_per_second", "time", "upwelling", "peak_rss_mib", "run_rss_mib") \
     + tuple(f"{p}_seconds" for p in PHASES)
-LABEL = {"nusselt": "Nu", "vrms": "vrms", "q1": "q1", "q2": "q2"}
+LABEL = {"nusselt_top": "Nu", "vrms": "vrms", "q1": "q1", "q2": "q2"}
 
 
 def jsonable(obj):
-    """A copy with NaN and infinities as None (strict JSON)."""
-    if isinstance(obj, float):
-        return obj if math.isfinite(obj) else None
-    if isinstance(obj, dict):
-        return {str(k): jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [jsonable(v) for v in obj]
-    if hasattr(obj, "item") and not isinstance(obj, (str, bytes)):   # numpy scalars
-        return jsonable(obj.item())
-    return obj
+    """A copy with NaN and infinities as None (strict JSON): ``convsim.files.jsonio.plain``."""
+    return plain(obj)
 
 
 def report_paths(out) -> list:
@@ -85,6 +78,15 @@ def _other_seconds(row: dict) -> float:
 # -- markdown ---------------------------------------------------------------------------------
 def markdown(bench: dict) -> str:
     """The report text from ``BenchResult.as_dict()``."""
+    L = _header(bench) + _summary(bench) + _acceptance(bench)
+    for c in bench["cases"]:
+        L += _case_section(c)
+    L += _performance(bench)
+    L += _method(bench)
+    return "\n".join(L + _provenance(bench["provenance"]))
+
+
+def _header(bench: dict) -> list:
     prov = bench["provenance"]
     L = ["# convsim benchmark report", ""]
     verdict = "PASS" if bench["passed"] else "FAIL"
@@ -97,22 +99,27 @@ def markdown(bench: dict) -> str:
     if bench["overrides"]:
         L += ["Config overrides applied to every case: "
               + ", ".join(f"`{o}`" for o in bench["overrides"]) + ".", ""]
-    # summary
-    L += ["## Summary", ""]
+    return L
+
+
+def _summary(bench: dict) -> list:
     rows = []
     for c in bench["cases"]:
         ext, err, order = c["extrapolated"], c["extrapolated_relative_error"], c["observed_order"]
         fin = c["rows"][-1] if c["rows"] else None
         rows.append([c["case"], _g(c["rayleigh"], 3),
-                     _g(fin["nusselt"]) if fin else "-",
-                     _pct(fin["relative_error"]["nusselt"]) if fin else "-",
-                     _g(ext["nusselt"]), _pct(err["nusselt"]), _g(order["nusselt"], 3),
+                     _g(fin["nusselt_top"]) if fin else "-",
+                     _pct(fin["relative_error"]["nusselt_top"]) if fin else "-",
+                     _g(ext["nusselt_top"]), _pct(err["nusselt_top"]), _g(order["nusselt_top"], 3),
                      _g(ext["vrms"]), _pct(err["vrms"]), _g(order["vrms"], 3),
                      "pass" if c["passed"] else "FAIL"])
-    L += _table(["case", "Ra", "Nu finest", "err", "Nu extrap.", "err", "p(Nu)",
-                 "vrms extrap.", "err", "p(vrms)", "verdict"], rows)
-    # acceptance and sources
-    L += ["## Acceptance (ours, not published numbers)", ""]
+    return ["## Summary", ""] + _table(["case", "Ra", "Nu finest", "err", "Nu extrap.", "err",
+                                        "p(Nu)", "vrms extrap.", "err", "p(vrms)", "verdict"], rows)
+
+
+def _acceptance(bench: dict) -> list:
+    """Our acceptance rule, then the published sources and definitions."""
+    L = ["## Acceptance (ours, not published numbers)", ""]
     L += _table(["quantity", "finest grid: abs. rel. error at most",
                  "extrapolated: abs. rel. error at most", "observed order at least"],
                 [[LABEL[q], _pct(a.finest, 2).lstrip("+"), _pct(a.extrapolated, 2).lstrip("+"),
@@ -126,29 +133,31 @@ def markdown(bench: dict) -> str:
         for q in QUANTITIES:
             pv = PUBLISHED[case["case"]][q]
             sources[pv.source.key] = pv.source
-    for s in sources.values():
-        L += [f"- {s.citation}." + (f" **{s.note}.**" if s.note else "")]
+    for src in sources.values():
+        L += [f"- {src.citation}." + (f" **{src.note}.**" if src.note else "")]
     L += [""]
     L += [f"- {d}." for d in DEFINITIONS.values()]
     L += ["- In convsim, q1 is `RunResult.corner_gradients[0]` at (0, 1) and q2 is "
           "`corner_gradients[1]` at (1, 1); each row records the side of the upwelling.", ""]
-    # cases
-    for c in bench["cases"]:
-        L += _case_section(c)
-    L += _performance(bench)
-    L += _method(bench)
-    L += ["## Provenance", ""]
+    return L
+
+
+def _provenance(prov: dict) -> list:
     v = prov["versions"]
-    L += [f"- date (UTC): {prov['date']}",
-          f"- platform: {prov['platform']} ({prov['machine']})",
-          f"- CPU: {prov['cpu'] or 'unknown'}; CPU count {prov['cpu_count']}",
-          "- versions: " + ", ".join(f"{k} {val}" for k, val in v.items()),
-          f"- source: git {prov['git'] or 'unknown'}",
-          f"- command: `{prov['command'] or 'convsim bench'}`", ""]
-    return "\n".join(L)
+    return ["## Provenance", "",
+            f"- date (UTC): {prov['date']}",
+            f"- platform: {prov['platform']} ({prov['machine']})",
+            f"- CPU: {prov['cpu'] or 'unknown'}; CPU count {prov['cpu_count']}",
+            "- versions: " + ", ".join(f"{k} {val}" for k, val in v.items()),
+            f"- source: git {prov['git'] or 'unknown'}",
+            f"- command: `{prov['command'] or 'convsim bench'}`", ""]
 
 
 def _case_section(c: dict) -> list:
+    return _case_setup(c) + _case_runs(c) + _case_convergence(c) + _case_checks(c)
+
+
+def _case_setup(c: dict) -> list:
     s = c["settings"]
     b, st, stop, num, visc = (s.get("boundaries", {}), s.get("start", {}), s.get("stop", {}),
                               s.get("numerics", {}), s.get("viscosity", {}))
@@ -170,15 +179,19 @@ def _case_section(c: dict) -> list:
          f"CFL {num.get('cfl')}, Stokes solver {num.get('stokes_solver')}", ""]
     for note in c["notes"]:
         L += [f"Note: {note}.", ""]
+    return L
+
+
+def _case_runs(c: dict) -> list:
     pub = c["published"]
-    L += ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES)
-          + " (" + PUBLISHED[c["case"]]["nusselt"].citation + ").", ""]
+    L = ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES)
+          + " (" + PUBLISHED[c["case"]]["nusselt_top"].citation + ").", ""]
     rows = []
     for r in c["rows"]:
         e = r["relative_error"]
-        rows.append([r["grid"], r["status"], r["steps"], _g(r["nusselt"]),
+        rows.append([r["grid"], r["status"], r["steps"], _g(r["nusselt_top"]),
                      _g(r["nusselt_bottom"]), _g(r["vrms"]), _g(r["q1"]), _g(r["q2"]),
-                     _pct(e["nusselt"]), _pct(e["vrms"]), _pct(e["q1"]), _pct(e["q2"]),
+                     _pct(e["nusselt_top"]), _pct(e["vrms"]), _pct(e["q1"]), _pct(e["q2"]),
                      _g(r["wall_seconds"], 4)])
     L += _table(["grid", "status", "steps", "Nu top", "Nu bottom", "vrms", "q1", "q2",
                  "err Nu", "err vrms", "err q1", "err q2", "wall s"], rows)
@@ -188,7 +201,12 @@ def _case_section(c: dict) -> list:
               + "; ".join(f"grid {r['grid']}: " + ", ".join(f"Ra {ra:.0e} {n} steps"
                                                            for ra, n in r["stage_steps"])
                           for r in staged) + ".", ""]
-    L += ["Convergence from the three finest steady grids:", ""]
+    return L
+
+
+def _case_convergence(c: dict) -> list:
+    pub = c["published"]
+    L = ["Convergence from the three finest steady grids:", ""]
     rows = []
     for q in QUANTITIES:
         est = c["convergence"].get(q)
@@ -207,7 +225,11 @@ def _case_section(c: dict) -> list:
                      _g(est["asymptotic_ratio"], 4)])
     L += _table(["quantity", "behaviour", "order p", "extrapolated", "GCI fine",
                  "published in f1 +- GCI", "err extrap.", "asymptotic ratio"], rows)
-    L += ["Checks:", ""]
+    return L
+
+
+def _case_checks(c: dict) -> list:
+    L = ["Checks:", ""]
     for ch in c["checks"]:
         mark = "pass" if ch["passed"] else "FAIL"
         if ch["kind"] == "steady":
@@ -246,7 +268,7 @@ def _performance(bench: dict) -> list:
         for r in c["rows"]:
             e = r["relative_error"]
             rows.append([c["case"], r["grid"], r["status"], _g(r["wall_seconds"], 4),
-                         _pct(e["nusselt"]).lstrip("+-"), _pct(e["vrms"]).lstrip("+-")])
+                         _pct(e["nusselt_top"]).lstrip("+-"), _pct(e["vrms"]).lstrip("+-")])
     L += _table(["case", "grid", "status", "wall s", "abs. err Nu", "abs. err vrms"], rows)
     L += ["![convergence](convergence.png)", "",
           "Relative error against grid spacing, one line per quantity, with a slope-2 guide "
@@ -307,16 +329,16 @@ def terminal_table(bench: dict) -> str:
     for c in bench["cases"]:
         for r in c["rows"]:
             e = r["relative_error"]
-            lines.append(f"{c['case']:<5}{r['grid']:>5} {r['status']:<9}{_g(r['nusselt']):>11}"
-                         f"{_pct(e['nusselt'], 2):>9}{_g(r['vrms']):>11}{_pct(e['vrms'], 2):>9}"
+            lines.append(f"{c['case']:<5}{r['grid']:>5} {r['status']:<9}{_g(r['nusselt_top']):>11}"
+                         f"{_pct(e['nusselt_top'], 2):>9}{_g(r['vrms']):>11}{_pct(e['vrms'], 2):>9}"
                          f"{_g(r['q1'], 6):>10}{_g(r['q2'], 5):>9}{r['steps']:>8}"
                          f"{_g(r['wall_seconds'], 4):>9}")
         ext, err, p = c["extrapolated"], c["extrapolated_relative_error"], c["observed_order"]
-        lines.append(f"{'':<5}{'ext':>5} {'':<9}{_g(ext['nusselt']):>11}"
-                     f"{_pct(err['nusselt'], 2):>9}{_g(ext['vrms']):>11}{_pct(err['vrms'], 2):>9}"
-                     f"   p(Nu) {_g(p['nusselt'], 3)}  p(vrms) {_g(p['vrms'], 3)}  "
+        lines.append(f"{'':<5}{'ext':>5} {'':<9}{_g(ext['nusselt_top']):>11}"
+                     f"{_pct(err['nusselt_top'], 2):>9}{_g(ext['vrms']):>11}{_pct(err['vrms'], 2):>9}"
+                     f"   p(Nu) {_g(p['nusselt_top'], 3)}  p(vrms) {_g(p['vrms'], 3)}  "
                      + ("pass" if c["passed"] else "FAIL"))
-        lines.append(f"{'':<5}{'pub':>5} {'':<9}{_g(c['published']['nusselt']):>11}{'':>9}"
+        lines.append(f"{'':<5}{'pub':>5} {'':<9}{_g(c['published']['nusselt_top']):>11}{'':>9}"
                      f"{_g(c['published']['vrms']):>11}{'':>9}{_g(c['published']['q1'], 6):>10}"
                      f"{_g(c['published']['q2'], 5):>9}")
     lines.append(f"verdict: {'PASS' if bench['passed'] else 'FAIL'} "
@@ -332,9 +354,9 @@ def write_report(bench: dict, out, overwrite: bool = False) -> list:
     check_outputs(out, overwrite)
     out.mkdir(parents=True, exist_ok=True)
     data = jsonable(bench)
-    (out / "bench.json").write_text(json.dumps(data, indent=2) + "\n")
-    (out / "rows.csv").write_text(rows_csv(data))
-    (out / "report.md").write_text(markdown(data) + "\n")
+    write_json(out / "bench.json", data)
+    atomic_write_text(out / "rows.csv", rows_csv(data))
+    atomic_write_text(out / "report.md", markdown(data) + "\n")
     figures_bench.convergence_figure(data, out / "convergence")
     figures_bench.cost_figure(data, out / "cost")
     return report_paths(out)

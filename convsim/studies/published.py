@@ -59,7 +59,7 @@ class PublishedValue:
     """One published number with its source and definition."""
 
     case: str
-    quantity: str          # nusselt | vrms | q1 | q2
+    quantity: str          # nusselt_top | vrms | q1 | q2
     value: float
     source: Source
     definition: str
@@ -88,14 +88,14 @@ BLANKENBACH_1989 = Source(
 )
 
 DEFINITIONS = {
-    "nusselt": "Nu: mean heat flux -dT/dz through the top surface z = 1, averaged over "
+    "nusselt_top": "Nu: mean heat flux -dT/dz through the top surface z = 1, averaged over "
                "0 <= x <= 1, divided by the temperature contrast (unit box: conductive Nu = 1)",
     "vrms": "vrms = sqrt(mean over the box of u^2 + w^2), in units kappa / d",
     "q1": "q1 = -dT/dz at the top corner (x = 0, z = 1), above the upwelling",
     "q2": "q2 = -dT/dz at the top corner (x = 1, z = 1), above the downwelling",
 }
 
-QUANTITIES = ("nusselt", "vrms", "q1", "q2")
+QUANTITIES = ("nusselt_top", "vrms", "q1", "q2")
 
 CASE_SETUP = {
     "1a": "constant viscosity, Ra = 1e4",
@@ -136,7 +136,7 @@ class Acceptance:
 # observed order near 2 and its extrapolation land within 0.1 % of the best estimates; the
 # corner gradients are point values of a derivative, looser.
 ACCEPTANCE = {
-    "nusselt": Acceptance(finest=0.01, extrapolated=0.001, min_order=1.8),
+    "nusselt_top": Acceptance(finest=0.01, extrapolated=0.001, min_order=1.8),
     "vrms": Acceptance(finest=0.01, extrapolated=0.001),
     "q1": Acceptance(finest=0.02, extrapolated=0.005),
     "q2": Acceptance(finest=0.02, extrapolated=0.005),

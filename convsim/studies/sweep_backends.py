@@ -57,9 +57,8 @@ class LocalBackend:
         self.pool = self._new_pool()
 
     def _new_pool(self):
-        import concurrent.futures as cf
-        import multiprocessing as mp
-        return cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=mp.get_context("spawn"))
+        from convsim.pool import process_pool
+        return process_pool(self.workers)
 
     def submit(self, task: CaseTask) -> None:
         from concurrent.futures.process import BrokenProcessPool

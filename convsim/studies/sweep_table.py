@@ -1,7 +1,7 @@
 """The sweep table: one row per case, its inputs and final diagnostics.
 
 No numerics here.  A case's row is first a *record*, a flat JSON object
-written atomically (temporary file + ``os.replace``) to
+written atomically (``convsim.files.jsonio``: strict JSON, NaN as null) to
 ``<out>/cases/<case_id>.json`` when the case finishes; the records are what make
 a sweep resumable.  The table is gathered from the records and written in two
 forms, both replaced atomically:
@@ -22,16 +22,16 @@ from __future__ import annotations
 
 import csv
 import json
-import math
-import os
 from pathlib import Path
 
 import h5py
 import numpy as np
 
 from convsim.errors import ConfigError, SnapshotError
+from convsim.files.atomic import atomic_path
+from convsim.files.jsonio import write_json
 
-__all__ = ["COLUMNS", "FAILED", "atomic_write_text", "write_record", "read_record",
+__all__ = ["COLUMNS", "FAILED", "write_record", "read_record",
            "table_columns", "write_table", "read_table"]
 
 FAILED = "failed"   # status of a case whose run raised an exception (run statuses: RunResult)
@@ -68,29 +68,10 @@ COLUMNS = {
 }
 
 
-def atomic_write_text(path: Path, text: str) -> None:
-    """Write text to a temporary file beside ``path``, then move it over ``path``."""
-    tmp = path.with_name(path.name + f".tmp{os.getpid()}")
-    tmp.write_text(text, encoding="utf-8")
-    os.replace(tmp, path)
-
-
-def _json_safe(value):
-    if isinstance(value, (np.floating, float)):
-        value = float(value)
-        return value if math.isfinite(value) else str(value)   # 'nan', 'inf' survive JSON
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (np.bool_,)):
-        return bool(value)
-    return value
-
-
 def write_record(path: str | Path, record: dict) -> None:
     """Write one case record as JSON, atomically (temporary file, then ``os.replace``)."""
     path = Path(path)
-    data = {k: _json_safe(v) for k, v in record.items()}
-    atomic_write_text(path, json.dumps(data, indent=1, sort_keys=False) + "\n")
+    write_json(path, record, indent=1)
 
 
 def read_record(path: str | Path) -> dict | None:
@@ -143,15 +124,12 @@ def write_table(records: list[dict], param_keys, folder: str | Path) -> tuple[Pa
     names = table_columns(param_keys)
     kinds = {n: _column_kind(n, [r.get(n) for r in records]) for n in names}
     csv_path, h5_path = folder / "table.csv", folder / "table.h5"
-    tmp = csv_path.with_name(csv_path.name + f".tmp{os.getpid()}")
-    with open(tmp, "w", newline="", encoding="utf-8") as fh:
+    with atomic_path(csv_path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
         writer = csv.writer(fh)
         writer.writerow(names)
         for r in records:
             writer.writerow([_csv_text(r.get(n), kinds[n]) for n in names])
-    os.replace(tmp, csv_path)
-    tmp = h5_path.with_name(h5_path.name + f".tmp{os.getpid()}")
-    with h5py.File(tmp, "w") as f:
+    with atomic_path(h5_path) as tmp, h5py.File(tmp, "w") as f:
         f.attrs["Conventions"] = "CF-1.8"
         f.attrs["title"] = "convsim sweep table"
         f.attrs["columns"] = json.dumps(names)
@@ -177,7 +155,6 @@ def write_table(records: list[dict], param_keys, folder: str | Path) -> tuple[Pa
                                 else ("1", f"sweep parameter {n}"))
             ds.attrs["units"] = units
             ds.attrs["long_name"] = long_name
-    os.replace(tmp, h5_path)
     return csv_path, h5_path
 
 

@@ -1,0 +1,156 @@
+"""``convsim run``: a config to steady state, an end time or a step limit; the progress bar."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+from convsim.cli.common import command, emit_json
+
+
+def _parse_grid(text: str) -> tuple[int, int]:
+    from convsim.errors import ConfigError
+    try:
+        nx, nz = (int(v) for v in text.lower().split("x"))
+    except ValueError:
+        raise ConfigError(f"--grid {text!r}: expected NXxNZ, e.g. 64x64") from None
+    return nx, nz
+
+
+def load_run_config(path, overrides=(), grid=None):
+    """The config of a command: file, then --set overrides, then --grid."""
+    from convsim.config import load_config
+    items = list(overrides)
+    if grid:
+        nx, nz = _parse_grid(grid)
+        items += [f"domain.nx={nx}", f"domain.nz={nz}"]
+    return load_config(path, items)
+
+
+class ProgressBar:
+    """Observer that shows time, step, Nu and vrms on stderr (only on a terminal)."""
+
+    def __init__(self, config):
+        from tqdm import tqdm
+        total = config.stop.max_steps if config.stop.end_time == 0 else None
+        self.bar = tqdm(total=total, unit="step", disable=None, leave=False, mininterval=0.5,
+                        dynamic_ncols=True, file=sys.stderr)
+
+    def on_start(self, simulation, resumed):
+        pass
+
+    def on_step(self, report):
+        self.bar.update(1)
+        if report.step % 25 == 0:
+            self.bar.set_postfix_str(f"t={report.time:.4g} Nu={report.nusselt_top:.5g} "
+                                     f"vrms={report.vrms:.5g}", refresh=False)
+
+    def on_snapshot(self, snap):
+        pass
+
+    def on_finish(self, result):
+        self.bar.close()
+
+
+#: Exit status of ``convsim run`` for the statuses that are not a normal end (0).
+EXIT_FOR_STATUS = {"diverged": 3, "interrupted": 130}
+
+
+@command("run", "run a config: a convecting box to steady state or an end time")
+def _add_run(p):
+    p.add_argument("config", help="TOML config file")
+    p.add_argument("--out", default="runs", help="output folder (default: runs)")
+    p.add_argument("--grid", help="grid NXxNZ, overriding domain.nx and domain.nz")
+    p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                   help="override a config value (repeatable)")
+    p.add_argument("--from", dest="start_from", metavar="RUN.h5",
+                   help="start from the last snapshot of another run (interpolated)")
+    p.add_argument("--restart", metavar="RUN.h5",
+                   help="continue this run file from its last snapshot, bit for bit")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing run file")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON on stdout")
+    p.set_defaults(handler=_run)
+
+
+_STAT_LABELS = (("nusselt_top", "Nu top"), ("nusselt_bottom", "Nu bottom"), ("vrms", "vrms"),
+                ("surface_vrms", "surface vrms"), ("interior_temperature", "interior T"),
+                ("lid_thickness", "lid thickness"))
+
+
+def _g(value, digits: int = 5) -> str:
+    """A number to ``digits`` significant digits; None (NaN or inf in JSON) as 'n/a'."""
+    return "n/a" if value is None else f"{value:.{digits}g}"
+
+
+def statistics_lines(summary: dict) -> list[str]:
+    """The time means, the settled word and the lid diagnostics of a summary, as text lines."""
+    stats, lid = summary.get("statistics") or {}, summary.get("lid") or {}
+    if not stats:
+        return []
+    first = next(iter(stats.values()))
+    lines = [f"{summary.get('settled')}: means from t = {_g(first['from_time'], 6)} "
+             f"(+- 95 % half-width)"]
+    parts = [f"{label} {_g(stats[k]['mean'])} +- {_g(stats[k]['ci95'], 2)}"
+             for k, label in _STAT_LABELS if k in stats]
+    lines += ["  " + "  ".join(parts[:3]), "  " + "  ".join(parts[3:])]
+    hb = summary.get("heat_balance") or {}
+    if hb.get("gap") is not None:
+        lines.append(f"  Nu top - Nu bottom - H = {_g(hb['gap'], 3)} +- {_g(hb['ci95'], 2)} "
+                     f"({'agree' if hb['agree'] else 'do not agree'} within the intervals)")
+    if lid:
+        ups = ", ".join(_g(x, 3) for x in lid.get("upwellings", []))
+        lines.append(f"regime {lid['regime']}: mobility {_g(lid['mobility'], 3)}, viscosity "
+                     f"contrast {_g(lid['viscosity_contrast'], 3)} (across the lid "
+                     f"{_g(lid['lid_viscosity_contrast'], 3)}), dT_rh "
+                     f"{_g(lid['rheological_temperature_scale'], 3)}, {lid['cells']} cell(s), "
+                     f"upwellings at x = {ups or 'none'}")
+    return lines
+
+
+def _run(args):
+    from pathlib import Path
+    from convsim import api
+    overrides = list(args.set)
+    if args.start_from:
+        overrides += ["start.kind=\"snapshot\"", f"start.file={json.dumps(args.start_from)}"]
+    cfg = load_run_config(args.config, overrides, args.grid)
+    output = None
+    if args.restart:
+        _check_restart_config(args.restart, cfg)
+    else:
+        output = Path(args.out) / (Path(args.config).stem + ".h5")
+    bar = ProgressBar(cfg)
+    result = api.run(cfg, output, overwrite=args.overwrite, restart=args.restart, observers=[bar])
+    summary = result.summary()
+    if args.json:
+        emit_json(summary)
+    else:
+        print(f"{result.status}: {result.message}")
+        print(f"  Nu top {result.nusselt_top:.6f}  Nu bottom {result.nusselt_bottom:.6f}  "
+              f"vrms {result.vrms:.6f}")
+        print(f"  grid {result.grid.nx}x{result.grid.nz}  steps {result.steps}  "
+              f"time {result.time:.6g}  wall {result.wall_seconds:.2f} s")
+        for line in statistics_lines(summary):
+            print(f"  {line}")
+        print(f"  run file {result.output}")
+    if result.status == "diverged":
+        print(f"convsim: run diverged: {result.message}; the last good state is in "
+              f"{result.output}", file=sys.stderr)
+    return EXIT_FOR_STATUS.get(result.status, 0)
+
+
+def _check_restart_config(path, cfg):
+    """A restart may change only [stop] and [output]: anything else would not continue the run."""
+    import tomllib
+    from convsim.config import to_dict
+    from convsim.errors import ConfigError
+    from convsim.files.runfile import read_run
+    saved = tomllib.loads(read_run(path).config_text)
+    new = to_dict(cfg)
+    for table in saved:
+        if table in ("stop", "output", "title"):
+            continue
+        if saved[table] != new.get(table):
+            keys = [k for k in saved[table] if saved[table][k] != new.get(table, {}).get(k)]
+            raise ConfigError(f"--restart {path!r}: [{table}] differs from the run's own config "
+                              f"({', '.join(keys)}); only [stop] and [output] may change")

@@ -1,0 +1,45 @@
+"""Every translation of a Config into the model: the one place a Config becomes numbers.
+
+``convsim.model`` takes numbers, arrays and declarations, never a Config; this
+module reads the config's tables and builds the grid, the thermal conditions,
+the viscosity law and the ``Model`` (with its Stokes back end and stepper).
+"""
+
+from __future__ import annotations
+
+from dataclasses import fields as dc_fields
+
+from convsim.config import Config
+from convsim.model.energy import ThermalBoundaries
+from convsim.model.grid import Grid
+from convsim.model.rheology import ViscosityLaw
+from convsim.model.timestepping import Model
+
+__all__ = ["build_model", "build_grid", "build_thermal", "build_law"]
+
+
+def build_grid(config: Config) -> Grid:
+    """The grid of [domain] (periodic when [boundaries] sides = 'periodic')."""
+    d = config.domain
+    return Grid(d.nx, d.nz, d.aspect, periodic=(config.boundaries.sides == "periodic"))
+
+
+def build_thermal(config: Config) -> ThermalBoundaries:
+    """The thermal conditions of [boundaries] at z = 1 and z = 0."""
+    b = config.boundaries
+    return ThermalBoundaries(b.top_heat, b.top_value, b.bottom_heat, b.bottom_value)
+
+
+def build_law(config: Config) -> ViscosityLaw:
+    """The viscosity law of [viscosity]."""
+    v = config.viscosity
+    return ViscosityLaw(**{f.name: getattr(v, f.name) for f in dc_fields(ViscosityLaw)})
+
+
+def build_model(config: Config, grid: Grid | None = None) -> Model:
+    """The ``Model`` a config describes (``grid`` overrides [domain], for convergence studies)."""
+    b, n = config.boundaries, config.numerics
+    limiter = "upwind" if n.advection == "upwind" else n.limiter
+    return Model(grid or build_grid(config), config.physics.rayleigh, build_thermal(config),
+                 build_law(config), config.physics.internal_heating, b.top_flow, b.bottom_flow,
+                 limiter, n.time_scheme, n.cfl, n.max_dt, n.stokes_solver, n.factor_reuse)

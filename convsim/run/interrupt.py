@@ -1,0 +1,55 @@
+"""Signals as a flag: an interrupt is read between steps, never lands inside a snapshot write.
+
+The controller installs ``DeferredInterrupt`` for the run and asks ``requested``
+after each step (the ``Interrupted`` stop rule).  Only the main thread receives
+signals, so elsewhere (a worker thread) nothing is installed and Ctrl-C arrives
+as ``KeyboardInterrupt``, which the controller also turns into an interrupted run.
+"""
+
+from __future__ import annotations
+
+import signal
+import threading
+
+__all__ = ["DeferredInterrupt"]
+
+
+class DeferredInterrupt:
+    """Turns the given signals (default: SIGINT, Ctrl-C) into a flag while it is active.
+
+    Use as a context manager; the previous handlers come back on exit.
+
+    Attributes
+    ----------
+    requested : bool
+        True once one of the signals arrived.
+    signum : int or None
+        The signal that arrived (the last one).
+    """
+
+    def __init__(self, signals=(signal.SIGINT,)):
+        self.signals = tuple(signals)
+        self.requested = False
+        self.signum = None
+        self._previous: dict = {}
+
+    def _handle(self, signum, frame):
+        self.requested = True
+        self.signum = signum
+
+    def install(self) -> "DeferredInterrupt":
+        if threading.current_thread() is threading.main_thread():
+            for sig in self.signals:
+                self._previous[sig] = signal.signal(sig, self._handle)
+        return self
+
+    def restore(self) -> None:
+        for sig, handler in self._previous.items():
+            signal.signal(sig, handler)
+        self._previous = {}
+
+    def __enter__(self) -> "DeferredInterrupt":
+        return self.install()
+
+    def __exit__(self, *exc) -> None:
+        self.restore()

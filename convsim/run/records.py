@@ -1,0 +1,174 @@
+"""What a run hands out: snapshot data for the observers, the diagnostic series, the result.
+
+All plain data: observers (the run-file writer, a progress bar) receive these and
+never reach into the controller.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from convsim.model import diagnostics as diag
+from convsim.model.grid import Grid
+
+__all__ = ["SnapshotData", "Observer", "ResumePoint", "RunResult", "Series", "SERIES_COLUMNS",
+           "snapshot_fields", "final_result"]
+
+SERIES_COLUMNS = ("series_time", "series_step", "dt", "rayleigh", "nusselt_top", "nusselt_bottom",
+                  "vrms", "surface_vrms", "mean_temperature", "energy_residual", "tendency_max",
+                  "stokes_iterations")
+
+
+@dataclass
+class SnapshotData:
+    """Everything an observer needs to record one snapshot (plain arrays and numbers)."""
+
+    time: float
+    step: int
+    fields: dict          # name -> array, see convsim.files.runfile.FIELDS
+    series: dict          # column -> array of the rows since the previous snapshot
+    restart: dict         # the exact state to continue from
+    status: str
+    wall_seconds: float
+
+
+class Observer:
+    """Receives the run's events.  Subclass and override what you need."""
+
+    def on_start(self, simulation, resumed: bool) -> None: ...
+
+    def on_step(self, report) -> None: ...
+
+    def on_snapshot(self, snapshot: SnapshotData) -> None: ...
+
+    def on_finish(self, result: "RunResult") -> None: ...
+
+
+@dataclass
+class ResumePoint:
+    """The restart group of a run file, as plain data (see ``convsim.files.runfile.read_run``)."""
+
+    state: dict
+
+
+@dataclass
+class RunResult:
+    """What a run produced: status, final diagnostics and fields."""
+
+    status: str                   # one of run.stops.run_statuses()
+    message: str
+    time: float
+    steps: int
+    wall_seconds: float
+    nusselt_top: float
+    nusselt_bottom: float
+    vrms: float
+    surface_vrms: float
+    mean_temperature: float
+    corner_gradients: np.ndarray  # q1..q4
+    temperature: np.ndarray
+    psi: np.ndarray
+    viscosity: np.ndarray
+    grid: Grid
+    series: dict = field(default_factory=dict)
+    phase_seconds: dict = field(default_factory=dict)
+    output: str | None = None
+    statistics: dict = field(default_factory=dict)   # quantity -> mean, ci95, from_time, ...
+    settled: str = "unfinished"                      # steady | statistically-steady | unfinished
+    lid: dict = field(default_factory=dict)          # stagnant-lid diagnostics and regime
+    heat_balance: dict = field(default_factory=dict)  # <Nu_top> - <Nu_bottom> - H / dT
+
+    @property
+    def steady(self) -> bool:
+        return self.status == "steady"
+
+    def summary(self) -> dict:
+        """The headline numbers as a JSON-ready dict."""
+        q = [float(v) for v in self.corner_gradients]
+        return dict(status=self.status, steady=self.steady, nusselt_top=self.nusselt_top,
+                    nusselt_bottom=self.nusselt_bottom, vrms=self.vrms,
+                    surface_vrms=self.surface_vrms, mean_temperature=self.mean_temperature,
+                    q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
+                    wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
+                    output=self.output, message=self.message, settled=self.settled,
+                    regime=self.lid.get("regime"), statistics=_finite(self.statistics),
+                    lid=_finite(self.lid), heat_balance=_finite(self.heat_balance))
+
+
+def _finite(value):
+    """Nested dicts and lists with NaN and inf as None (JSON has neither)."""
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if isinstance(value, (float, np.floating)):
+        return float(value) if np.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+class Series:
+    """The diagnostic time series: one row per recorded step, columns ``SERIES_COLUMNS``.
+
+    Keeps the rows since the last snapshot (handed to the observers, then cleared)
+    and all rows of this process (for the result).
+    """
+
+    def __init__(self, every: int = 1):
+        self.every = int(every)
+        self.new_rows: list = []
+        self.all_rows: list = []
+
+    def record(self, report, rayleigh: float) -> None:
+        if report.step % self.every:
+            return
+        row = (report.time, report.step, report.dt, rayleigh, report.nusselt_top,
+               report.nusselt_bottom, report.vrms, report.surface_vrms, report.mean_temperature,
+               report.energy_residual, report.tendency_max, report.stokes_iterations)
+        self.new_rows.append(row)
+        self.all_rows.append(row)
+
+    @staticmethod
+    def columns(rows: list) -> dict:
+        return {c: np.array([row[i] for row in rows]) for i, c in enumerate(SERIES_COLUMNS)}
+
+    def take_new(self) -> dict:
+        """The rows since the last call, as columns; forgets them."""
+        out = self.columns(self.new_rows)
+        self.new_rows = []
+        return out
+
+
+def snapshot_fields(model, state) -> dict:
+    """The fields of a snapshot (``convsim.files.runfile.FIELDS``) from the state."""
+    from convsim.model.stokes import face_velocities
+    grid = model.grid
+    eta_c = model.viscosities(state.temperature)[1]
+    u, w = face_velocities(grid, state.psi)
+    q = diag.corner_gradients(grid, state.temperature, model.thermal)
+    return dict(temperature=state.temperature, viscosity=eta_c, streamfunction=state.psi,
+                velocity_x=u, velocity_z=w,
+                temperature_profile=diag.horizontal_mean(state.temperature),
+                viscosity_profile=diag.horizontal_mean(eta_c),
+                q1=q[0], q2=q[1], q3=q[2], q4=q[3], step=state.step)
+
+
+def final_result(model, state, decision, wall: float, series: dict, phase: dict) -> RunResult:
+    """The ``RunResult`` of a run that ended in ``state`` for the reason ``decision``."""
+    grid = model.grid
+    nu_top, nu_bottom = diag.nusselt_numbers(grid, state.temperature, model.thermal)
+    return RunResult(
+        status=decision.status, message=decision.message, time=state.time, steps=state.step,
+        wall_seconds=wall, nusselt_top=nu_top, nusselt_bottom=nu_bottom,
+        vrms=diag.rms_velocity(grid, state.psi),
+        surface_vrms=diag.surface_rms_velocity(grid, state.psi),
+        mean_temperature=float(state.temperature.mean()),
+        corner_gradients=diag.corner_gradients(grid, state.temperature, model.thermal),
+        temperature=state.temperature, psi=state.psi,
+        viscosity=model.viscosities(state.temperature)[1], grid=grid, series=series,
+        phase_seconds=phase)
