@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 import hashlib
+import math
 import logging
 import os
 import socket
@@ -136,7 +137,7 @@ def _result_columns(cfg: Config, result) -> dict:
     law = ViscosityLaw(**{f.name: getattr(cfg.viscosity, f.name)
                           for f in dataclasses.fields(ViscosityLaw)})
     eta = np.asarray(result.viscosity)
-    return dict(status=result.status, message=result.message,
+    return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
                 nusselt_top=float(result.nusselt_top), nusselt_bottom=float(result.nusselt_bottom),
                 vrms=float(result.vrms), surface_vrms=float(result.surface_vrms),
                 interior_vrms=interior_rms_velocity(result.grid, result.psi),
@@ -144,3 +145,39 @@ def _result_columns(cfg: Config, result) -> dict:
                 time=float(result.time), wall_seconds=float(result.wall_seconds),
                 viscosity_contrast=law_viscosity_contrast(law, t_low, t_high),
                 viscosity_contrast_field=float(eta.max() / eta.min()))
+
+
+#: time-averaged quantities of a run that get ``<q>_mean`` and ``<q>_ci95`` columns
+MEAN_QUANTITIES = ("nusselt_top", "nusselt_bottom", "vrms", "surface_vrms",
+                   "interior_temperature", "lid_thickness")
+LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contrast", "cells")
+
+
+def _statistics_columns(result, law, boundaries) -> dict:
+    """Time means, intervals, settled word, regime and lid diagnostics as table columns.
+
+    ``rayleigh_bottom`` and ``rayleigh_interior`` restate the run's Rayleigh number
+    (defined with eta = 1) with the viscosity at the bottom wall (its temperature,
+    z = 0) and at the time-mean interior temperature (z = 1/2): Ra / eta there.
+    """
+    stats, lid = result.statistics or {}, result.lid or {}
+    out = {"settled": result.settled, "regime": lid.get("regime", "")}
+    for q in MEAN_QUANTITIES:
+        est = stats.get(q, {})
+        out[f"{q}_mean"] = _float(est.get("mean"))
+        out[f"{q}_ci95"] = _float(est.get("ci95"))
+    out["from_time"] = _float(stats.get("nusselt_top", {}).get("from_time"))
+    for key in LID_COLUMNS:
+        out[key] = _float(lid.get(key)) if key != "cells" else int(lid.get(key, -1))
+    ra = float(result.series["rayleigh"][-1]) if len(result.series.get("rayleigh", ())) else \
+        math.nan
+    t_bottom = boundaries.bottom_value if boundaries.bottom_heat == "temperature" else \
+        float(result.temperature[0].mean())
+    out["rayleigh_bottom"] = ra / float(law(t_bottom, 0.0))
+    t_i = out["interior_temperature_mean"]
+    out["rayleigh_interior"] = ra / float(law(t_i, 0.5)) if math.isfinite(t_i) else math.nan
+    return out
+
+
+def _float(value) -> float:
+    return math.nan if value is None else float(value)
