@@ -82,3 +82,18 @@ def test_statistical_stop_survives_a_restart_bit_for_bit(chaotic, tmp_path):
     assert resumed.status == "mean-precision" and resumed.steps == result.steps
     assert np.array_equal(resumed.temperature, result.temperature)
     assert resumed.statistics == result.statistics
+
+
+def test_a_steady_run_with_internal_heating_balances_nu_top_with_nu_bottom_plus_h():
+    # energy equation at steady state, unit contrast: Nu_top = Nu_bottom + H (README)
+    cfg = parse_config({"domain": {"nx": 16, "nz": 16}, "physics": {"rayleigh": 1e5,
+                                                                  "internal_heating": 10.0}},
+                       source="test")
+    result = api.run(cfg)
+    assert result.status == "steady" and result.settled == "steady"
+    s = result.statistics
+    assert s["nusselt_top"]["ci95"] == 0.0
+    assert s["nusselt_top"]["mean"] == pytest.approx(s["nusselt_bottom"]["mean"] + 10.0,
+                                                     abs=1e-4)
+    assert result.heat_balance["agree"] and abs(result.heat_balance["gap"]) < 1e-4
+    assert result.lid["regime"] == "mobile" and result.lid["cells"] >= 1
