@@ -1,4 +1,4 @@
-"""Python entry points for notebooks and scripts: ``load_config`` and ``run``.
+"""Python entry points for notebooks and scripts: ``load_config``, ``run`` and ``open_run``.
 
 This is an edge module: it wires the config, the start file, the simulation and
 the run-file writer together.
@@ -17,8 +17,9 @@ from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
+from convsim.views import open_run
 
-__all__ = ["load_config", "run", "start_temperature"]
+__all__ = ["load_config", "run", "open_run", "start_temperature"]
 
 
 def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
@@ -32,13 +33,15 @@ def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
     return interpolate_cells(source.x, source.z, source.fields["temperature"], grid)
 
 
-def run(config: Config, output: str | Path | None = None, *, overwrite: bool = False,
-        restart: str | Path | None = None, observers=(), grid: Grid | None = None) -> RunResult:
+def run(config: Config | str | Path, output: str | Path | None = None, *,
+        overwrite: bool = False, restart: str | Path | None = None, observers=(),
+        grid: Grid | None = None, progress: bool = False) -> RunResult:
     """Run a config to its stop rule.
 
     Parameters
     ----------
-    config : Config
+    config : Config or path
+        A config, or the path of a TOML config file (read with ``load_config``).
     output : path, optional
         Run file to write (HDF5).  None keeps everything in memory.
     overwrite : bool
@@ -48,15 +51,26 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     observers : extra ``simulation.Observer`` objects (a progress bar, say).
     grid : Grid, optional
         Override the config's grid (convergence studies).
+    progress : bool
+        Show a progress bar (a widget in Jupyter, a line on a terminal; see
+        ``convsim.run.progress``).
 
     Returns
     -------
     RunResult
+        With ``physical`` (answers in mW m^-2, cm yr^-1, K, Myr) and ``scales`` when the
+        config has a [body] table; ``result.to_xarray()`` gives an ``xarray.Dataset``.
     """
+    if not isinstance(config, Config):
+        config = load_config(config)
+    scales = None
     if config.body is not None:      # check the physical properties (units, dimensions) up front
         from convsim.units import scales_from_body
-        scales_from_body(config.body)
+        scales = scales_from_body(config.body)
     observers = list(observers)
+    if progress:
+        from convsim.run.progress import ProgressDisplay
+        observers.append(ProgressDisplay(config, always=True))
     resume = None
     if restart is not None:
         saved = read_run(restart, restart=True)
@@ -71,6 +85,10 @@ def run(config: Config, output: str | Path | None = None, *, overwrite: bool = F
     sim = Simulation(config, model, start_temperature(config, model.grid), observers)
     result = sim.run(resume)
     result.output = None if output is None else str(output)
+    if scales is not None:
+        from convsim.units import physical_quantities
+        result.scales = scales
+        result.physical = physical_quantities(result.summary(), scales, config.boundaries)
     if output is not None:
         write_xdmf(output, overwrite=True)      # the sidecar belongs to its run file
     return result

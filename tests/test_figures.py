@@ -24,6 +24,7 @@ import pytest
 
 from matplotlib import colors as mcolors  # noqa: E402
 from matplotlib.collections import QuadMesh  # noqa: E402
+from matplotlib.image import AxesImage  # noqa: E402
 from matplotlib.contour import ContourSet  # noqa: E402
 from matplotlib.quiver import Quiver  # noqa: E402
 
@@ -41,7 +42,9 @@ YEAR = 365.25 * 86400.0
 
 
 def _meshes(fig, label=None):
-    found = [a for ax in fig.axes for a in ax.collections if isinstance(a, QuadMesh)]
+    """The drawn fields: QuadMesh (cell shading) or AxesImage (smooth shading)."""
+    found = [a for ax in fig.axes for a in list(ax.collections) + list(ax.images)
+             if isinstance(a, (QuadMesh, AxesImage))]
     return [m for m in found if label is None or m.get_label() == label]
 
 
@@ -107,7 +110,11 @@ def test_plot_bad_input_is_one_line_exit_2(constant_run, tmp_path, capsys, bad):
 # -- plotted data equals the data in the run file -----------------------------------------------
 def test_temperature_mesh_is_the_temperature_field(constant_run):
     run = read_run(constant_run)
-    fig = figures.temperature_figure(run)
+    (image,) = _meshes(figures.temperature_figure(run), "temperature")    # smooth: an image
+    np.testing.assert_array_equal(np.asarray(image.get_array()), run.fields["temperature"])
+    assert isinstance(image, AxesImage) and image.origin == "lower"
+    assert image.get_extent() == [run.x_node[0], run.x_node[-1], run.z_node[0], run.z_node[-1]]
+    fig = figures.temperature_figure(run, shading="cells")
     (mesh,) = _meshes(fig, "temperature")
     np.testing.assert_array_equal(np.asarray(mesh.get_array()), run.fields["temperature"])
     corners = mesh.get_coordinates()  # (nz+1, nx+1, 2)
@@ -168,19 +175,30 @@ def test_viscosity_on_log_scale_when_it_varies(body_run, constant_run):
     assert not isinstance(mesh.norm, mcolors.LogNorm)
 
 
-def test_profiles_are_the_horizontal_means(constant_run, body_run):
+def test_profiles_are_the_horizontal_means_from_wall_to_wall(constant_run, body_run):
     for path in (constant_run, body_run):
         run = read_run(path)
         fig = figures.profiles_figure(run, pres=figures.Presentation())
-        ax_t, ax_eta = fig.axes
-        (lt,), (le,) = ax_t.get_lines(), ax_eta.get_lines()
-        np.testing.assert_array_equal(lt.get_xdata(), run.fields["temperature_profile"])
-        np.testing.assert_array_equal(lt.get_ydata(), run.z)
-        np.testing.assert_array_equal(le.get_xdata(), run.fields["viscosity_profile"])
+        ax_t, ax_2 = fig.axes
+        (lt,), (l2,) = ax_t.get_lines(), ax_2.get_lines()
+        np.testing.assert_array_equal(lt.get_xdata()[1:-1], run.fields["temperature_profile"])
+        np.testing.assert_array_equal(lt.get_ydata()[1:-1], run.z)
+        # the walls: the imposed temperatures (T = 1 at z = 0, T = 0 at z = 1)
+        assert list(lt.get_ydata()[[0, -1]]) == [0.0, 1.0]
+        assert list(lt.get_xdata()[[0, -1]]) == [1.0, 0.0]
         # the stored profile is the horizontal mean of the field (uniform grid)
-        np.testing.assert_allclose(lt.get_xdata(), run.fields["temperature"].mean(axis=1),
+        np.testing.assert_allclose(lt.get_xdata()[1:-1], run.fields["temperature"].mean(axis=1),
                                    rtol=1e-12)
-    assert ax_eta.get_xscale() == "log"  # body run: the viscosity varies
+        assert "t = " in ax_t.get_title(loc="left")       # which time the profiles show
+    # body run: the viscosity varies, log scale, the stored profile between the walls
+    np.testing.assert_array_equal(l2.get_xdata()[1:-1], run.fields["viscosity_profile"])
+    assert ax_2.get_xscale() == "log"
+    # uniform viscosity: the rms velocity profile instead of a flat line; its mean square over
+    # the height is vrms^2 (the series' last value) to the grid's accuracy
+    run = read_run(constant_run)
+    (l2,) = figures.profiles_figure(run, pres=figures.Presentation()).axes[1].get_lines()
+    assert l2.get_label() == "rms velocity"
+    assert np.mean(l2.get_xdata() ** 2) == pytest.approx(run.series["vrms"][-1] ** 2, rel=0.05)
 
 
 def test_series_lines_are_the_nusselt_and_vrms_series(constant_run):
@@ -203,7 +221,7 @@ def test_physical_units_from_the_body_table(body_run):
     run = read_run(body_run)
     pres = figures.presentation_for(run)
     assert pres.physical
-    (mesh,) = _meshes(figures.temperature_figure(run), "temperature")
+    (mesh,) = _meshes(figures.temperature_figure(run, shading="cells"), "temperature")
     np.testing.assert_allclose(np.asarray(mesh.get_array()),
                                TS + DT * run.fields["temperature"], rtol=1e-13)
     np.testing.assert_allclose(mesh.get_coordinates()[0, :, 0], run.x_node * D / 1e3,
@@ -361,15 +379,18 @@ def test_sequential_maps_rise_steadily_in_lightness(name):
     L = _lightness(name)
     steps = np.diff(L)
     assert np.all(steps > 0)
-    assert steps.max() < 2.0 * steps.min()  # nearly uniform steps
+    # Crameri's maps are uniform in a perceptual space that weighs hue and chroma too
+    # (CAM02-UCS), so their L* steps alone vary by up to a factor of ~2.5
+    assert steps.max() < 3.0 * steps.min()
     assert L[-1] - L[0] > 60
 
 
 def test_diverging_map_is_symmetric_with_a_light_centre():
     L = _lightness(style.DIVERGING_CMAP, 65)
-    centre = len(L) // 2
-    assert np.all(np.diff(L[: centre + 1]) > 0) and np.all(np.diff(L[centre:]) < 0)
-    assert abs(L[0] - L[-1]) < 3.0
+    centre, peak = len(L) // 2, int(np.argmax(L))
+    assert abs(peak - centre) <= 1                  # the lightest colour is the centre
+    assert np.all(np.diff(L[: peak + 1]) > 0) and np.all(np.diff(L[peak:]) < 0)
+    assert abs(L[0] - L[-1]) < 6.0                  # both ends about as dark (vik: 5 L*)
     assert L[centre] > 80.0
     assert style.symmetric_limits([-0.2, 0.5]) == (-0.5, 0.5)
 
@@ -378,3 +399,85 @@ def test_line_colours_are_okabe_ito():
     okabe_ito = {"#000000", "#e69f00", "#56b4e9", "#009e73", "#f0e442", "#0072b2", "#d55e00",
                  "#cc79a7"}  # Okabe & Ito (2008), quoted from memory
     assert set(style.LINE_COLORS) <= okabe_ito and len(set(style.LINE_COLORS)) == 7
+
+
+# -- what a reviewer asks of the figures ------------------------------------------------------
+def test_viscosity_colours_cover_the_relevant_range_and_say_where_clipped(body_run):
+    import dataclasses
+    run = read_run(body_run, 1)
+    z = run.z[:, None] * np.ones_like(run.fields["viscosity"])
+    steep = dict(run.fields, viscosity=10.0 ** (8.0 * z))          # 8 decades over the depth
+    clipped = dataclasses.replace(run, fields=steep)
+    (mesh,) = _meshes(figures.viscosity_figure(clipped, pres=figures.Presentation()),
+                      "viscosity")
+    lo, hi = mesh.norm.vmin, mesh.norm.vmax
+    assert lo == pytest.approx(steep["viscosity"].min())
+    assert hi == pytest.approx(lo * 10.0 ** style.VISCOSITY_DECADES)
+    assert mesh.colorbar.extend == "max" and "clipped" in mesh.colorbar.ax.get_ylabel()
+    (mesh,) = _meshes(figures.viscosity_figure(run, pres=figures.Presentation()), "viscosity")
+    assert mesh.colorbar.extend == "neither"     # 3 decades: all of it shown
+    assert mesh.norm.vmax == pytest.approx(run.fields["viscosity"].max())
+
+
+def test_streamline_key_states_the_interval_and_the_sense(constant_run):
+    run = read_run(constant_run)
+    fig = figures.temperature_figure(run, pres=figures.Presentation())
+    (cs,) = [a for ax in fig.axes for a in ax.collections if isinstance(a, ContourSet)]
+    legend = cs.axes.get_legend()
+    step = cs.levels[1] - cs.levels[0]
+    assert f"{float(f'{step:.3g}'):g}" in legend.get_title().get_text()
+    labels = [t.get_text() for t in legend.get_texts()]
+    assert "anticlockwise" in labels[0] and "clockwise" in labels[1]
+    # the sense: u = dpsi/dz > 0 below a maximum of psi, so the flow turns anticlockwise there
+    psi = run.fields["streamfunction"]
+    j, i = np.unravel_index(np.argmax(np.abs(psi)), psi.shape)
+    u = run.fields["velocity_x"]          # (z, x_node): u at height z[j-1], below the extremum
+    assert np.sign(u[j - 1, i]) == np.sign(psi[j, i])
+
+
+def test_animation_keeps_one_set_of_streamline_levels(constant_run, tmp_path, monkeypatch):
+    import shutil
+    monkeypatch.setattr(shutil, "which", lambda name: None)
+    seen = []
+    original = animation.draw_streamlines
+
+    def spy(ax, run, pres, psi=None, levels=None, legend=True):
+        seen.append(np.asarray(levels).copy())
+        return original(ax, run, pres, psi=psi, levels=levels, legend=legend)
+    monkeypatch.setattr(animation, "draw_streamlines", spy)
+    animation.animate_run(constant_run, tmp_path / "a.gif")
+    psi_max = max(np.abs(read_run(constant_run, k).fields["streamfunction"]).max()
+                  for k in range(len(read_run(constant_run).times)))
+    assert len(seen) == len(read_run(constant_run).times)
+    for levels in seen:
+        np.testing.assert_array_equal(levels, figures.streamline_levels([psi_max]))
+
+
+def test_series_mark_the_time_mean_over_its_window(constant_run):
+    run = read_run(constant_run)
+    t = run.series["series_time"]
+    start = float(t[len(t) // 2])
+    stats = {"nusselt_top": {"mean": 3.0, "ci95": 0.2, "from_time": start},
+             "vrms": {"mean": 20.0, "ci95": None, "from_time": start}}
+    ax_nu, ax_v = figures.series_figure(run, pres=figures.Presentation(),
+                                        statistics=stats).axes
+    (mean,) = [line for line in ax_nu.get_lines() if line.get_label() == "_mean"]
+    assert list(mean.get_ydata()) == [3.0, 3.0]
+    assert mean.get_xdata()[0] == start and mean.get_xdata()[1] == pytest.approx(t[-1])
+    assert any("mean" in text.get_text() for text in ax_nu.get_legend().get_texts())
+    (vmean,) = [line for line in ax_v.get_lines() if line.get_label() == "_mean"]
+    assert list(vmean.get_ydata()) == [20.0, 20.0]
+
+
+def test_summary_text_columns_do_not_overlap_and_use_one_unit_style(body_run):
+    import re
+    run = read_run(body_run)
+    fig = figures.summary_figure(run)
+    renderer = fig.canvas.get_renderer()
+    (sheet,) = [sub for sub in fig.subfigs if sub.texts]
+    left, right = sorted(sheet.texts, key=lambda t: t.get_position()[0])
+    assert left.get_window_extent(renderer).x1 < right.get_window_extent(renderer).x0
+    assert right.get_window_extent(renderer).x1 <= fig.bbox.x1
+    text = left.get_text() + "\n" + right.get_text()
+    assert "mW m^-2" in text and "mW/m2" not in text and "cm/yr" not in text
+    assert not re.search(r"\([^)]*\(", text.replace("exp(b)", "").replace("exp(c)", ""))

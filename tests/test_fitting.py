@@ -147,9 +147,12 @@ def test_fit_command_writes_report_and_figures(tmp_path, capsys):
     report = json.loads(capsys.readouterr().out)
     assert report["fits"][0]["fit"]["exponent"] == pytest.approx(0.3265, abs=1e-3)
     out = tmp_path / "fit"
-    for name in ("fit.json", "regimes.csv", "regime_map.png", "nusselt_top_against_rayleigh.png",
+    for name in ("fit.json", "regimes.csv", "nusselt_top_against_rayleigh.png",
                  "vrms_against_rayleigh.png"):
         assert (out / name).stat().st_size > 0
+    # the published cases are isoviscous: a regime map would say nothing, none is drawn
+    assert not (out / "regime_map.png").exists()
+    assert not any(p.endswith("regime_map.png") for p in report["outputs"])
     assert main(["fit", str(path)]) == 2          # outputs exist: refused
     assert "exists" in capsys.readouterr().err
     assert main(["fit", str(path), "--overwrite", "--y", "nusselt_top"]) == 0

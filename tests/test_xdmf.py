@@ -35,6 +35,15 @@ def _resolve(item, folder):
         out = data[index]
         assert out.size == int(np.prod(dims))  # the values, in order, shaped by Dimensions
         return out.reshape(dims)
+    if item.get("ItemType") == "Function":   # $k: the k-th child; JOIN: components side by side
+        args = [_resolve(child, folder) for child in item]
+        expression = item.get("Function")
+        for k in range(len(args) - 1, -1, -1):
+            expression = expression.replace(f"${k}", f"args[{k}]")
+        join = lambda *parts: np.stack(np.broadcast_arrays(*parts), axis=-1)  # noqa: E731
+        out = eval(expression.replace("JOIN", "join"), {"args": args, "join": join})
+        assert out.shape == dims
+        return out
     if item.get("Format") == "XML":
         return np.array(item.text.split(), dtype=float).reshape(dims)
     assert item.get("Format") == "HDF"
@@ -82,7 +91,20 @@ def test_sidecar_resolves_to_the_snapshot_fields(constant_run, sidecar):
         np.testing.assert_array_equal(vx, run.x_node)
         np.testing.assert_array_equal(vy, run.z_node)
         attributes = {a.get("Name"): a for a in grid.findall("Attribute")}
-        assert set(attributes) == {"temperature", "viscosity", "streamfunction"}
+        assert set(attributes) == {"temperature", "viscosity", "streamfunction", "velocity"}
+        # the velocity vector at the cell centres: u = dpsi/dz, w = -dpsi/dx by central
+        # differences of the corner streamfunction (exact for the face average of the scheme)
+        vector = attributes.pop("velocity")
+        assert vector.get("AttributeType") == "Vector" and vector.get("Center") == "Cell"
+        uvw = _resolve(vector.find("DataItem"), folder)
+        psi = run.fields["streamfunction"]
+        dx, dz = np.diff(run.x_node)[0], np.diff(run.z_node)[0]
+        u = (psi[1:, :-1] + psi[1:, 1:] - psi[:-1, :-1] - psi[:-1, 1:]) / (2 * dz)
+        w = -(psi[:-1, 1:] + psi[1:, 1:] - psi[:-1, :-1] - psi[1:, :-1]) / (2 * dx)
+        scale = max(np.abs(u).max(), np.abs(w).max(), 1.0)
+        np.testing.assert_allclose(uvw[..., 0], u, atol=1e-12 * scale)
+        np.testing.assert_allclose(uvw[..., 1], w, atol=1e-12 * scale)
+        assert np.all(uvw[..., 2] == 0.0)
         for name, attribute in attributes.items():
             data = _resolve(attribute.find("DataItem"), folder)
             np.testing.assert_array_equal(data, run.fields[name])

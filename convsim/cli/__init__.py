@@ -15,6 +15,7 @@ from convsim.errors import ConvsimError
 from convsim.cli.common import COMMANDS
 # the command groups register themselves, in the order `convsim --help` lists them
 from convsim.cli import run, rayleigh, sweep, onset, files, bench  # noqa: F401,E402
+from convsim.cli import scenario, compare  # noqa: F401,E402
 
 
 class _Parser(argparse.ArgumentParser):
@@ -28,7 +29,10 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("-v", "--verbose", action="store_true", help="log progress details")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
     for name, (help_text, add) in COMMANDS.items():
-        add(sub.add_parser(name, help=help_text, description=help_text))
+        command_parser = sub.add_parser(name, help=help_text, description=help_text)
+        command_parser.add_argument("-v", "--verbose", action="store_true",  # after it, too
+                                    default=argparse.SUPPRESS, help="log progress details")
+        add(command_parser)
     return parser
 
 

@@ -22,6 +22,9 @@ def _add_plot(p):
                    help="velocity arrows instead of streamlines over the temperature")
     p.add_argument("--units", default="auto", choices=("auto", "physical", "nondimensional"),
                    help="auto: physical units when the run's config has a [body] table")
+    p.add_argument("--shading", default="smooth", choices=("smooth", "cells"),
+                   help="fields interpolated between cell centres (smooth, default) or one "
+                        "flat colour per cell (cells)")
     p.add_argument("--overwrite", action="store_true", help="replace existing figure files")
     p.set_defaults(handler=_run_plot)
 
@@ -30,7 +33,7 @@ def _run_plot(args) -> int:
     from convsim.figures.fields import plot_run
     paths = plot_run(args.run, snapshot=args.snapshot, time=args.time, out_dir=args.out,
                      formats=args.format, arrows=args.arrows, overwrite=args.overwrite,
-                     units=args.units)
+                     units=args.units, shading=args.shading)
     for path in paths:
         print(path)
     return 0
@@ -56,8 +59,12 @@ def _run_animate(args) -> int:
         return tqdm(frames, total=total, unit="frame", file=sys.stderr, leave=False,
                     disable=None)
 
-    print(animate_run(args.run, args.out, fps=args.fps, overwrite=args.overwrite,
-                      units=args.units, progress=progress))
+    path = animate_run(args.run, args.out, fps=args.fps, overwrite=args.overwrite,
+                       units=args.units, progress=progress)
+    if args.out is None and path.suffix == ".gif":
+        print("convsim: ffmpeg is not on the PATH, so the animation is a GIF (install ffmpeg "
+              "for MP4)", file=sys.stderr)
+    print(path)
     return 0
 
 

@@ -1,4 +1,5 @@
-"""``convsim run``: a config to steady state, an end time or a step limit; the progress bar."""
+"""``convsim run``: a config to steady state, an end time or a step limit (progress bar:
+``convsim.run.progress``); the restart command after an interrupt or a divergence."""
 
 from __future__ import annotations
 
@@ -27,38 +28,14 @@ def load_run_config(path, overrides=(), grid=None):
     return load_config(path, items)
 
 
-class ProgressBar:
-    """Observer that shows time, step, Nu and vrms on stderr (only on a terminal)."""
-
-    def __init__(self, config):
-        from tqdm import tqdm
-        total = config.stop.max_steps if config.stop.end_time == 0 else None
-        self.bar = tqdm(total=total, unit="step", disable=None, leave=False, mininterval=0.5,
-                        dynamic_ncols=True, file=sys.stderr)
-
-    def on_start(self, simulation, resumed):
-        pass
-
-    def on_step(self, report):
-        self.bar.update(1)
-        if report.step % 25 == 0:
-            self.bar.set_postfix_str(f"t={report.time:.4g} Nu={report.nusselt_top:.5g} "
-                                     f"vrms={report.vrms:.5g}", refresh=False)
-
-    def on_snapshot(self, snap):
-        pass
-
-    def on_finish(self, result):
-        self.bar.close()
-
-
 #: Exit status of ``convsim run`` for the statuses that are not a normal end (0).
 EXIT_FOR_STATUS = {"diverged": 3, "interrupted": 130}
 
 
 @command("run", "run a config: a convecting box to steady state or an end time")
 def _add_run(p):
-    p.add_argument("config", help="TOML config file")
+    p.add_argument("config", nargs="?", help="TOML config file (with --restart: default the "
+                   "config stored in the run file)")
     p.add_argument("--out", default="runs", help="output folder (default: runs)")
     p.add_argument("--grid", help="grid NXxNZ, overriding domain.nx and domain.nz")
     p.add_argument("--set", action="append", default=[], metavar="SECTION.KEY=VALUE",
@@ -113,14 +90,22 @@ def _run(args):
     overrides = list(args.set)
     if args.start_from:
         overrides += ["start.kind=\"snapshot\"", f"start.file={json.dumps(args.start_from)}"]
-    cfg = load_run_config(args.config, overrides, args.grid)
+    if args.config is None and not args.restart:
+        from convsim.errors import ConfigError
+        raise ConfigError("config: missing; give a TOML config file, or --restart RUN.h5 to "
+                          "continue a run with the config it holds")
+    if args.config is None:
+        cfg = _restart_config(args.restart, overrides, args.grid)
+    else:
+        cfg = load_run_config(args.config, overrides, args.grid)
     output = None
     if args.restart:
         _check_restart_config(args.restart, cfg)
     else:
         output = Path(args.out) / (Path(args.config).stem + ".h5")
-    bar = ProgressBar(cfg)
-    result = api.run(cfg, output, overwrite=args.overwrite, restart=args.restart, observers=[bar])
+    from convsim.run.progress import ProgressDisplay
+    result = api.run(cfg, output, overwrite=args.overwrite, restart=args.restart,
+                     observers=[ProgressDisplay(cfg)])
     summary = result.summary()
     if args.json:
         emit_json(summary)
@@ -130,13 +115,44 @@ def _run(args):
               f"vrms {result.vrms:.6f}")
         print(f"  grid {result.grid.nx}x{result.grid.nz}  steps {result.steps}  "
               f"time {result.time:.6g}  wall {result.wall_seconds:.2f} s")
+        for line in physical_lines(result.physical):
+            print("  " + line)
         for line in statistics_lines(summary):
             print(f"  {line}")
         print(f"  run file {result.output}")
     if result.status == "diverged":
         print(f"convsim: run diverged: {result.message}; the last good state is in "
               f"{result.output}", file=sys.stderr)
+    if result.status in ("diverged", "interrupted") and result.output:
+        import shlex
+        print(f"convsim: continue it with: convsim run --restart {shlex.quote(result.output)}"
+              + (" (it continues bit for bit, so it may diverge again; a new run started "
+                 "with --from it may change [numerics], e.g. --set numerics.cfl=0.2)"
+                 if result.status == "diverged" else ""),
+              file=sys.stderr)
     return EXIT_FOR_STATUS.get(result.status, 0)
+
+
+def physical_lines(physical) -> list:
+    """The answers in physical units as text lines (empty without a [body] table)."""
+    if not physical:
+        return []
+    rows = [(name.replace("_", " "), entry) for name, entry in physical.items()]
+    return [("physical    " if i == 0 else " " * 12) + ", ".join(
+        f"{name} {entry['value']:.4g} {entry['units']}" for name, entry in rows[i:i + 3])
+        for i in range(0, len(rows), 3)]
+
+
+def _restart_config(path, overrides, grid):
+    """The config stored in a run file, with --set overrides (for ``run --restart`` alone)."""
+    import tomllib
+    from convsim.config import apply_overrides, parse_config
+    from convsim.errors import ConfigError
+    from convsim.files.runfile import read_run
+    if grid:
+        raise ConfigError(f"--grid {grid!r}: a restart continues on the run's own grid")
+    data = tomllib.loads(read_run(path).config_text)
+    return parse_config(apply_overrides(data, overrides), source=f"{path} (its config)")
 
 
 def _check_restart_config(path, cfg):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import sys
 
 from convsim.cli.common import command, emit_json
@@ -132,7 +133,10 @@ def _run_fit(args) -> int:
                         interior=args.interior_column, contrast=args.contrast_column)
     out = Path(args.out) if args.out else Path(args.table).parent / "fit"
     figures = {y: out / f"{y}_against_{args.x}.png" for y in ys}
-    paths = [out / "fit.json", out / "regimes.csv", out / "regime_map.png", *figures.values()]
+    from convsim.figures.sweep import varies
+    mapped = varies([r["viscosity_contrast"] for r in report["regimes"]])   # not isoviscous
+    paths = [out / "fit.json", out / "regimes.csv", *([out / "regime_map.png"] if mapped else []),
+             *figures.values()]
     existing = [str(p) for p in paths if p.exists()]
     if existing and not args.overwrite:
         raise OutputExistsError(f"output {existing[0]!r}: exists; pass --overwrite to replace it "
@@ -160,12 +164,14 @@ def _draw_fits(report: dict, figures: dict, x: str) -> None:
             fit = PowerLawFit(**{k: (tuple(tuple(r) for r in v) if k == "covariance" else
                                      tuple(v) if isinstance(v, list) else v)
                                  for k, v in e["fit"].items()})
-            label = "" if e["group"] is None else f"{e['group']} = {e['group_value']}"
+            label = ("" if e["group"] is None
+                     else figures_sweep.group_label(e["group"], e["group_value"]))
             series.append((label, e["x_values"], e["y_values"], fit))
         slope = entries[0]["reference_slope"] if entries else None
         figures_sweep.scaling_figure(path, series, x_label=FIT_LABELS.get(x, x),
                                      y_label=FIT_LABELS.get(y, y), reference_slope=slope,
-                                     reference_label=SLOPE_SOURCES.get(slope, ""))
+                                     reference_label=SLOPE_SOURCES.get(slope, ""),
+                                     x_symbol=figures_sweep.SYMBOLS.get(x, x))
 
 
 def _draw_regimes(rows: list, out, thresholds, contrast_column: str) -> None:
@@ -173,11 +179,12 @@ def _draw_regimes(rows: list, out, thresholds, contrast_column: str) -> None:
     import csv
     from convsim.files.atomic import atomic_path
     from convsim.figures import sweep as figures_sweep
-    figures_sweep.regime_map_figure(
-        out / "regime_map.png", [r["rayleigh_bottom"] for r in rows],
-        [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
-        thresholds_text=thresholds.text(), x_label="Rayleigh number at the bottom wall",
-        y_label=f"viscosity contrast ({contrast_column})")
+    if figures_sweep.varies([r["viscosity_contrast"] for r in rows]):  # isoviscous: no map
+        figures_sweep.regime_map_figure(
+            out / "regime_map.png", [r["rayleigh_bottom"] for r in rows],
+            [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
+            thresholds_text=thresholds.text(), x_label="Rayleigh number at the bottom wall",
+            y_label=f"viscosity contrast ({contrast_column})")
     with atomic_path(out / "regimes.csv") as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
         writer = csv.DictWriter(fh, fieldnames=list(rows[0]) if rows else ["case_id"])
         writer.writeheader()
@@ -194,9 +201,12 @@ def _print_fits(report: dict, out) -> None:
         lo, hi = f["exponent_interval"]
         alo, ahi = f["prefactor_interval"]
         ref = e["reference_slope"]
-        print(f"{e['y']} = a {e['x']}^beta{where}: beta = {f['exponent']:.4f} "
-              f"[{lo:.4f}, {hi:.4f}], a = {f['prefactor']:.4g} [{alo:.4g}, {ahi:.4g}] "
-              f"({100 * f['confidence']:g}%, n = {f['n']})"
+        intervals = (f"beta = {f['exponent']:.4f} [{lo:.4f}, {hi:.4f}], a = {f['prefactor']:.4g} "
+                     f"[{alo:.4g}, {ahi:.4g}] ({100 * f['confidence']:g}%, n = {f['n']})"
+                     if f["n"] > 2 and lo is not None and math.isfinite(lo) else
+                     f"beta = {f['exponent']:.4f}, a = {f['prefactor']:.4g} (n = {f['n']}: a "
+                     f"line through {f['n']} points, intervals are not available)")
+        print(f"{e['y']} = a {e['x']}^beta{where}: {intervals}"
               + (f"; boundary-layer theory {ref:.4f}" if ref else ""))
     for x in report.get("excluded", []):
         print(f"excluded {x['case_id']}: {x['reason']}")
@@ -214,4 +224,6 @@ def _print_fits(report: dict, out) -> None:
     for r in report["regimes"]:
         counts[r["regime"]] = counts.get(r["regime"], 0) + 1
     print("regimes: " + ", ".join(f"{n} {k}" for k, n in counts.items()))
+    if not any(str(p).endswith("regime_map.png") for p in report.get("outputs", ())):
+        print("  no regime map: every case is isoviscous (viscosity contrast 1)")
     print(f"  outputs in {out}")

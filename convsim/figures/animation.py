@@ -14,7 +14,8 @@ from pathlib import Path
 
 from convsim.figures import style
 from convsim.errors import ConfigError
-from convsim.figures.fields import _field_size, draw_streamlines, draw_temperature
+from convsim.figures.fields import (_field_size, draw_streamlines, draw_temperature,
+                                    streamline_levels)
 from convsim.figures.presentation import presentation_for
 from convsim.files.atomic import atomic_path
 from convsim.files.runfile import check_writable, iter_fields, read_run
@@ -62,7 +63,9 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
         ``progress(iterable, total) -> iterable``, e.g. a tqdm bar.
 
     Colour limits are the extremes over all snapshots, so colours mean the same
-    in every frame; the streamline levels follow each frame's own max |psi|.
+    in every frame; the streamline levels are fixed too, from the largest |psi| of
+    all snapshots, so a nearly still start shows few streamlines and a vigorous
+    flow many.
     """
     path = Path(path)
     if not (isinstance(fps, int) and 1 <= fps <= 120):
@@ -72,17 +75,20 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
     check_writable(output, overwrite)
     run = read_run(path, 0)
     pres = presentation_for(run, units)
-    lo, hi = math.inf, -math.inf
-    for _, _, f in iter_fields(path, ("temperature",)):
+    lo, hi, psi_max = math.inf, -math.inf, 0.0
+    for _, _, f in iter_fields(path, ("temperature", "streamfunction")):
         lo, hi = min(lo, float(f["temperature"].min())), max(hi, float(f["temperature"].max()))
+        psi_max = max(psi_max, float(abs(f["streamfunction"]).max()))
+    levels = streamline_levels([psi_max])
     count = len(run.times)
     with style.context():
         width, height = _field_size(run)
+        height += 0.35      # the streamline key under the axes
         # whole, even pixel counts (the yuv420p pixel format of MP4 needs even sizes)
         width, height = (2 * round(v * dpi / 2) / dpi for v in (width, height))
         fig = style.new_figure(width, height)
         ax = fig.add_subplot()
-        mesh = draw_temperature(ax, run, pres)
+        mesh = draw_temperature(ax, run, pres, levels=levels)
         mesh.set_clim(pres.temperature(lo), pres.temperature(hi))
         style.freeze_layout(fig)  # no jitter as the title changes
         frames = iter_fields(path, ("temperature", "streamfunction"))
@@ -95,7 +101,8 @@ def animate_run(path: str | Path, output: str | Path | None = None, *, fps: int 
                 for artist in list(ax.collections):
                     if artist is not mesh:
                         artist.remove()
-                draw_streamlines(ax, run, pres, psi=f["streamfunction"])
+                draw_streamlines(ax, run, pres, psi=f["streamfunction"], levels=levels,
+                                 legend=False)
                 ax.set_title(pres.time_text(t) + f"  (snapshot {index})", loc="left")
                 writer.grab_frame()
     return output

@@ -35,24 +35,29 @@ from pathlib import Path
 
 import numpy as np
 from matplotlib import colors as mcolors
-from matplotlib import patheffects, ticker
+from matplotlib import patheffects, ticker, transforms
 
 from convsim.figures import style
 from convsim.errors import ConfigError
 from convsim.figures.presentation import (Presentation, parameter_lines, presentation_for, run_config,
                            select_snapshot, viscosity_varies)
+from convsim.figures.lines import (draw_profiles, draw_series, profiles_figure, run_statistics,
+                                   series_figure)
 from convsim.files.runfile import RunFile, check_writable, read_run
 
 __all__ = ["Presentation", "presentation_for", "select_snapshot", "viscosity_varies",
            "temperature_figure", "viscosity_figure", "profiles_figure", "series_figure",
            "summary_figure", "draw_temperature", "draw_streamlines", "draw_arrows",
            "draw_anomaly", "draw_viscosity", "draw_profiles", "draw_series", "log_ticks",
-           "save_figures", "plot_run"]
+           "save_figures", "plot_run", "draw_field", "streamline_levels", "SHADINGS"]
 
 log = logging.getLogger(__name__)
 
 #: Number of streamline levels on each side of zero.
 STREAMLINE_LEVELS = 6
+#: Field shadings: "smooth" (bilinear between cell centres, held in the outer half
+#: cells) or "cells" (one flat colour per cell, the values the scheme holds).
+SHADINGS = ("smooth", "cells")
 #: Arrows across the box in the arrow plot (at most).
 ARROWS_ACROSS = 14
 _HALO = [patheffects.withStroke(linewidth=1.3, foreground="white")]
@@ -93,16 +98,45 @@ def streamline_levels(psi, n: int = STREAMLINE_LEVELS) -> np.ndarray:
     return np.concatenate([-m * k[::-1], m * k])
 
 
-def draw_streamlines(ax, run: RunFile, pres: Presentation, psi=None):
-    """Contours of the streamfunction on the corner grid; returns the ContourSet or None."""
+def draw_streamlines(ax, run: RunFile, pres: Presentation, psi=None, levels=None,
+                     legend=True):
+    """Contours of the streamfunction on the corner grid; returns the ContourSet or None.
+
+    ``levels``: fixed contour levels (an animation keeps one set for every frame); default
+    :func:`streamline_levels` of this psi.  ``legend``: a key under the axes saying the
+    contour interval and the sense of rotation (u = dpsi/dz, w = -dpsi/dx, so the flow
+    turns anticlockwise around a maximum of psi: solid, psi > 0; dashed, psi < 0 clockwise).
+    """
     psi = run.fields["streamfunction"] if psi is None else psi
-    levels = streamline_levels(psi)
+    levels = streamline_levels(psi) if levels is None else np.asarray(levels)
     if levels.size == 0:
         return None
     cs = ax.contour(pres.length(run.x_node), pres.length(run.z_node), psi, levels=levels,
                     colors="black", linewidths=0.6, negative_linestyles="dashed")
     cs.set_path_effects(_HALO)
+    if legend:
+        _streamline_key(ax, levels, pres)
     return cs
+
+
+def streamline_interval_text(levels, pres: Presentation) -> str:
+    """The contour interval of psi, nondimensional (kappa) or in m^2 s^-1."""
+    step = float(levels[1] - levels[0]) if len(levels) > 1 else float(abs(levels[0]))
+    if pres.physical:
+        return f"{style.log_label(float(f'{step * pres.scales.diffusivity:.2g}'))} m$^2$ s$^{{-1}}$"
+    return f"{style.log_label(float(f'{step:.3g}'))} $\\kappa$"
+
+
+def _streamline_key(ax, levels, pres: Presentation):
+    from matplotlib.lines import Line2D
+    handles = [Line2D([], [], color="black", linewidth=0.6),
+               Line2D([], [], color="black", linewidth=0.6, linestyle="--")]
+    ax.legend(handles, ["$\\psi > 0$, anticlockwise", "$\\psi < 0$, clockwise"],
+              title=f"streamlines every $\\Delta\\psi$ = {streamline_interval_text(levels, pres)}",
+              loc="upper center", bbox_to_anchor=(0.5, 0.0), ncols=2, fontsize=6.5,
+              bbox_transform=transforms.offset_copy(ax.transAxes, fig=ax.figure, y=-28,
+                                                    units="points"),
+              title_fontsize=6.5, handlelength=2.2, borderaxespad=0.0, columnspacing=1.2)
 
 
 def cell_velocities(run: RunFile):
@@ -131,17 +165,34 @@ def draw_arrows(ax, run: RunFile, pres: Presentation):
     return q
 
 
-def draw_temperature(ax, run: RunFile, pres: Presentation, *, arrows=False, colorbar=True):
-    """Temperature field with streamlines (or arrows) on ``ax``; returns the QuadMesh."""
+def draw_field(ax, run: RunFile, pres: Presentation, values, *, shading="smooth", **kwargs):
+    """A cell field on ``ax``: an image (``smooth``) or a QuadMesh (``cells``).
+
+    ``smooth`` interpolates bilinearly between the cell centres and holds the value in
+    the outer half cells (``imshow`` over the box); ``cells`` draws one flat colour per
+    cell over the cell corners.  Either way ``get_array()`` is ``values`` itself.
+    """
+    if shading not in SHADINGS:
+        raise ConfigError(f"--shading = {shading!r}: expected one of {', '.join(SHADINGS)}")
+    x, z = pres.length(run.x_node), pres.length(run.z_node)
+    if shading == "cells":
+        return ax.pcolormesh(x, z, values, shading="flat", rasterized=True, **kwargs)
+    return ax.imshow(values, origin="lower", extent=(x[0], x[-1], z[0], z[-1]),
+                     interpolation="bilinear", interpolation_stage="data", aspect="equal",
+                     rasterized=True, **kwargs)
+
+
+def draw_temperature(ax, run: RunFile, pres: Presentation, *, arrows=False, colorbar=True,
+                     shading="smooth", levels=None):
+    """Temperature field with streamlines (or arrows) on ``ax``; returns the image or mesh."""
     T = pres.temperature(run.fields["temperature"])
-    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), T,
-                         cmap=style.TEMPERATURE_CMAP, shading="flat", rasterized=True,
-                         vmin=float(np.min(T)), vmax=float(np.max(T)))
+    mesh = draw_field(ax, run, pres, T, shading=shading, cmap=style.TEMPERATURE_CMAP,
+                      vmin=float(np.min(T)), vmax=float(np.max(T)))
     mesh.set_label("temperature")
     if arrows:
         draw_arrows(ax, run, pres)
     else:
-        draw_streamlines(ax, run, pres)
+        draw_streamlines(ax, run, pres, levels=levels)
     _field_axes(ax, run, pres)
     ax.set_title(pres.time_text(run.times[run.snapshot]) + f"  (snapshot {run.snapshot})",
                  loc="left")
@@ -150,14 +201,13 @@ def draw_temperature(ax, run: RunFile, pres: Presentation, *, arrows=False, colo
     return mesh
 
 
-def draw_anomaly(ax, run: RunFile, pres: Presentation, *, colorbar=True):
-    """Temperature anomaly T - <T>(z) (row mean removed) on the diverging map; the QuadMesh."""
+def draw_anomaly(ax, run: RunFile, pres: Presentation, *, colorbar=True, shading="smooth"):
+    """Temperature anomaly T - <T>(z) (row mean removed) on the diverging map."""
     T = run.fields["temperature"]
     anomaly = pres.temperature_difference(T - T.mean(axis=1, keepdims=True))
     lo, hi = style.symmetric_limits(anomaly)
-    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), anomaly,
-                         cmap=style.DIVERGING_CMAP, vmin=lo, vmax=hi, shading="flat",
-                         rasterized=True)
+    mesh = draw_field(ax, run, pres, anomaly, shading=shading, cmap=style.DIVERGING_CMAP,
+                      vmin=lo, vmax=hi)
     mesh.set_label("temperature anomaly")
     _field_axes(ax, run, pres)
     ax.set_title(pres.time_text(run.times[run.snapshot]), loc="left")
@@ -177,121 +227,39 @@ _log_label = style.log_label
 log_ticks = style.log_ticks
 
 
-def draw_viscosity(ax, run: RunFile, pres: Presentation, *, colorbar=True):
-    """Viscosity field on ``ax``, log colour scale when it varies; returns the QuadMesh."""
+def viscosity_range(eta) -> tuple[float, float, bool]:
+    """(lo, hi, clipped): the colour range of a varying viscosity field.
+
+    From the lowest value up :data:`convsim.figures.style.VISCOSITY_DECADES` decades (the
+    dynamically relevant range); ``clipped`` when the field goes above it.
+    """
+    lo, top = float(np.min(eta)), float(np.max(eta))
+    hi = min(top, lo * 10.0 ** style.VISCOSITY_DECADES)
+    return lo, hi, top > hi * (1.0 + 1e-9)
+
+
+def draw_viscosity(ax, run: RunFile, pres: Presentation, *, colorbar=True, shading="smooth"):
+    """Viscosity field on ``ax``, log colour scale over its dynamically relevant range when
+    it varies (the colour bar says where it is clipped); returns the image or mesh."""
     eta = pres.viscosity(run.fields["viscosity"])
-    lo, hi = float(np.min(eta)), float(np.max(eta))
+    lo, hi, clipped = viscosity_range(eta)
     norm = (mcolors.LogNorm(vmin=lo, vmax=hi) if viscosity_varies(eta)
             else mcolors.Normalize(vmin=lo * 0.5, vmax=hi * 1.5))
-    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), eta,
-                         cmap=style.VISCOSITY_CMAP, norm=norm, shading="flat", rasterized=True)
+    mesh = draw_field(ax, run, pres, eta, shading=shading, cmap=style.VISCOSITY_CMAP,
+                      norm=norm)
     mesh.set_label("viscosity")
     _field_axes(ax, run, pres)
     ax.set_title(pres.time_text(run.times[run.snapshot]), loc="left")
     if colorbar:
-        cbar = _colorbar(ax, mesh, pres.viscosity_label)
+        label = pres.viscosity_label
+        if clipped:
+            label += f"\nclipped above {style.log_label(hi)}"
+        cax = ax.inset_axes([1.04, 0.0, 0.05, 1.0])
+        cbar = ax.figure.colorbar(mesh, cax=cax, label=label,
+                                  extend="max" if clipped else "neither")
         if isinstance(norm, mcolors.LogNorm):
             log_ticks(cbar.ax.yaxis, lo, hi, max_labels=6)
     return mesh
-
-
-def draw_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation):
-    """Horizontally averaged T(z) and eta(z); returns the two Line2D."""
-    z = pres.length(run.z)
-    (lt,) = ax_t.plot(pres.temperature(run.fields["temperature_profile"]), z,
-                      color=style.LINE_COLORS[1], label="temperature")
-    ax_t.set_xlabel(pres.temperature_label)
-    ax_t.set_ylabel(pres.z_label)
-    eta = pres.viscosity(run.fields["viscosity_profile"])
-    (le,) = ax_eta.plot(eta, z, color=style.LINE_COLORS[0], label="viscosity")
-    if viscosity_varies(eta):
-        ax_eta.set_xscale("log")
-        lo, hi = float(eta.min()), float(eta.max())
-        pad = (hi / lo) ** 0.05
-        ax_eta.set_xlim(lo / pad, hi * pad)
-        log_ticks(ax_eta.xaxis, lo / pad, hi * pad, max_labels=4)
-    else:
-        ax_eta.set_xlim(float(eta.min()) * 0.5, float(eta.max()) * 1.5)
-    ax_eta.set_xlabel(pres.viscosity_label)
-    for ax in (ax_t, ax_eta):
-        ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
-        ax.grid(True, linewidth=0.3, color="0.85")
-    ax_eta.tick_params(labelleft=False)
-    _draw_mean_profiles(ax_t, ax_eta, run, pres, z)
-    return lt, le
-
-
-def _time_means(run: RunFile) -> dict:
-    """The run's time means, when it is time-dependent (settled is not 'steady')."""
-    stats = getattr(run, "statistics", None) or {}
-    if stats.get("settled") in (None, "steady"):
-        return {}
-    return stats.get("statistics", {})
-
-
-def _draw_mean_profiles(ax_t, ax_eta, run: RunFile, pres: Presentation, z) -> None:
-    """The time-mean profiles (dashed) with their 95 % bands, over the instantaneous ones
-    (statistically steady runs only: an unfinished run's mean profile is still moving)."""
-    means = _time_means(run) if run.statistics.get("settled") == "statistically-steady" else {}
-    for ax, name, convert, colour in ((ax_t, "temperature_profile", pres.temperature, 1),
-                                      (ax_eta, "viscosity_profile", pres.viscosity, 0)):
-        if name not in means:
-            continue
-        m, h = np.asarray(means[name]["mean"], float), np.asarray(means[name]["ci95"], float)
-        h = np.where(np.isfinite(h), h, 0.0)
-        ax.fill_betweenx(z, convert(m - h), convert(m + h), color=style.LINE_COLORS[colour],
-                         alpha=0.2, linewidth=0)
-        ax.plot(convert(m), z, color=style.LINE_COLORS[colour], linestyle="--",
-                label=f"time mean from t = {means[name]['from_time']:.3g}")
-    if means:
-        ax_t.legend(loc="best")
-
-
-def draw_series(ax_nu, ax_v, run: RunFile, pres: Presentation):
-    """Nu top and bottom (or heat flux) and vrms against time; returns the three Line2D."""
-    s = run.series
-    t = pres.time(s["series_time"])
-    (top,) = ax_nu.plot(t, pres.heat_flux(s["nusselt_top"]), color=style.LINE_COLORS[1],
-                        label="top")
-    (bottom,) = ax_nu.plot(t, pres.heat_flux(s["nusselt_bottom"]), color=style.LINE_COLORS[0],
-                           linestyle="--", label="bottom")
-    ax_nu.set_ylabel(pres.heat_flux_label)
-    ax_nu.legend(loc="best")
-    (vrms,) = ax_v.plot(t, pres.velocity(s["vrms"]), color=style.LINE_COLORS[2], label="vrms")
-    ax_v.set_ylabel(pres.velocity_label)
-    ax_v.set_xlabel(pres.time_label)
-    shown = pres.time(run.times[run.snapshot])
-    for ax in (ax_nu, ax_v):
-        ax.grid(True, linewidth=0.3, color="0.85")
-        if len(t):
-            start = min(float(t[0]), float(pres.time(run.times[0])))
-            ax.set_xlim(start, float(t[-1]) if t[-1] > start else start + 1.0)
-            ax.axvline(shown, color="0.5", linewidth=0.6, linestyle=":", zorder=0)
-    ax_nu.tick_params(labelbottom=False)
-    _draw_averaging_window(ax_nu, ax_v, run, pres)
-    return top, bottom, vrms
-
-
-def _draw_averaging_window(ax_nu, ax_v, run: RunFile, pres: Presentation) -> None:
-    """Shade the averaging window; the time means as horizontal lines with 95 % bands."""
-    means = _time_means(run)
-    if "nusselt_top" not in means:
-        return
-    start, end = pres.time(means["nusselt_top"]["from_time"]), pres.time(run.series["series_time"][-1])
-    for ax in (ax_nu, ax_v):
-        ax.axvspan(start, end, color=style.GUIDE_COLOR, alpha=0.12, linewidth=0, zorder=0,
-                   label="averaging window" if ax is ax_nu else None)
-    for ax, name, convert, colour, dash in ((ax_nu, "nusselt_top", pres.heat_flux, 1, "-"),
-                                            (ax_nu, "nusselt_bottom", pres.heat_flux, 0, "--"),
-                                            (ax_v, "vrms", pres.velocity, 2, "-")):
-        m, h = means[name]["mean"], means[name]["ci95"]
-        h = h if h is not None and np.isfinite(h) else 0.0
-        ax.hlines(convert(m), start, end, color=style.LINE_COLORS[colour], linewidth=1.2,
-                  linestyles=dash, zorder=3,
-                  label="time mean, 95 % band" if name == "nusselt_top" else None)
-        ax.fill_between([start, end], convert(m - h), convert(m + h),
-                        color=style.LINE_COLORS[colour], alpha=0.25, linewidth=0, zorder=2)
-    ax_nu.legend(loc="best")
 
 
 # -- figures ----------------------------------------------------------------------------------
@@ -301,51 +269,52 @@ def _field_size(run: RunFile, width=style.COLUMN_WIDTH):
     return width, height
 
 
-def temperature_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None):
+def temperature_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None,
+                       shading: str = "smooth"):
     """Temperature field with streamlines (or velocity arrows), one column wide."""
     pres = presentation_for(run) if pres is None else pres
+    width, height = _field_size(run)
     with style.context():
-        fig = style.new_figure(*_field_size(run))
-        draw_temperature(fig.add_subplot(), run, pres, arrows=arrows)
+        fig = style.new_figure(width, height + (0 if arrows else 0.35))
+        draw_temperature(fig.add_subplot(), run, pres, arrows=arrows, shading=shading)
     return style.freeze_layout(fig)
 
 
-def viscosity_figure(run: RunFile, *, pres: Presentation | None = None):
+def viscosity_figure(run: RunFile, *, pres: Presentation | None = None, shading: str = "smooth"):
     """Viscosity field (log colour scale when it varies), one column wide."""
     pres = presentation_for(run) if pres is None else pres
     with style.context():
         fig = style.new_figure(*_field_size(run))
-        draw_viscosity(fig.add_subplot(), run, pres)
+        draw_viscosity(fig.add_subplot(), run, pres, shading=shading)
     return style.freeze_layout(fig)
 
 
-def profiles_figure(run: RunFile, *, pres: Presentation | None = None):
-    """Horizontally averaged temperature and viscosity against height, side by side."""
-    pres = presentation_for(run) if pres is None else pres
-    with style.context():
-        fig = style.new_figure(style.COLUMN_WIDTH, 2.6)
-        ax_t, ax_eta = fig.subplots(1, 2, sharey=True)
-        draw_profiles(ax_t, ax_eta, run, pres)
-    return style.freeze_layout(fig)
+def _parameter_columns(lines, width_chars: int = 64):
+    """The (name, value) pairs as two columns of wrapped text (no line runs into the other)."""
+    import textwrap
+    wrapped = [textwrap.fill(f"{k}: {v}", width_chars, subsequent_indent="    ")
+               for k, v in lines]
+    counts = [w.count("\n") + 1 for w in wrapped]
+    total, acc, split = sum(counts), 0, len(wrapped)
+    for i, c in enumerate(counts):
+        if acc + c > (total + 1) // 2:
+            split = i
+            break
+        acc += c
+    left, right = wrapped[:split], wrapped[split:]
+    rows = max(sum(counts[:split]), sum(counts[split:]))
+    return "\n".join(left), "\n".join(right), rows
 
 
-def series_figure(run: RunFile, *, pres: Presentation | None = None):
-    """Nusselt numbers (top, bottom) and vrms against time, stacked."""
-    pres = presentation_for(run) if pres is None else pres
-    with style.context():
-        fig = style.new_figure(style.COLUMN_WIDTH, 3.2)
-        ax_nu, ax_v = fig.subplots(2, 1, sharex=True)
-        draw_series(ax_nu, ax_v, run, pres)
-    return style.freeze_layout(fig)
-
-
-def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None):
+def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | None = None,
+                   shading: str = "smooth", statistics=None):
     """One page: fields, profiles, time series and the key parameters of the run.
 
     The fields are the temperature (with streamlines or arrows) and the
     viscosity, or, when the viscosity is uniform, the temperature anomaly
     T - <T>(z) on the diverging map.  Boxes wider than 1.6 depths are stacked,
-    narrower ones side by side.
+    narrower ones side by side.  The parameters are set in two columns wrapped
+    to their width, the page as tall as its contents.
     """
     cfg = run_config(run)
     pres = presentation_for(run, config=cfg) if pres is None else pres
@@ -353,34 +322,32 @@ def summary_figure(run: RunFile, *, arrows: bool = False, pres: Presentation | N
     stacked = aspect >= 1.6
     if stacked:
         field_height = min(1.7, (style.PAGE_WIDTH - 1.7) / aspect)
-        top_height = 2.0 * (field_height + 0.6)
+        top_height = 2.0 * (field_height + 1.0)
     else:
         field_height = min(3.0, (style.PAGE_WIDTH / 2.0 - 1.3) / aspect)
-        top_height = field_height + 0.8
-    heights = [top_height, 2.1, 2.2, 1.5]
+        top_height = field_height + 1.2
+    left, right, rows = _parameter_columns(parameter_lines(run, pres, cfg))
+    heights = [top_height, 2.2, 2.2, 0.15 * rows + 0.2]
     with style.context():
         fig = style.new_figure(style.PAGE_WIDTH, sum(heights) + 0.3)
         title = run.attrs.get("title") or cfg.title or run.path.stem
         fig.suptitle(title, fontsize=10, x=0.02, horizontalalignment="left")
         top, middle, bottom, text = fig.subfigures(4, 1, height_ratios=heights)
         ax_t, ax_2 = top.subplots(2, 1) if stacked else top.subplots(1, 2)
-        draw_temperature(ax_t, run, pres, arrows=arrows)
+        draw_temperature(ax_t, run, pres, arrows=arrows, shading=shading)
         if viscosity_varies(run.fields["viscosity"]):
-            draw_viscosity(ax_2, run, pres)
+            draw_viscosity(ax_2, run, pres, shading=shading)
         else:
-            draw_anomaly(ax_2, run, pres)
+            draw_anomaly(ax_2, run, pres, shading=shading)
         ax_pt, ax_pe = middle.subplots(1, 2, sharey=True)
-        draw_profiles(ax_pt, ax_pe, run, pres)
+        draw_profiles(ax_pt, ax_pe, run, pres, cfg, statistics)
         ax_nu, ax_v = bottom.subplots(1, 2)
-        draw_series(ax_nu, ax_v, run, pres)
+        draw_series(ax_nu, ax_v, run, pres, statistics)
         ax_nu.tick_params(labelbottom=True)
         ax_nu.set_xlabel(pres.time_label)
-        lines = parameter_lines(run, pres, cfg)
-        half = (len(lines) + 1) // 2
-        for col, chunk in enumerate((lines[:half], lines[half:])):
-            body = "\n".join(f"{k}: {v}" for k, v in chunk)
-            text.text(0.02 + 0.5 * col, 0.95, body, va="top", ha="left", fontsize=7,
-                      linespacing=1.5, wrap=True)
+        for col, body in enumerate((left, right)):
+            text.text(0.02 + 0.5 * col, 0.98, body, va="top", ha="left", fontsize=7,
+                      linespacing=1.45)
     return style.freeze_layout(fig)
 
 
@@ -418,7 +385,7 @@ def save_figures(figures: dict, out_dir: str | Path, formats=style.FORMATS, *,
 
 def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_dir=None,
              formats=style.FORMATS, arrows: bool = False, overwrite: bool = False,
-             units: str = "auto") -> list[Path]:
+             units: str = "auto", shading: str = "smooth") -> list[Path]:
     """All figures of one run file (the ``convsim plot`` command); returns the paths written.
 
     Files are ``<stem>_temperature``, ``_viscosity`` (only when the viscosity
@@ -435,15 +402,21 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
     run = first if index == first.snapshot else read_run(path, index)
     tag = "" if snapshot is None and time is None else f"_s{index:04d}"
     stem = path.stem
-    makers = {f"{stem}_temperature{tag}": lambda: temperature_figure(run, arrows=arrows, pres=pres)}
+    if shading not in SHADINGS:
+        raise ConfigError(f"--shading = {shading!r}: expected one of {', '.join(SHADINGS)}")
+    stats = run_statistics(first)
+    makers = {f"{stem}_temperature{tag}": lambda: temperature_figure(run, arrows=arrows, pres=pres,
+                                                                     shading=shading)}
     if viscosity_varies(run.fields["viscosity"]):
-        makers[f"{stem}_viscosity{tag}"] = lambda: viscosity_figure(run, pres=pres)
+        makers[f"{stem}_viscosity{tag}"] = lambda: viscosity_figure(run, pres=pres,
+                                                                    shading=shading)
     else:
         log.info("viscosity uniform (%g): no viscosity field figure",
                  run.fields["viscosity"].flat[0])
-    makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres)
-    makers[f"{stem}_series"] = lambda: series_figure(run, pres=pres)
-    makers[f"{stem}_summary{tag}"] = lambda: summary_figure(run, arrows=arrows, pres=pres)
+    makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres, statistics=stats)
+    makers[f"{stem}_series"] = lambda: series_figure(run, pres=pres, statistics=stats)
+    makers[f"{stem}_summary{tag}"] = lambda: summary_figure(run, arrows=arrows, pres=pres,
+                                                            shading=shading, statistics=stats)
     out_dir = path.parent if out_dir is None else Path(out_dir)
     for name in makers:  # refuse before drawing anything
         for fmt in formats:

@@ -66,7 +66,7 @@ def neutral_curve_figure(result) -> Figure:
             ax.set_xscale("log")
         ax.set_yscale("log")
         ax.yaxis.set_major_locator(LogLocator(base=10.0, subs=(1.0, 2.0, 5.0)))
-        plain = FuncFormatter(lambda value, _: f"{value:g}")
+        plain = FuncFormatter(lambda value, _: style.log_label(value))   # never "5e-09"
         for axis in (ax.xaxis, ax.yaxis):
             axis.set_major_formatter(plain)
             axis.set_minor_formatter(NullFormatter())

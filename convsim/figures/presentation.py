@@ -235,9 +235,10 @@ def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple
     t_end = _final(run, "time")
     if t_end is None and len(run.series.get("series_time", ())):
         t_end = run.series["series_time"][-1]
+    flux_units, velocity_units = "mW m^-2", "cm yr^-1"     # one unit style on the sheet
+    message = run.attrs.get("final_message")
     lines = [
-        ("status", f"{run.attrs.get('status', '?')}"
-                   + (f" ({run.attrs['final_message']})" if run.attrs.get("final_message") else "")),
+        ("status", f"{run.attrs.get('status', '?')}" + (f", {message}" if message else "")),
         ("Rayleigh number", f"{ra:.6g}"
          + (f", internal heating H = {cfg.physics.internal_heating:g}"
             if cfg.physics.internal_heating else "")),
@@ -247,15 +248,14 @@ def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple
         ("bottom", f"{b.bottom_flow}, {heat(b.bottom_heat, b.bottom_value)}"),
         ("viscosity law", law),
         ("final Nu top / bottom", f"{num(nu_top)} / {num(nu_bottom)}"
-         + (f" ({pres.heat_flux(nu_top):.4g} / {pres.heat_flux(nu_bottom):.4g} mW/m2)"
-            if pres.physical and None not in (nu_top, nu_bottom) else "")),
-        ("final vrms", num(vrms) + (f" ({pres.velocity(vrms):.4g} cm/yr)"
+         + (f"; heat flow {pres.heat_flux(nu_top):.4g} / {pres.heat_flux(nu_bottom):.4g} "
+            f"{flux_units}" if pres.physical and None not in (nu_top, nu_bottom) else "")),
+        ("final vrms", num(vrms) + (f" = {pres.velocity(vrms):.4g} {velocity_units}"
                                     if pres.physical and vrms is not None else "")),
         ("steps, time", f"{num(_final(run, 'steps'), 'g')}, t = {num(t_end)}"
-         + (f" ({pres.time(t_end):.4g} Myr)" if pres.physical and t_end is not None else "")),
+         + (f" = {pres.time(t_end):.4g} Myr" if pres.physical and t_end is not None else "")),
         ("snapshot shown", f"{run.snapshot} of {len(run.times)}, "
-                           f"{pres.time_text(run.times[run.snapshot])}"
-                          ),
+                           f"{pres.time_text(run.times[run.snapshot])}"),
     ]
     lines += _statistics_lines(run, num)
     if pres.physical:
@@ -264,8 +264,8 @@ def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple
             ("layer", f"d = {sc.depth / 1e3:g} km, dT = {sc.temperature_contrast:g} K, "
                       f"eta_ref = {sc.reference_viscosity:.3g} Pa s"),
             ("scales", f"time {sc.time_to_myr(1.0):.4g} Myr, velocity "
-                       f"{sc.velocity_to_cm_per_yr(1.0):.3g} cm/yr, heat flux "
-                       f"{sc.heat_flux_to_mw_m2(1.0):.3g} mW/m2"),
+                       f"{sc.velocity_to_cm_per_yr(1.0):.3g} {velocity_units}, heat flux "
+                       f"{sc.heat_flux_to_mw_m2(1.0):.3g} {flux_units}"),
         ]
         ra_body = sc.rayleigh()
         if abs(ra_body - ra) > 1e-3 * ra:

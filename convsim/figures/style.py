@@ -10,23 +10,23 @@ One journal column is about 3.5 in (89 mm) wide, two columns about 7.2 in
 (183 mm) (common practice).  Fonts are 8 pt (labels) and 7 pt (ticks, legends),
 readable when a figure is printed at one column width without scaling.
 
-Colour maps (all from matplotlib's own set)
--------------------------------------------
-- Fields (temperature): ``cividis`` (Nunez, Anderton & Renslow 2018, PLoS ONE
-  13, e0199239), built to look nearly the same to viewers with red-green colour
-  vision deficiency and with a lightness that rises linearly.
-- Fields of a second quantity (viscosity): ``viridis`` (van der Walt & Smith
-  2015, matplotlib's default), perceptually uniform and colour-blind safe, so
-  that a viscosity panel is never mistaken for a temperature panel.
-- Anomalies (signed, zero in the middle): ``coolwarm`` (Moreland 2009,
-  "Diverging color maps for scientific visualization", ISVC).  It is built
-  by interpolation in a polar form of CIELAB, so the perceived difference
-  grows smoothly from the centre; its lightness falls symmetrically and
-  monotonically from a light grey centre to both ends (L* 88 to 38), and its
-  two hues (blue, red) stay apart for the common red-green deficiencies.
-  ``RdBu`` from the same set has a nearly white centre but uneven lightness
-  steps; the dark-centred maps (``berlin``, ``vanimo``) are uniform too but
-  make "no anomaly" look like the strongest feature.
+Colour maps (Crameri, Shephard & Heron 2020, Nature Communications 11, 5444)
+-------------------------------------------------------------------------
+The scientific colour maps of Crameri (the ``cmcrameri`` package) are
+perceptually uniform (even steps in a perceptual colour space), ordered in
+lightness, readable by viewers with colour-vision deficiencies and in grey;
+this field's journals now ask for them.
+
+- Temperature: ``lajolla`` (dark red-brown, cold, through red and orange to
+  pale yellow, hot); its hue keeps changing through the middle of the range,
+  so the well-mixed interior of a convecting layer shows structure instead of
+  one flat colour.
+- Viscosity: ``devon`` (dark blue to white), a cool map, so that a viscosity
+  panel is never mistaken for a temperature panel; drawn on a log scale over
+  its dynamically relevant range (:data:`VISCOSITY_DECADES`).
+- Anomalies (signed, zero in the middle): ``vik`` (blue, light centre, red),
+  symmetric in lightness about its light centre (use with
+  :func:`symmetric_limits`).
 - Lines: matplotlib's ``okabe_ito`` colours (Okabe & Ito 2008, "Color
   universal design"), distinguishable under all common colour vision
   deficiencies; lines also differ in style and points in marker
@@ -48,6 +48,7 @@ import logging
 import math
 from pathlib import Path
 
+import cmcrameri.cm  # noqa: F401  (registers the "cmc.*" colour maps with matplotlib)
 import matplotlib
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -57,6 +58,7 @@ from matplotlib.figure import Figure
 from convsim.files.atomic import atomic_path
 
 __all__ = ["COLUMN_WIDTH", "PAGE_WIDTH", "TEMPERATURE_CMAP", "VISCOSITY_CMAP", "DIVERGING_CMAP",
+           "VISCOSITY_DECADES",
            "LINE_COLORS", "LINE_STYLES", "MARKERS", "GUIDE_COLOR", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
            "save_file", "metadata_for", "to_rgba_array", "symmetric_limits", "figure_width",
            "light_grid", "log_label", "log_ticks"]
@@ -66,12 +68,16 @@ COLUMN_WIDTH = 3.5
 #: Width of two columns, or of a page with margins [in].
 PAGE_WIDTH = 7.2
 
-#: Sequential map for temperature fields.
-TEMPERATURE_CMAP = "cividis"
-#: Sequential map for viscosity fields (drawn on a log scale when they vary).
-VISCOSITY_CMAP = "viridis"
-#: Diverging map for anomalies (use with :func:`symmetric_limits`).
-DIVERGING_CMAP = "coolwarm"
+#: Sequential map for temperature fields (Crameri's lajolla).
+TEMPERATURE_CMAP = "cmc.lajolla"
+#: Sequential map for viscosity fields, drawn on a log scale when they vary (Crameri's devon).
+VISCOSITY_CMAP = "cmc.devon"
+#: Diverging map for anomalies (Crameri's vik; use with :func:`symmetric_limits`).
+DIVERGING_CMAP = "cmc.vik"
+#: Decades of viscosity shown above the lowest value: a region more viscous than this
+#: relative to the least viscous one hardly moves (common practice: a contrast of 1e4 or
+#: more behaves as a rigid lid), so its colour is clipped and the colour bar says so.
+VISCOSITY_DECADES = 4.0
 #: Line colours, in order: blue, vermillion, bluish green, orange, reddish purple, sky blue,
 #: black from matplotlib's ``okabe_ito`` map (its yellow is left out: too light on white).
 LINE_COLORS = tuple(matplotlib.colors.to_hex(matplotlib.colormaps["okabe_ito"].colors[i])
@@ -183,6 +189,8 @@ def light_grid(ax) -> None:
 
 def log_label(value: float) -> str:
     """A tick label: plain for 1e-3 <= v < 1e4, else m x 10^k in mathtext."""
+    if value == 0.0 or not math.isfinite(value):
+        return f"{value:g}"
     if 1.0e-3 <= abs(value) < 1.0e4:
         return f"{value:g}"
     exponent = math.floor(math.log10(abs(value)) + 1e-9)

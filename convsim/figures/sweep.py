@@ -18,7 +18,8 @@ from matplotlib.legend_handler import HandlerTuple
 
 from convsim.figures import style
 
-__all__ = ["REGIMES", "scaling_plot", "regime_map_plot", "scaling_figure", "regime_map_figure"]
+__all__ = ["REGIMES", "SYMBOLS", "group_label", "scaling_plot", "regime_map_plot",
+           "scaling_figure", "regime_map_figure", "varies"]
 
 #: Regimes of the map in legend order (the words of ``convsim.model.lid.REGIMES``), with the
 #: index of their colour and marker in the style (unclassified: black crosses).
@@ -46,16 +47,33 @@ def _log_axes(ax) -> None:
 def _number(value: float) -> str:
     """``value`` to 3 digits for mathtext: plain for 1e-3 <= |v| < 1e4, else m x 10^k."""
     if value == 0.0 or not np.isfinite(value) or 1.0e-3 <= abs(value) < 1.0e4:
-        return f"{value:.3g}"
+        return f"{value:.4g}" if abs(value) >= 1.0 else f"{value:.3g}"   # 1000, not 1e+03
     k = int(np.floor(np.log10(abs(value))))
     return rf"{value / 10.0**k:.3g}\times10^{{{k}}}"
 
 
-def _fit_text(fit) -> str:
-    """``fit a x^b, exponent in [lo, hi]`` (a mathtext label; the interval where known)."""
+#: Readable names of sweep keys and table columns in legends (mathtext where apt).
+SYMBOLS = {"rayleigh": "Ra", "physics.rayleigh": "Ra",
+           "viscosity.thermal_contrast": r"$\Delta\eta_T$",
+           "viscosity_contrast": r"$\Delta\eta$", "viscosity.depth_contrast": r"$\Delta\eta_z$",
+           "physics.internal_heating": "H", "domain.aspect": "aspect",
+           "viscosity.activation_energy": "E"}
+
+
+def group_label(key, value) -> str:
+    """A legend label for one group of a sweep: ``Delta eta_T = 1000``, not the raw key."""
+    name = SYMBOLS.get(key, str(key).split(".")[-1].replace("_", " "))
+    text = _number(float(value)) if isinstance(value, (int, float)) else str(value)
+    return f"{name} = ${text}$" if isinstance(value, (int, float)) else f"{name} = {text}"
+
+
+def _fit_text(fit, symbol: str = "x") -> str:
+    """``a Ra^b, b in [lo, hi]`` (a mathtext label; the interval where known)."""
     lo, hi = fit.exponent_interval
-    text = rf"fit ${_number(fit.prefactor)}\,x^{{{fit.exponent:.4f}}}$"
-    return text + (rf", exponent $\in$ [{lo:.4f}, {hi:.4f}]" if np.isfinite(lo) else "")
+    base = symbol.strip("$") if symbol.startswith("$") else rf"\mathrm{{{symbol}}}"
+    text = rf"${_number(fit.prefactor)}\,{base}^{{{fit.exponent:.3f}}}$"
+    return text + (rf", $\beta \in$ [{lo:.3f}, {hi:.3f}]" if np.isfinite(lo)
+                   else " (2 points: no interval)" if fit.n == 2 else "")
 
 
 def _wrap(text: str) -> str:
@@ -65,7 +83,8 @@ def _wrap(text: str) -> str:
 
 
 def scaling_plot(series, *, x_label: str, y_label: str, reference_slope=None,
-                 reference_label: str = "", title: str = "", excluded=None) -> Figure:
+                 reference_label: str = "", title: str = "", excluded=None,
+                 x_symbol: str = "x") -> Figure:
     """y against x on log-log axes: the points, each fitted power law, a reference slope.
 
     Parameters
@@ -96,10 +115,11 @@ def scaling_plot(series, *, x_label: str, y_label: str, reference_slope=None,
             handle, text = points, label or "data"
             if fit is not None:
                 xs = np.geomspace(x.min(), x.max(), 50)
+                fit_text = _fit_text(fit, x_symbol)
                 (line,) = ax.plot(xs, fit.predict(xs), ls=style.LINE_STYLES[0], color=color,
-                                  label=_fit_text(fit), zorder=2)
+                                  label=fit_text, zorder=2)
                 handle = (points, line)
-                text = f"{label}\n{_fit_text(fit)}" if label else _fit_text(fit)
+                text = f"{label}: {fit_text}" if label else f"fit {fit_text}"
             handles.append(handle)
             labels.append(text)
         if excluded is not None and len(excluded[0]):
@@ -126,9 +146,18 @@ def scaling_plot(series, *, x_label: str, y_label: str, reference_slope=None,
             labels = [_wrap(text) for text in labels]
             rows = sum(text.count("\n") + 1 for text in labels)
             fig.set_figheight(_HEIGHT + _ROW * rows)
-            fig.legend(handles, labels, loc="outside lower center", ncols=1,
+            fig.legend(handles, labels, loc="outside lower center", ncols=1, labelspacing=0.3,
+                       handletextpad=0.5, borderaxespad=0.2,
                        handler_map={tuple: HandlerTuple(ndivide=None)})
     return style.freeze_layout(fig)
+
+
+def varies(contrast) -> bool:
+    """Whether a sweep's viscosity contrasts leave the isoviscous case (a regime map says
+    nothing about an isoviscous sweep: every case is mobile or conductive)."""
+    contrast = np.asarray(contrast, float)
+    contrast = contrast[np.isfinite(contrast)]
+    return bool(contrast.size) and float(contrast.max()) > 1.0 + 1e-6
 
 
 def regime_map_plot(rayleigh, contrast, regimes, *, thresholds_text: str = "",
@@ -160,10 +189,12 @@ def regime_map_plot(rayleigh, contrast, regimes, *, thresholds_text: str = "",
 
 
 def scaling_figure(path, series, *, x_label: str, y_label: str, reference_slope=None,
-                   reference_label: str = "", title: str = "", excluded=None) -> Path:
+                   reference_label: str = "", title: str = "", excluded=None,
+                   x_symbol: str = "x") -> Path:
     """Draw :func:`scaling_plot` and write it to ``path`` (PNG, or PDF/SVG by suffix)."""
     fig = scaling_plot(series, x_label=x_label, y_label=y_label, reference_slope=reference_slope,
-                       reference_label=reference_label, title=title, excluded=excluded)
+                       reference_label=reference_label, title=title, excluded=excluded,
+                       x_symbol=x_symbol)
     return style.save_file(fig, path, title=f"scaling: {y_label} against {x_label}")
 
 

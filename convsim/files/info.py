@@ -34,7 +34,10 @@ def describe_run(path: str | Path) -> dict:
         ``final_*`` attributes, or the last series row while the run is not
         finished), ``settled``, ``statistics`` (per quantity mean, ci95, from_time),
         ``lid`` and ``heat_balance`` (empty for an unfinished run; see
-        ``runfile.write_statistics``) and ``config`` (the stored TOML as a nested dict).
+        ``runfile.write_statistics``), ``physical`` (with a [body] table: the final numbers in
+        physical units, ``{name: {"value", "units", "doc"}}``, see
+        ``convsim.units.physical_quantities``; else None) and ``config`` (the stored TOML as a
+        nested dict).
     """
     path = Path(path)
     if not path.is_file():
@@ -86,8 +89,24 @@ def describe_run(path: str | Path) -> dict:
                        for k, e in statistics.get("statistics", {}).items()},
         "lid": {k: plain(v) for k, v in statistics.get("lid", {}).items()},
         "heat_balance": {k: plain(v) for k, v in statistics.get("heat_balance", {}).items()},
+        "physical": _physical(dict(final, settled=statistics.get("settled"),
+                                   statistics=statistics.get("statistics")), config),
         "config": config,
     }
+
+
+def _physical(final: dict, config) -> dict | None:
+    """The final numbers in physical units (mW m^-2, cm yr^-1, K, km, Myr) with a [body]."""
+    if not final or not config or "body" not in config:
+        return None
+    from convsim.config import parse_config
+    from convsim.errors import ConvsimError
+    from convsim.units import physical_quantities, scales_from_body
+    try:
+        cfg = parse_config(config)
+        return physical_quantities(final, scales_from_body(cfg.body), cfg.boundaries)
+    except ConvsimError:
+        return None
 
 
 def _short(values, keep=4):
@@ -145,6 +164,12 @@ def format_info(info: dict) -> str:
         lines.append(f"  lid         regime {lid.get('regime')}, mobility {_num(lid.get('mobility'))}, "
                      f"thickness {_num(lid.get('lid_thickness'))}, T_i "
                      f"{_num(lid.get('interior_temperature'))}, {lid.get('cells')} cell(s)")
+    physical = info.get("physical") or {}
+    if physical:
+        rows = list(physical.items())
+        for i in range(0, len(rows), 3):
+            lines.append(("  physical    " if i == 0 else "              ") + ", ".join(
+                f"{k.replace('_', ' ')} {v['value']:.4g} {v['units']}" for k, v in rows[i:i + 3]))
     lines.append(f"  provenance  {p.get('source')}, created {p.get('created')}, "
                  f"wall {p.get('wall_seconds') or 0.0:.3g} s, {p.get('Conventions')}")
     lines.append(f"  fields      {', '.join(info['fields'])}")

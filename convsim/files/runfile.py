@@ -8,15 +8,21 @@ every variable carries ``units`` and ``long_name`` attributes.
 Layout (root group):
 
 - coordinates ``x`` (cell centres), ``z``, ``x_node`` (cell corners), ``z_node``,
-  ``time`` (one entry per snapshot, unlimited) and ``record`` (one entry per row
-  of the diagnostic time series, unlimited);
+  ``time`` (one entry per snapshot, unlimited, axis T) and ``series_time`` (one entry
+  per row of the diagnostic time series, unlimited, axis T: the series' own time
+  coordinate, so that ``ds.nusselt_top.plot()`` draws against time);
 - snapshot fields over (time, ...): ``temperature``, ``viscosity`` (cells),
   ``streamfunction`` (corners), ``velocity_x`` (vertical faces: z, x_node),
   ``velocity_z`` (horizontal faces: z_node, x), profiles over (time, z), corner
   gradients ``q1`` .. ``q4`` and ``step`` over (time,);
-- time series over (record,): ``series_time``, ``series_step`` and every
-  diagnostic of ``StepReport``, each naming ``series_time`` as its CF auxiliary
-  coordinate (attribute ``coordinates``);
+- time series over (series_time,): ``record`` (the row index), ``series_step`` and
+  every diagnostic of ``StepReport``;
+- units: strings that udunits and pint read; nondimensional numbers have units
+  ``"1"`` and name their scale in the attribute ``nondimensional_scale`` (and in
+  ``comment``), e.g. ``"kappa/d"`` for a velocity; ``long_name`` says what it is;
+- with a ``[body]`` table in the config, physical coordinates ``x_km``, ``z_km``,
+  ``x_node_km``, ``z_node_km`` (km) and ``time_myr``, ``series_time_myr`` (Myr)
+  beside the nondimensional ones;
 - coordinates carry ``axis`` (X, Z, T) and the vertical ones ``positive = "up"``;
 - group ``restart``: the exact state to continue the run bit for bit;
 - group ``statistics`` (once the run has finished): time means, 95 % half-widths
@@ -83,8 +89,33 @@ COORDINATES = {
     "x_node": "horizontal position of cell corners, units d",
     "z_node": "height of cell corners, units d",
     "time": "time of the snapshot, units d^2/kappa",
+    "series_time": "time of the time-series record, units d^2/kappa",
     "record": "index of the time-series record",
 }
+
+#: Scale of each nondimensional variable (its CF attribute ``nondimensional_scale``).
+NONDIMENSIONAL_SCALES = {
+    "x": "d", "z": "d", "x_node": "d", "z_node": "d", "time": "d^2/kappa",
+    "series_time": "d^2/kappa", "dt": "d^2/kappa", "temperature": "dT above the top",
+    "temperature_profile": "dT above the top", "mean_temperature": "dT above the top",
+    "viscosity": "eta_ref", "viscosity_profile": "eta_ref", "streamfunction": "kappa",
+    "velocity_x": "kappa/d", "velocity_z": "kappa/d", "vrms": "kappa/d",
+    "surface_vrms": "kappa/d", "q1": "dT/d", "q2": "dT/d", "q3": "dT/d", "q4": "dT/d",
+    "tendency_max": "dT kappa/d^2",
+}
+
+
+def cf_attributes(name: str, units: str, long_name: str) -> dict:
+    """CF attributes of a variable: ``units`` as declared, ``long_name`` without the scale
+    (a trailing ", units ..." moves into ``nondimensional_scale`` and ``comment``)."""
+    text, _, scale = long_name.partition(", units ")
+    scale = NONDIMENSIONAL_SCALES.get(name, scale.strip())
+    attrs = {"units": units, "long_name": text.strip()}
+    if units == "1" and scale:
+        attrs["nondimensional_scale"] = scale
+        attrs["comment"] = f"nondimensional, in units of {scale}"
+    return attrs
+
 
 RESTART_KEYS = ("temperature", "psi", "previous_temperature", "previous_tendency",
                 "factor_weights")
@@ -114,12 +145,15 @@ def open_run_file(path, mode: str = "r"):
             time.sleep(0.1)
 
 
-def check_writable(path: Path, overwrite: bool) -> None:
-    """Refuse to replace an existing file unless asked; check that the folder can be written."""
+def check_writable(path: Path, overwrite: bool, *,
+                   other: str = " or --out to choose another folder") -> None:
+    """Refuse to replace an existing file unless asked; check that the folder can be written.
+
+    ``other`` ends the refusal's advice (empty for a command without ``--out``)."""
     path = Path(path)
     if path.exists() and not overwrite:
-        raise OutputExistsError(f"output {str(path)!r}: exists; pass --overwrite to replace it "
-                                f"or --out to choose another folder")
+        raise OutputExistsError(f"output {str(path)!r}: exists; pass --overwrite to replace "
+                                f"it{other}")
     folder = path.parent
     try:
         folder.mkdir(parents=True, exist_ok=True)
@@ -167,11 +201,15 @@ class RunFileWriter:
                 d.attrs["axis"] = "X" if name.startswith("x") else "Z"
                 if name.startswith("z"):
                     d.attrs["positive"] = "up"  # CF: direction of a vertical coordinate
-            for name in ("time", "record"):
-                d = f.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8" if name == "time" else "i8",
-                                     chunks=(256,))
+            for name in ("time", "series_time"):
+                d = f.create_dataset(name, shape=(0,), maxshape=(None,), dtype="f8",
+                                     chunks=(256,) if name == "time" else (4096,))
                 self._coordinate(d, name, "1")
-            f["time"].attrs["axis"] = "T"
+                d.attrs["axis"] = "T"
+                d.attrs["standard_name"] = "time"
+            d = f.create_dataset("record", shape=(0,), maxshape=(None,), dtype="i8",
+                                 chunks=(4096,))
+            self._attach(f, d, ("series_time",), "1", COORDINATES["record"])
             for name, (dims, units, long_name) in FIELDS.items():
                 shape = tuple(len(f[d]) for d in dims)
                 d = f.create_dataset(name, shape=(0,) + shape, maxshape=(None,) + shape,
@@ -179,26 +217,25 @@ class RunFileWriter:
                                      chunks=(1,) + shape if shape else (256,))
                 self._attach(f, d, ("time",) + dims, units, long_name)
             for name, (units, long_name) in SERIES.items():
+                if name == "series_time":
+                    continue
                 d = f.create_dataset(name, shape=(0,), maxshape=(None,),
                                      dtype="i8" if name in ("series_step", "stokes_iterations") else "f8",
                                      chunks=(4096,))
-                self._attach(f, d, ("record",), units, long_name)
-                if name != "series_time":
-                    d.attrs["coordinates"] = "series_time"  # CF auxiliary coordinate
+                self._attach(f, d, ("series_time",), units, long_name)
+            _physical_coordinates(f, config_text)
         os.replace(tmp, self.path)
 
     @staticmethod
     def _coordinate(d, name, units):
         d.make_scale(name)
-        d.attrs["units"] = units
-        d.attrs["long_name"] = COORDINATES[name]
+        d.attrs.update(cf_attributes(name, units, COORDINATES[name]))
 
     @staticmethod
     def _attach(f, d, dims, units, long_name):
         for axis, dim in enumerate(dims):
             d.dims[axis].attach_scale(f[dim])
-        d.attrs["units"] = units
-        d.attrs["long_name"] = long_name
+        d.attrs.update(cf_attributes(d.name.lstrip("/"), units, long_name))
 
     # -- appending ----------------------------------------------------------------------------
     def write(self, *, time: float, fields: dict, series: dict, restart: dict,
@@ -222,6 +259,7 @@ class RunFileWriter:
                         d = f[name]
                         d.resize((m + rows,))
                         d[m:] = series[name]
+                _append_physical_times(f)
                 if "restart" in f:
                     del f["restart"]
                 g = f.create_group("restart")
@@ -318,6 +356,51 @@ def read_statistics(f) -> dict:
     return dict(settled=attrs.get("settled"), statistics=stats, lid=lid,
                 heat_balance={k[13:]: v for k, v in attrs.items()
                               if k.startswith("heat_balance_")})
+
+
+def _physical_coordinates(f, config_text: str) -> None:
+    """With a [body] table: x_km, z_km, x_node_km, z_node_km (km), and empty time_myr and
+    series_time_myr (Myr) that :func:`_append_physical_times` keeps in step."""
+    import tomllib
+    from convsim.config import parse_config
+    from convsim.units import scales_from_body
+    try:
+        body = parse_config(tomllib.loads(config_text)).body
+    except Exception:       # a config the run accepted; anything else: no physical coordinates
+        return
+    if body is None:
+        return
+    scales = scales_from_body(body)
+    for name in ("x", "z", "x_node", "z_node"):
+        d = f.create_dataset(f"{name}_km", data=scales.length_to_km(f[name][:]))
+        d.dims[0].attach_scale(f[name])
+        d.attrs.update(units="km", long_name=COORDINATES[name].split(",")[0])
+    f.attrs["time_scale_myr"] = scales.time_to_myr(1.0)
+    for name in ("time", "series_time"):
+        d = f.create_dataset(f"{name}_myr", shape=(0,), maxshape=(None,), dtype="f8",
+                             chunks=(256,))
+        d.dims[0].attach_scale(f[name])
+        d.attrs.update(units="Myr", long_name=COORDINATES[name].split(",")[0])
+    physical = {"time": "time_myr", "x": "x_km", "z": "z_km", "x_node": "x_node_km",
+                "z_node": "z_node_km"}
+    for name, (dims, *_) in FIELDS.items():                # CF auxiliary coordinates
+        f[name].attrs["coordinates"] = " ".join(physical[d] for d in ("time",) + tuple(dims))
+    for name in SERIES:
+        if name != "series_time":
+            f[name].attrs["coordinates"] = "series_time_myr"
+
+
+def _append_physical_times(f) -> None:
+    """Extend time_myr and series_time_myr to the length of time and series_time."""
+    if "time_myr" not in f:
+        return
+    scale = float(f.attrs["time_scale_myr"])
+    for name in ("time", "series_time"):
+        d, n = f[f"{name}_myr"], f[name].shape[0]
+        if d.shape[0] < n:
+            start = d.shape[0]
+            d.resize((n,))
+            d[start:] = f[name][start:] * scale
 
 
 @dataclass

@@ -79,6 +79,13 @@ class RunResult:
     settled: str = "unfinished"                      # steady | statistically-steady | unfinished
     lid: dict = field(default_factory=dict)          # stagnant-lid diagnostics and regime
     heat_balance: dict = field(default_factory=dict)  # <Nu_top> - <Nu_bottom> - H / dT
+    scales: object = None          # convsim.units.Scales of the config's [body], or None
+    physical: dict | None = None   # the answers in physical units (convsim.units)
+
+    def to_xarray(self):
+        """The final fields and the time series as an ``xarray.Dataset`` (see convsim.views)."""
+        from convsim.views import result_dataset
+        return result_dataset(self)
 
     @property
     def steady(self) -> bool:
@@ -94,7 +101,8 @@ class RunResult:
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
                     output=self.output, message=self.message, settled=self.settled,
                     regime=self.lid.get("regime"), statistics=_finite(self.statistics),
-                    lid=_finite(self.lid), heat_balance=_finite(self.heat_balance))
+                    lid=_finite(self.lid), heat_balance=_finite(self.heat_balance),
+                    **({"physical": self.physical} if self.physical else {}))
 
 
 def _finite(value):

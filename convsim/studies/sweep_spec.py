@@ -200,6 +200,12 @@ def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") 
     from convsim.config import load_config
     if not isinstance(data, dict):
         raise ConfigError(f"{source}: expected a TOML table at the top level")
+    run_tables = sorted(set(data) & set(TABLES))
+    if run_tables and "base" not in data and "axis" not in data:
+        raise ConfigError(f"{source}: a run config (it has [{'], ['.join(run_tables)}]), not a "
+                          f"sweep file; run it with `convsim run {source}`, or sweep it from a "
+                          f"sweep file with base = \"{Path(source).name}\" and [[axis]] tables "
+                          f"(README, 'Sweep files')")
     _check_keys(data, SWEEP_KEYS, source)
     base = data.get("base")
     if not isinstance(base, str) or not base:
