@@ -97,3 +97,34 @@ def test_a_steady_run_with_internal_heating_balances_nu_top_with_nu_bottom_plus_
                                                      abs=1e-4)
     assert result.heat_balance["agree"] and abs(result.heat_balance["gap"]) < 1e-4
     assert result.lid["regime"] == "mobile" and result.lid["cells"] >= 1
+
+
+def test_precision_rule_fires_exactly_when_the_interval_is_narrow_enough():
+    # RunAverages fed with a stationary AR(1) "Nu" (mean 10, tau 19) at uneven steps: the rule
+    # holds for a precision at or above the relative half-width and not below it
+    from scipy.signal import lfilter
+    from convsim.run.averages import RunAverages
+    from convsim.run.stops import MeanPrecision
+    rng = np.random.default_rng(7)
+    n = 1500
+    nu = 10.0 + lfilter([1.0], [1.0, -0.9], rng.normal(0.0, 0.1, n))
+    t = np.cumsum(rng.uniform(0.5, 1.5, n)) * 1e-4
+    avg = RunAverages(nz=4, heating=0.0, contrast=1.0)
+    for k in range(n):
+        avg.record(t[k], lambda k=k: dict(
+            nusselt_top=nu[k], nusselt_bottom=nu[k], vrms=100.0 + nu[k], surface_vrms=90.0,
+            mean_temperature=0.5 + 1e-3 * (nu[k] - 10.0), interior_temperature=0.5,
+            lid_thickness=0.0, temperature_profile=np.full(4, 0.5),
+            viscosity_profile=np.ones(4)))
+    est, settled = avg.estimates()
+    assert settled and est["nusselt_top"].reliable
+    rel = est["nusselt_top"].relative_ci95
+    assert avg.precision_met(1.01 * rel) and not avg.precision_met(0.99 * rel)
+    rule = MeanPrecision(1.01 * rel)
+    rule.watch(avg)
+
+    class Report:
+        step = 1500
+    assert rule.observe(Report()).status == "mean-precision"
+    Report.step = 1501                    # checked every 100 steps only
+    assert rule.observe(Report()) is None
