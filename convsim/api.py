@@ -15,6 +15,7 @@ from convsim.errors import ConfigError
 from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
+from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
 from convsim.views import open_run
@@ -67,6 +68,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     if config.body is not None:      # check the physical properties (units, dimensions) up front
         from convsim.units import scales_from_body
         scales = scales_from_body(config.body)
+    config = resolve(config)             # Ra and an Arrhenius law from [body], or a refusal
     observers = list(observers)
     if progress:
         from convsim.run.progress import ProgressDisplay

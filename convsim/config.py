@@ -63,8 +63,13 @@ class Domain:
 class Physics:
     """Nondimensional numbers of the layer."""
 
-    rayleigh: float = _key("thermal Rayleigh number, with the reference viscosity of [viscosity]",
+    rayleigh: float = _key("thermal Rayleigh number, with the viscosity at rayleigh_reference "
+                           "(with a complete [body]: its Ra, or agree with it to 0.1 %)",
                            default=1.0e4, gt=0.0, le=1.0e13)
+    rayleigh_reference: str = _key(
+        "where the viscosity of rayleigh is taken: the cold top (T = top wall, z = 1), the hot "
+        "bottom (T = bottom wall, z = 0) or the interior (mid temperature, z = 0.5)",
+        default="top", choices=("top", "bottom", "interior"))
     internal_heating: float = _key(
         "internal heat production H in dT/dt + u.grad T = lap T + H", "dT/(d^2/kappa)",
         default=0.0, ge=-1.0e6, le=1.0e6)
@@ -129,8 +134,14 @@ class Start:
     seed: int = _key("random seed of the noise perturbation", default=0, ge=0, le=2**32 - 1)
     file: str = _key("run file to start from (kind = snapshot); interpolated to this grid",
                      "path", default="")
+    continuation_key: str = _key(
+        "the config key the continuation values set (the final stage has the config's own "
+        "value)", default="physics.rayleigh",
+        choices=("physics.rayleigh", "viscosity.thermal_contrast", "viscosity.depth_contrast",
+                 "viscosity.activation_energy"))
     continuation: tuple = _key(
-        "Rayleigh numbers run to steady state, in order, before the target one", default_factory=tuple)
+        "values of continuation_key (Rayleigh numbers by default) run to steady state, in order, "
+        "before the config's own", default_factory=tuple)
 
 
 @dataclass(frozen=True)
@@ -145,6 +156,10 @@ class Numerics:
                             default="sbdf2", choices=TIME_SCHEMES)
     cfl: float = _key("Courant number of the adaptive time step", default=0.4, gt=0.0, le=2.0)
     max_dt: float = _key("largest allowed time step", "d^2/kappa", default=1.0e-2, gt=0.0, le=10.0)
+    time_scale_fraction: float = _key(
+        "largest step as a fraction of the flow's time scale (the change time of the advective "
+        "tendency, at most the conductive time 1/pi^2), so that the step resolves how the flow "
+        "changes (growth rates within 0.5 %); 0: off", default=0.04, ge=0.0, le=10.0)
     stokes_solver: str = _key(
         "Stokes back end; auto picks the fastest that handles the problem", default="auto",
         choices=("auto", "transform", "cholmod", "superlu"))
@@ -168,6 +183,10 @@ class Stop:
     newton: bool = _key("when the run has nearly settled, solve the steady equations by "
                         "Newton-Krylov iteration instead of waiting for the transient to decay",
                         default=True)
+    runaway_factor: float = _key(
+        "diverged when vrms exceeds this times the boundary-layer velocity scale "
+        "max(10, Ra_max^(2/3)), Ra_max with the smallest viscosity of the law over the layer",
+        default=100.0, gt=0.0, le=1.0e12)
     newton_threshold: float = _key(
         "try Newton once max|dT/dt| / Nu falls below this (retried later if it fails)",
         default=0.1, gt=0.0, le=1.0e9)
@@ -206,7 +225,14 @@ class Body:
     thermal_diffusivity: float = _quantity("thermal diffusivity kappa", "m^2 s^-1", le=1.0)
     conductivity: float = _quantity("thermal conductivity k", "W m^-1 K^-1", le=1.0e4)
     reference_viscosity: float = _quantity(
-        "viscosity at the reference state (T = top, z = top)", "Pa s", le=1.0e40)
+        "viscosity at physics.rayleigh_reference (the cold top by default)", "Pa s", le=1.0e40)
+    activation_energy: float = _quantity(
+        "Arrhenius activation energy E* (sets viscosity.law = 'arrhenius'; needs "
+        "surface_temperature)", "kJ mol^-1", le=1.0e4)
+    activation_volume: float = _quantity("Arrhenius activation volume V*", "cm^3 mol^-1",
+                                         le=1.0e3)
+    maximum_viscosity: float = _quantity(
+        "upper cut-off of the viscosity (sets viscosity.maximum)", "Pa s", le=1.0e40)
     heat_production: float = _quantity("internal heat production per unit mass", "W kg^-1",
                                        le=1.0)
 
@@ -225,6 +251,8 @@ class Config:
     output: Output = field(default_factory=Output)
     body: Body | None = None
     title: str = ""
+    #: the ``section.key`` names set in the file, by --set or by ``replace`` (not compared)
+    given: frozenset = field(default=frozenset(), compare=False, repr=False)
 
     def replace(self, **tables) -> "Config":
         """A copy with whole tables or ``section__key`` values replaced (``physics__rayleigh=1e5``).
@@ -234,6 +262,7 @@ class Config:
         the rules between keys), so bad values raise ``ConfigError`` naming the key.
         """
         data = to_dict(self)
+        given = set(self.given)
         for name, value in tables.items():
             if "__" in name:
                 section, key = name.split("__", 1)
@@ -241,13 +270,17 @@ class Config:
                 if not isinstance(table, dict):
                     raise ConfigError(f"{section}: not a table")
                 table[key] = _plain(value)
+                given.add(f"{section}.{key}")
             elif dataclasses.is_dataclass(value):
                 data[name] = {k: _plain(v) for k, v in dataclasses.asdict(value).items()}
+                given.update(f"{name}.{k}" for k in data[name])
             elif value is None:
                 data.pop(name, None)
             else:
                 data[name] = _plain(value)
-        return parse_config(data, source="Config.replace")
+        new = parse_config(data, source="Config.replace")
+        # what the caller set (the file's keys and these), not every key to_dict wrote out
+        return dataclasses.replace(new, given=frozenset(given))
 
 
 def _plain(value):
@@ -372,6 +405,7 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
         raise ConfigError(f"{source}: expected a TOML table at the top level")
     tables = {}
     title = ""
+    given = set()
     for name, raw in data.items():
         if name == "title":
             if not isinstance(raw, str):
@@ -382,7 +416,8 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
             raise ConfigError(f"[{name}]: unknown table{_suggest(name, TABLES)}; allowed tables: "
                               f"{', '.join(TABLES)}")
         tables[name] = _build_table(name, TABLES[name], raw)
-    cfg = Config(title=title, **tables)
+        given.update(f"{name}.{key}" for key in raw)
+    cfg = Config(title=title, given=frozenset(given), **tables)
     _check_consistency(cfg)
     return cfg
 

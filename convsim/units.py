@@ -54,6 +54,7 @@ __all__ = [
     "UREG", "SECONDS_PER_YEAR", "SECONDS_PER_MYR", "PROPERTIES", "Property", "Scales",
     "parse_quantity", "parse_property", "scales_from_body", "critical_rayleigh_for",
     "FLOW_CONDITIONS", "PHYSICAL_UNITS", "physical_quantities", "wall_heat_flows",
+    "GAS_CONSTANT",
 ]
 
 #: The one unit registry of convsim (pint objects from different registries do not mix).
@@ -95,7 +96,16 @@ PROPERTIES = (
              "reference viscosity eta_ref"),
     Property("heat_production", "heat_production", "W kg^-1", False,
              "heat production per unit mass H (default 0)"),
+    Property("activation_energy", "activation_energy", "kJ mol^-1", False,
+             "Arrhenius activation energy E* (default 0: no Arrhenius law)"),
+    Property("activation_volume", "activation_volume", "cm^3 mol^-1", False,
+             "Arrhenius activation volume V* (default 0)"),
+    Property("maximum_viscosity", "maximum_viscosity", "Pa s", False,
+             "upper cut-off of the viscosity (default 0: none)"),
 )
+
+#: The molar gas constant R [J mol^-1 K^-1], from the registry.
+GAS_CONSTANT = float(UREG.Quantity(1.0, "molar_gas_constant").to("J/mol/K").magnitude)
 _BY_NAME = {p.name: p for p in PROPERTIES}
 
 
@@ -237,6 +247,10 @@ class Scales:
         eta_ref [Pa s], the viscosity that enters Ra.
     heat_production : float
         H [W kg^-1], heat production per unit mass (0: none).
+    activation_energy, activation_volume : float
+        Arrhenius E* [kJ mol^-1] and V* [cm^3 mol^-1] (0: none); see ``arrhenius``.
+    maximum_viscosity : float
+        Upper cut-off of the viscosity [Pa s] (0: none).
 
     All but ``surface_temperature`` and ``heat_production`` must be > 0; those two >= 0.
     The converters take numbers or numpy arrays.
@@ -252,6 +266,9 @@ class Scales:
     reference_viscosity: float
     surface_temperature: float = 0.0
     heat_production: float = 0.0
+    activation_energy: float = 0.0
+    activation_volume: float = 0.0
+    maximum_viscosity: float = 0.0
 
     def __post_init__(self):
         for prop in PROPERTIES:
@@ -275,6 +292,33 @@ class Scales:
         return (self.density * self.gravity * self.expansivity * self.volumetric_heat_production
                 * self.depth**5
                 / (self.conductivity * self.diffusivity * self.reference_viscosity))
+
+    def arrhenius(self) -> dict:
+        """The nondimensional Arrhenius law of E*, V*, T_s and dT, for ``viscosity.law = 'arrhenius'``.
+
+        eta = exp((E + V (1 - z)) / (T + T0) - E / T0) is
+        exp((E* + p V*) / (R T_abs) - E* / (R T_s)) with T_abs = T_s + dT T [K] and the
+        lithostatic pressure p = rho g d (1 - z) [Pa], so
+
+            E = E* / (R dT),   V = rho g d V* / (R dT),   T0 = T_s / dT
+
+        (E* in J mol^-1, V* in m^3 mol^-1, R the molar gas constant).
+
+        Returns
+        -------
+        dict
+            ``activation_energy``, ``activation_volume``, ``temperature_offset`` (all in units
+            of dT), the keys of the config's [viscosity] table.
+        """
+        if self.activation_energy <= 0.0 or self.surface_temperature <= 0.0:
+            raise ConfigError(f"body.activation_energy = {self.activation_energy!r} kJ/mol with "
+                              f"body.surface_temperature = {self.surface_temperature!r} K: an "
+                              f"Arrhenius law needs both > 0")
+        r_dt = GAS_CONSTANT * self.temperature_contrast
+        return dict(activation_energy=1.0e3 * self.activation_energy / r_dt,
+                    activation_volume=(self.density * self.gravity * self.depth
+                                       * 1.0e-6 * self.activation_volume / r_dt),
+                    temperature_offset=self.surface_temperature / self.temperature_contrast)
 
     # --- scales ---------------------------------------------------------------------------
     @property

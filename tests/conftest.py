@@ -46,9 +46,15 @@ def constant_run(tmp_path_factory) -> Path:
 @pytest.fixture(scope="session")
 def body_run(tmp_path_factory) -> Path:
     """Case 2a (viscosity contrast 1000) on 16 x 12 cells, aspect 1.5, 150 steps, with the
-    [body] table of the invented moon Quellis (configs/quellis_ice_shell.toml)."""
+    [body] table of the invented moon Quellis (configs/quellis_ice_shell.toml), its viscosity
+    set so that the body's Ra is the case's 1e4 (a [body] must agree with the run's Ra):
+    eta_ref = rho g alpha dT d^3 / (kappa Ra) = 8.783424e14 / 1.5e-2 = 5.855616e16 Pa s, at
+    the cold top; no Arrhenius law (the case's own law is kept)."""
+    import dataclasses
     from convsim.config import load_config
-    body = load_config(CONFIGS / "quellis_ice_shell.toml").body
+    body = dataclasses.replace(load_config(CONFIGS / "quellis_ice_shell.toml").body,
+                               reference_viscosity=5.855616e16, activation_energy=0.0,
+                               maximum_viscosity=0.0)
     return _run(tmp_path_factory, "body", "benchmark_case_2a.toml",
                 ["domain.nx=18", "domain.nz=12", "domain.aspect=1.5", "stop.max_steps=150",
                  "output.snapshot_steps=50"], body=body)

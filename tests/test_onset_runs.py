@@ -70,7 +70,7 @@ def test_growth_rate_at_twice_critical_within_two_percent(bracket):
     """Issue check: the rate fitted to the run at 2 Ra_c against the eigen-solver and [FF]."""
     i = int(np.argmin(np.abs(bracket.rayleigh - 2.0 * bracket.eigen_critical_rayleigh)))
     assert bracket.rayleigh[i] == pytest.approx(2.0 * RA_FF, rel=1e-6)
-    assert bracket.rates[i] == pytest.approx(bracket.theory_rates[i], rel=0.02)
+    assert bracket.rates[i] == pytest.approx(bracket.theory_rates[i], rel=0.0075)
     assert bracket.rates[i] == pytest.approx(free_free_rate(2.0 * RA_FF, K_FF), rel=0.02)
     assert bracket.theory_rates[i] == pytest.approx(free_free_rate(2.0 * RA_FF, K_FF), rel=1e-9)
 
@@ -233,3 +233,26 @@ def test_cli_bad_runs_options(tmp_path, capsys, args, words):
     assert cli.main(["onset", str(path)] + args) == 2
     err = capsys.readouterr().err
     assert words in err and len(err.strip().splitlines()) == 1
+
+
+# ---- growth rates from runs at the default time-step settings ------------------------------
+
+@pytest.mark.parametrize("factor", [0.8, 2.0])
+def test_default_settings_growth_rate_within_half_percent(factor):
+    """Issue 10 item 7: a run with the default numerics (max_dt, cfl, time-scale fraction)
+    gives the growth rate of the critical mode within 0.5 % of [FF] (= the eigen-solver's,
+    checked above), below and above onset.  68x48 cells: the grid's own share is ~0.1 %
+    (measured with max_dt = 5e-4); without the time-scale limit of the step the error at
+    2 Ra_c is 3 % (dt = max_dt = 0.01)."""
+    from convsim.api import run
+    ra = factor * RA_FF
+    rate_scale = K_FF**2 + math.pi**2
+    cfg = Config().replace(domain__aspect=BOX_WIDTH, domain__nx=68, domain__nz=48,
+                           physics__rayleigh=ra, start__amplitude=1e-5, stop__steady=False,
+                           stop__end_time=10.0 / rate_scale)
+    assert cfg.numerics == Config().numerics
+    result = run(cfg)
+    fit = fit_growth_rate(result.series["series_time"], result.series["vrms"],
+                          rate_scale=rate_scale)
+    assert fit.status == "ok"
+    assert fit.rate == pytest.approx(free_free_rate(ra, K_FF), rel=0.005)

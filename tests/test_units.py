@@ -298,7 +298,8 @@ def test_cli_json_shape(capsys):
     code, out, err = _run(capsys, ["rayleigh", *MANTLE_ARGS, "--json"])
     assert code == 0 and err == ""
     data = json.loads(out)
-    assert set(data) == {"rayleigh", "internal_heating_number", "internal_heating_rayleigh",
+    assert set(data) == {"rayleigh", "rayleigh_reference", "rayleigh_numbers", "viscosity",
+                         "internal_heating_number", "internal_heating_rayleigh",
                          "properties", "scales", "onset", "caution"}
     assert data["rayleigh"] == pytest.approx(5.85336e7, rel=1e-12)
     assert data["internal_heating_number"] == pytest.approx(21.025, rel=1e-12)
@@ -320,7 +321,7 @@ def test_cli_config_body_and_command_line_wins(capsys, tmp_path):
     data = json.loads(out)
     assert code == 0
     assert data["rayleigh"] == pytest.approx(QUELLIS_RA, rel=1e-12)
-    assert data["onset"]["critical_rayleigh"] == pytest.approx(RA_C_RIGID_RIGID, rel=1e-6)
+    assert data["onset"]["layer_critical_rayleigh"] == pytest.approx(RA_C_RIGID_RIGID, rel=1e-6)
     assert data["properties"]["depth"]["from"] == "config"
     # a shell twice as thick: Ra grows by 2^3 = 8; --boundaries overrides the config
     code, out, _ = _run(capsys, ["rayleigh", str(path), "--depth", "60 km", "--boundaries",
@@ -329,7 +330,7 @@ def test_cli_config_body_and_command_line_wins(capsys, tmp_path):
     assert data["rayleigh"] == pytest.approx(8 * QUELLIS_RA, rel=1e-12)
     assert data["properties"]["depth"]["from"] == "command line"
     assert (data["onset"]["top_flow"], data["onset"]["bottom_flow"]) == ("free-slip", "no-slip")
-    assert data["onset"]["critical_rayleigh"] == pytest.approx(RA_C_RIGID_FREE, rel=1e-5)
+    assert data["onset"]["layer_critical_rayleigh"] == pytest.approx(RA_C_RIGID_FREE, rel=1e-5)
 
 
 def test_cli_text_output(capsys):
@@ -367,12 +368,18 @@ def test_cli_subprocess_no_traceback():
 
 
 def test_example_config_runs(capsys):
+    """The Quellis config states Ra with the viscosity of the base (same shell as QUELLIS_TOML)
+    and an Arrhenius law capped at 1e22 Pa s (1e8 x the base's 1e14 Pa s)."""
     path = Path(__file__).resolve().parents[1] / "configs" / "quellis_ice_shell.toml"
     code, out, _ = _run(capsys, ["rayleigh", str(path), "--json"])
     data = json.loads(out)
     assert code == 0
-    assert data["onset"]["critical_rayleigh"] == pytest.approx(RA_C_RIGID_FREE, rel=1e-5)
-    assert data["rayleigh"] == pytest.approx(QUELLIS_RA, rel=1e-12)  # same shell as QUELLIS_TOML
+    assert data["rayleigh_reference"] == "bottom"
+    assert data["rayleigh"] == pytest.approx(QUELLIS_RA, rel=1e-12)
+    assert data["rayleigh_numbers"]["bottom"] == pytest.approx(QUELLIS_RA, rel=1e-12)
+    assert data["rayleigh_numbers"]["top"] == pytest.approx(QUELLIS_RA * 1e-8, rel=1e-12)
+    assert data["viscosity"]["law"] == "arrhenius"
+    assert data["onset"]["above_onset"] is True
 
 
 def test_body_table_takes_quantity_strings_and_rejects_wrong_dimensions(tmp_path):

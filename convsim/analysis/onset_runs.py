@@ -65,11 +65,15 @@ def bracket_configs(config: Config, rayleigh_values, mode: int, *, grid: tuple[i
 
     Everything but the start, the stop rule, the grid, the time-step cap and Ra is
     the given config's (boundaries, heating, viscosity, numerics).  The step limit
-    is set well above end_time / max_dt.
+    is set well above end_time / max_dt.  ``rayleigh_values`` are taken with the law's
+    reference viscosity (as the eigen-solver's).
     """
+    from convsim.run import layer
     nx, nz = grid
     steps = int(math.ceil(end_time / max_dt)) * 4 + 1000
+    config = layer.resolve(config).replace(body=None)
     return [config.replace(domain__nx=nx, domain__nz=nz, physics__rayleigh=float(ra),
+                           physics__rayleigh_reference="top",
                            start__kind="conductive", start__perturbation="mode",
                            start__amplitude=amplitude, start__mode=int(mode),
                            start__continuation=(), stop__steady=False, stop__end_time=end_time,
@@ -209,12 +213,16 @@ def onset_from_config(config: Config, wavenumbers=None, points: int | None = Non
 
     Unpacks the config's aspect, sides, mechanical and thermal conditions, internal
     heating, viscosity law and Rayleigh number into the plain arguments of
-    ``analyse_onset`` (which never sees a Config).
+    ``analyse_onset`` (which never sees a Config).  Rayleigh numbers in and out are
+    taken with the law's reference viscosity (the cold top); a [body] table is applied
+    first (``convsim.run.layer.resolve``).
     """
     from convsim.analysis.stability import analyse_onset
+    from convsim.run import layer
+    config = layer.resolve(config)
     b, v = config.boundaries, config.viscosity
     return analyse_onset(
-        config.physics.rayleigh, aspect=config.domain.aspect, sides=b.sides,
+        layer.internal_rayleigh(config), aspect=config.domain.aspect, sides=b.sides,
         top_flow=b.top_flow, bottom_flow=b.bottom_flow, top_heat=b.top_heat,
         top_value=b.top_value, bottom_heat=b.bottom_heat, bottom_value=b.bottom_value,
         internal_heating=config.physics.internal_heating, viscosity=v.law,

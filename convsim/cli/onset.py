@@ -89,6 +89,31 @@ def _onset_runs_table(b) -> str:
     return "\n".join(lines)
 
 
+def _onset_stated(cfg, result) -> dict:
+    """The onset in the config's own terms: Ra_c at its rayleigh_reference, Ra at three states."""
+    from convsim.run import layer
+    cfg = layer.resolve(cfg)
+    ref = layer.internal_rayleigh(cfg) / cfg.physics.rayleigh       # eta at the reference
+    return {"rayleigh_reference": cfg.physics.rayleigh_reference,
+            "critical_rayleigh": result.critical_rayleigh / ref,
+            "box_critical_rayleigh": result.box_critical_rayleigh / ref,
+            "rayleigh": cfg.physics.rayleigh, "rayleigh_numbers": layer.rayleigh_numbers(cfg),
+            "above_onset": bool(result.supercriticality and result.supercriticality > 1.0)}
+
+
+def _onset_stated_table(stated: dict) -> str:
+    ra = stated["rayleigh_numbers"]
+    where = stated["rayleigh_reference"]
+    return "\n".join([
+        f"(above: Ra with the law's unit viscosity; with the viscosity at the {where}:)",
+        f"critical Rayleigh number (layer / box)  {stated['critical_rayleigh']:.6g} / "
+        f"{stated['box_critical_rayleigh']:.6g}",
+        f"Rayleigh number at top / bottom / interior  {ra['top']:.6g} / {ra['bottom']:.6g} / "
+        f"{ra['interior']:.6g}",
+        "the layer " + ("convects (above onset)" if stated["above_onset"]
+                        else "does not convect (below onset)")])
+
+
 def _onset_table(result) -> str:
     def fmt(value, spec=".6g"):
         return "-" if value is None else format(value, spec)
@@ -131,6 +156,8 @@ def _run_onset(args) -> int:
             raise OutputExistsError(f"{existing[0]}: exists; pass --overwrite to replace it")
     result = _onset_from_config(cfg, wavenumbers, args.points)
     payload = result.to_dict()
+    stated = _onset_stated(cfg, result)
+    payload["stated"] = stated
     runs = _onset_run_bracket(cfg, result, run_options)
     if runs is not None:
         payload["runs"] = runs.to_dict()
@@ -146,6 +173,7 @@ def _run_onset(args) -> int:
         emit_json(payload)
     else:
         print(_onset_table(result))
+        print(_onset_stated_table(stated))
         if runs is not None:
             print(_onset_runs_table(runs))
         if out is not None:

@@ -19,6 +19,12 @@ _RAYLEIGH_FLAGS = (  # (units.Scales field, option, meaning, SI units, example);
     ("reference_viscosity", "--viscosity", "reference viscosity eta_ref", "Pa s", "1e21 Pa s"),
     ("heat_production", "--heat-production", "heat production per unit mass (default 0)",
      "W kg^-1", "5e-12 W/kg"),
+    ("activation_energy", "--activation-energy", "Arrhenius activation energy (default 0)",
+     "kJ mol^-1", "60 kJ/mol"),
+    ("activation_volume", "--activation-volume", "Arrhenius activation volume (default 0)",
+     "cm^3 mol^-1", "5 cm^3/mol"),
+    ("maximum_viscosity", "--maximum-viscosity", "upper cut-off of the viscosity (default 0)",
+     "Pa s", "1e22 Pa s"),
 )
 
 _RAYLEIGH_CAUTION = ("research estimate: Ra grows as d^3 / eta and the inputs, the viscosity "
@@ -86,19 +92,12 @@ def _rayleigh_result(args):
     top, bottom = _rayleigh_boundaries(args.boundaries, cfg)
     ra, h_nd, ra_h = (scales.rayleigh(), scales.internal_heating_number(),
                       scales.internal_heating_rayleigh())
-    ra_c = units.critical_rayleigh_for(top, bottom)
-    notes = []
-    if h_nd > 0.0 or (cfg is not None and cfg.physics.internal_heating != 0.0):
-        notes.append("Ra_c is for heating from below; internal heating moves the onset")
-    if cfg is not None and "flux" in (cfg.boundaries.top_heat, cfg.boundaries.bottom_heat):
-        notes.append("Ra_c assumes fixed temperatures; the config fixes a heat flux")
-    onset = {"top_flow": top, "bottom_flow": bottom, "critical_rayleigh": ra_c,
-             "ratio": ra / ra_c, "above_onset": ra > ra_c,
-             "source": "linear stability of the conductive state (convsim onset for the "
-                       "config's own heating and rheology); fixed temperatures, heated from "
-                       "below, constant viscosity", "notes": notes}
+    layer_cfg = _rayleigh_layer(cfg, scales, top, bottom)
+    onset = _rayleigh_onset(layer_cfg, h_nd, box=cfg is not None)
     result = {
-        "rayleigh": ra, "internal_heating_number": h_nd, "internal_heating_rayleigh": ra_h,
+        "rayleigh": ra, "rayleigh_reference": layer_cfg.physics.rayleigh_reference,
+        "rayleigh_numbers": onset.pop("rayleigh_numbers"), "viscosity": _law_dict(layer_cfg),
+        "internal_heating_number": h_nd, "internal_heating_rayleigh": ra_h,
         "properties": {p.name: {"value": getattr(scales, p.name), "units": p.units,
                                 "from": origin[p.name]} for p in units.PROPERTIES},
         "scales": {"length_km": scales.length_to_km(1.0),
@@ -125,7 +124,11 @@ def _print_rayleigh(result: dict, scales, origin: dict) -> None:
         lines.append(f"  {p.name:<22s} {getattr(scales, p.name):<12.6g} {p.units:<12s} "
                      f"({origin[p.name]})")
     lines += [
-        f"Ra   = {ra:<11.4g} rho g alpha dT d^3 / (kappa eta_ref)",
+        f"Ra   = {ra:<11.4g} rho g alpha dT d^3 / (kappa eta_ref), eta_ref at the "
+        f"{result['rayleigh_reference']}",
+        "  Ra at the top {top:.4g}, bottom {bottom:.4g}, interior {interior:.4g}".format(
+            **result["rayleigh_numbers"]),
+        f"  viscosity law: {_law_text(result['viscosity'])}",
         f"H_nd = {h_nd:<11.4g} rho H d^2 / (k dT)",
         f"Ra_H = {ra_h:<11.4g} rho g alpha (rho H) d^5 / (k kappa eta_ref) = Ra H_nd",
         "scales:",
@@ -135,10 +138,72 @@ def _print_rayleigh(result: dict, scales, origin: dict) -> None:
         f"  heat flux    {sc['heat_flux_mw_m2']:<11.4g} mW/m^2  k dT / d (times Nu or q)",
         f"  temperature  T_dim = {scales.surface_temperature:.6g} K + "
         f"{scales.temperature_contrast:.6g} K x T",
-        f"onset: Ra_c = {ra_c:.6g} for {top} top, {bottom} bottom ({onset['source']})",
-        f"  Ra / Ra_c = {ra / ra_c:.4g}: " + ("above onset, convecting" if ra > ra_c
-                                              else "below onset, conduction only"),
+        f"onset ({onset['source']}):",
+        f"  Ra_c = {ra_c:.6g} (at the {result['rayleigh_reference']}; {top} top, {bottom} "
+        f"bottom), Ra / Ra_c = {onset['ratio']:.4g}: "
+        + ("above onset, convecting" if onset["above_onset"] else "below onset, conduction only"),
     ]
     lines += [f"  note: {note}" for note in onset["notes"]]
     lines.append(f"caution: {_RAYLEIGH_CAUTION}")
     print("\n".join(lines))
+
+
+def _rayleigh_layer(cfg, scales, top, bottom):
+    """The config of the layer ``convsim rayleigh`` describes: Ra and any Arrhenius law from
+    the (possibly overridden) properties, through the same resolution a run uses."""
+    import dataclasses
+    from convsim import units
+    from convsim.config import Body, Config
+    from convsim.run.layer import resolve
+    base = cfg if cfg is not None else Config()
+    body = Body(**{p.body_key: getattr(scales, p.name) for p in units.PROPERTIES})
+    derived = {"physics.rayleigh"}            # the properties (flags included) decide these
+    if scales.activation_energy > 0:
+        derived |= {"viscosity.law", "viscosity.activation_energy",
+                    "viscosity.activation_volume", "viscosity.temperature_offset"}
+    if scales.maximum_viscosity > 0:
+        derived.add("viscosity.maximum")
+    base = dataclasses.replace(base, body=body, given=frozenset(base.given - derived))
+    return resolve(base.replace(boundaries__top_flow=top, boundaries__bottom_flow=bottom))
+
+
+def _rayleigh_onset(layer_cfg, h_nd, box: bool) -> dict:
+    """Whether the layer convects, from the eigen-solver with its law and boundaries: against
+    the box's critical Ra when a config gives the box (as ``convsim onset``), else against
+    the unbounded layer's.  Rayleigh numbers at the config's rayleigh_reference."""
+    from convsim.analysis.onset_runs import onset_from_config
+    from convsim.run import layer
+    result = onset_from_config(layer_cfg)
+    ref = layer.internal_rayleigh(layer_cfg) / layer_cfg.physics.rayleigh   # eta at the ref.
+    critical = (result.box_critical_rayleigh if box else result.critical_rayleigh) / ref
+    ratio = layer_cfg.physics.rayleigh / critical
+    notes = []
+    if h_nd > 0.0 or layer_cfg.physics.internal_heating != 0.0:
+        notes.append("the [body] heat production is not part of the onset problem; "
+                     "physics.internal_heating is")
+    b = layer_cfg.boundaries
+    return {"top_flow": b.top_flow, "bottom_flow": b.bottom_flow,
+            "critical_rayleigh": critical, "ratio": ratio, "above_onset": bool(ratio > 1.0),
+            "layer_critical_rayleigh": result.critical_rayleigh / ref,
+            "box_critical_rayleigh": result.box_critical_rayleigh / ref if box else None,
+            "box_mode": result.box_mode if box else None,
+            "aspect": result.aspect if box else None,
+            "rayleigh_numbers": layer.rayleigh_numbers(layer_cfg),
+            "source": "eigen-solver of the conductive state with the layer's viscosity law "
+                      "and boundaries, " + ("in the config's box (as convsim onset)" if box
+                                           else "unbounded layer"), "notes": notes}
+
+
+def _law_dict(cfg) -> dict:
+    import dataclasses
+    return dataclasses.asdict(cfg.viscosity)
+
+
+def _law_text(law: dict) -> str:
+    if law["law"] == "arrhenius":
+        return (f"arrhenius, E = {law['activation_energy']:.4g} dT, V = "
+                f"{law['activation_volume']:.4g} dT, T0 = {law['temperature_offset']:.4g} dT")
+    if law["law"] == "frank-kamenetskii":
+        return (f"frank-kamenetskii, thermal contrast {law['thermal_contrast']:.4g}, depth "
+                f"contrast {law['depth_contrast']:.4g}")
+    return law["law"]

@@ -98,6 +98,8 @@ def _run(args):
         cfg = _restart_config(args.restart, overrides, args.grid)
     else:
         cfg = load_run_config(args.config, overrides, args.grid)
+    from convsim.run.layer import resolve
+    cfg = resolve(cfg)          # [body] sets Ra (or refuses a mismatch) before any comparison
     output = None
     if args.restart:
         _check_restart_config(args.restart, cfg)
@@ -113,6 +115,9 @@ def _run(args):
         print(f"{result.status}: {result.message}")
         print(f"  Nu top {result.nusselt_top:.6f}  Nu bottom {result.nusselt_bottom:.6f}  "
               f"vrms {result.vrms:.6f}")
+        ra = result.rayleigh_numbers
+        print(f"  Ra at the top {ra['top']:.6g}  bottom {ra['bottom']:.6g}  "
+              f"interior {ra['interior']:.6g}")
         print(f"  grid {result.grid.nx}x{result.grid.nz}  steps {result.steps}  "
               f"time {result.time:.6g}  wall {result.wall_seconds:.2f} s")
         for line in physical_lines(result.physical):

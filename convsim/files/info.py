@@ -132,7 +132,8 @@ def format_info(info: dict) -> str:
         f"{'periodic' if g['periodic'] else 'reflecting'} sides",
     ]
     if phys:
-        lines.append(f"  physics     Ra = {phys.get('rayleigh', float('nan')):g}, "
+        lines.append(f"  physics     Ra = {phys.get('rayleigh', float('nan')):g} (viscosity at the "
+                     f"{phys.get('rayleigh_reference', 'top')}), "
                      f"internal heating {phys.get('internal_heating', 0.0):g}")
     if bnd:
         lines.append(f"  boundaries  top {bnd.get('top_flow')} / {bnd.get('top_heat')} "

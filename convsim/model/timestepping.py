@@ -4,8 +4,9 @@ One step, from the state (T^n, psi^n) at time t_n (psi^n already solved from T^n
 
 1. explicit term N^n = -div(u^n T^n) + H (``energy.advection``; the tendency dT/dt
    is the whole right side, its largest value ``StepReport.tendency_max``);
-2. dt from the Courant number of u^n, capped by ``max_dt`` and by a growth of at
-   most 25 % over the previous step;
+2. dt from ``convsim.model.stepsize.StepSizeRule``: the Courant number of u^n,
+   ``max_dt``, a growth of at most 25 % over the previous step, and a fraction of the
+   time scale on which the advective part of N changes;
 3. implicit-explicit update (diffusion implicit, advection and heating explicit).
    Second-order SBDF with step ratio r = dt_n / dt_{n-1} (w is the vertical velocity):
 
@@ -36,12 +37,12 @@ from convsim.model.energy import DiffusionSolver, ThermalBoundaries, advection
 from convsim.model.grid import Grid
 from convsim.model.linsolve import LaggedFactorSolver, SolveReport, make_factorizer, available_factorizers
 from convsim.model.rheology import ViscosityLaw, viscosity
+from convsim.model.stepsize import GROWTH_LIMIT, StepSizeRule
 from convsim.model.stokes import StokesOperator, TransformSolver, face_velocities
 
 __all__ = ["ModelState", "StepReport", "Model", "MAX_REJECTIONS", "StepFailed"]
 
 MAX_REJECTIONS = 6
-GROWTH_LIMIT = 1.25
 
 
 @dataclass
@@ -76,6 +77,7 @@ class StepReport:
     rejections: int = 0
     stokes_iterations: int = 0
     refactored: bool = False
+    stokes_residual: float = 0.0           # ||b - A psi|| / ||b|| of the Stokes solve
     seconds: dict = field(default_factory=dict)   # wall time per phase
 
 
@@ -98,6 +100,8 @@ class Model:
         A TVD limiter name, or 'upwind'.
     time_scheme : {'sbdf2', 'euler'}
     cfl, max_dt : float
+    time_scale_fraction : float
+        dt <= this fraction of the flow's time scale (see ``convsim.model.stepsize``); 0: off.
     stokes_solver : {'auto', 'transform', 'cholmod', 'superlu'}
     factor_reuse : {'adaptive', 'always'}
     """
@@ -107,11 +111,13 @@ class Model:
                  top_flow: str = "free-slip", bottom_flow: str = "free-slip",
                  advection_limiter: str = "van-leer", time_scheme: str = "sbdf2",
                  cfl: float = 0.4, max_dt: float = 1e-2, stokes_solver: str = "auto",
-                 factor_reuse: str = "adaptive"):
+                 factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04):
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
         self.cfl, self.max_dt = float(cfl), float(max_dt)
+        self.step_size = StepSizeRule(self.cfl, self.max_dt, float(time_scale_fraction),
+                                      GROWTH_LIMIT)
         self.stokes = StokesOperator(grid, top_flow, bottom_flow)
         self.diffusion = DiffusionSolver(grid, thermal)
         self._x_node, self._z_node = grid.node_mesh()
@@ -210,8 +216,7 @@ class Model:
     def courant_dt(self, psi: np.ndarray) -> float:
         """dt = cfl / (max|u|/dx + max|w|/dz), capped by max_dt."""
         u, w = face_velocities(self.grid, psi)
-        rate = np.abs(u).max() / self.grid.dx + np.abs(w).max() / self.grid.dz
-        return self.max_dt if rate == 0.0 else min(self.max_dt, self.cfl / rate)
+        return self.step_size.courant_dt(u, w, self.grid.dx, self.grid.dz)
 
     # -- the step ---------------------------------------------------------------------------
     def step(self, state: ModelState, dt_limit: float | None = None) -> tuple[ModelState, StepReport]:
@@ -221,9 +226,11 @@ class Model:
         T, psi = state.temperature, state.psi
         N = self.explicit_term(T, psi)
         timings["advect"] = time.perf_counter() - t0
-        dt = self.courant_dt(psi)
-        if state.previous_dt > 0.0:
-            dt = min(dt, GROWTH_LIMIT * state.previous_dt)
+        u, w = face_velocities(self.grid, psi)
+        before = (None if state.previous_tendency is None
+                  else state.previous_tendency - self.internal_heating)
+        dt = self.step_size.choose(u, w, self.grid.dx, self.grid.dz, N - self.internal_heating,
+                                   before, state.previous_dt)
         if dt_limit is not None:
             dt = min(dt, dt_limit)
         use_sbdf2 = self.time_scheme == "sbdf2" and state.previous_temperature is not None
@@ -292,7 +299,8 @@ class Model:
             mean_temperature=float(T.mean()),
             energy_residual=residual, heat_imbalance=imbalance,
             tendency_max=float(change), rejections=rejections,
-            stokes_iterations=solve.iterations, refactored=solve.refactored)
+            stokes_iterations=solve.iterations, refactored=solve.refactored,
+            stokes_residual=solve.residual)
 
     def with_rayleigh(self, rayleigh: float) -> "Model":
         """The same model at another Rayleigh number (for continuation)."""

@@ -14,6 +14,7 @@ from convsim.model.energy import ThermalBoundaries
 from convsim.model.grid import Grid
 from convsim.model.rheology import ViscosityLaw
 from convsim.model.timestepping import Model
+from convsim.run import layer
 
 __all__ = ["build_model", "build_grid", "build_thermal", "build_law"]
 
@@ -40,6 +41,8 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     """The ``Model`` a config describes (``grid`` overrides [domain], for convergence studies)."""
     b, n = config.boundaries, config.numerics
     limiter = "upwind" if n.advection == "upwind" else n.limiter
-    return Model(grid or build_grid(config), config.physics.rayleigh, build_thermal(config),
-                 build_law(config), config.physics.internal_heating, b.top_flow, b.bottom_flow,
-                 limiter, n.time_scheme, n.cfl, n.max_dt, n.stokes_solver, n.factor_reuse)
+    # Ra with the law's reference viscosity, from Ra at the stated reference (run.layer)
+    return Model(grid or build_grid(config), layer.internal_rayleigh(config),
+                 build_thermal(config), build_law(config), config.physics.internal_heating,
+                 b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
+                 n.stokes_solver, n.factor_reuse, n.time_scale_fraction)

@@ -1,4 +1,8 @@
-"""Continuation stages: Rayleigh numbers run to steady state, in order, before the target one.
+"""Continuation stages: values of one parameter run to steady state, in order, before the target.
+
+The parameter is ``start.continuation_key``: the Rayleigh number (default) or a viscosity
+parameter (``viscosity.thermal_contrast``, ``depth_contrast``, ``activation_energy``), e.g.
+a viscosity contrast raised in steps towards a planetary one.
 
 The 1c benchmark case, for instance, first converges Ra = 1e5 and continues from
 that state at Ra = 1e6 (``start.continuation = [1e5]``): the perturbed conductive
@@ -22,13 +26,23 @@ class Continuation:
     ``stage`` is the index of the current stage; ``advance`` moves to the next one.
     """
 
-    def __init__(self, rayleighs):
+    def __init__(self, rayleighs, configs=None):
         self.rayleighs = [float(r) for r in rayleighs]
+        self.configs = configs          # one Config per stage when a viscosity key varies
         self.stage = 0
 
     @classmethod
     def from_config(cls, config) -> "Continuation":
-        return cls(list(config.start.continuation) + [config.physics.rayleigh])
+        """The stages of a config, as Ra with the law's reference viscosity (``run.layer``)."""
+        from convsim.run.layer import internal_rayleigh
+        key = config.start.continuation_key
+        if key == "physics.rayleigh":
+            return cls([internal_rayleigh(config, ra)
+                        for ra in list(config.start.continuation) + [config.physics.rayleigh]])
+        section, name = key.split(".")
+        configs = [config.replace(**{f"{section}__{name}": v})
+                   for v in config.start.continuation] + [config]
+        return cls([internal_rayleigh(c) for c in configs], configs)
 
     @property
     def rayleigh(self) -> float:
@@ -39,7 +53,10 @@ class Continuation:
         return self.stage < len(self.rayleighs) - 1
 
     def model(self, base):
-        """The base model at the current stage's Rayleigh number."""
+        """The base model at the current stage's Rayleigh number (or viscosity law)."""
+        if self.configs is not None and self.stage < len(self.configs) - 1:
+            from convsim.run.build import build_model
+            return build_model(self.configs[self.stage], base.grid)
         return base.with_rayleigh(self.rayleigh)
 
     def advance(self, base, state):

@@ -31,6 +31,7 @@ from dataclasses import dataclass
 from convsim.config import Config, to_toml
 from convsim.model.grid import Grid
 from convsim.model.timestepping import Model, ModelState, StepFailed
+from convsim.run import layer
 from convsim.run.averages import RunAverages, finish_statistics, step_quantities, wall_contrast
 from convsim.run.build import build_model
 from convsim.run.continuation import Continuation
@@ -93,10 +94,12 @@ class Simulation:
         self.observers = list(observers)
         self.config_text = to_toml(config)
         self.newton_reports: list = []
+        self.smallest_viscosity = layer.smallest_viscosity(config)
 
     @classmethod
     def from_config(cls, config: Config, temperature=None, observers=(),
                     grid: Grid | None = None) -> "Simulation":
+        config = layer.resolve(config)      # Ra and an Arrhenius law from [body]
         return cls(config, build_model(config, grid), temperature, observers)
 
     def run(self, resume: ResumePoint | None = None) -> RunResult:
@@ -115,6 +118,7 @@ class Simulation:
                 self._snapshot(p, decision.status)
         result = final_result(p.model, p.state, decision, time.perf_counter() - p.wall0,
                               Series.columns(p.series.all_rows), p.phase)
+        result.rayleigh_numbers = layer.rayleigh_numbers(self.config)
         finish_statistics(result, p.averages, p.model, p.state, self.config.stop.steady_tolerance)
         if decision.status == "diverged":
             log.warning("run diverged: %s; the last good state is kept", decision.message)
@@ -183,7 +187,8 @@ class Simulation:
             new, report = p.model.step(p.state, dt_limit)
         except StepFailed as exc:
             return None, Decision("diverged", str(exc))
-        failure = runaway(report, p.model.rayleigh)
+        failure = runaway(report, p.model.rayleigh, self.smallest_viscosity,
+                          self.config.stop.runaway_factor)
         if failure is not None:
             return report, failure
         if limit < math.inf and abs(new.time - limit) <= TIME_ROUNDING * abs(limit):

@@ -79,6 +79,7 @@ class RunResult:
     settled: str = "unfinished"                      # steady | statistically-steady | unfinished
     lid: dict = field(default_factory=dict)          # stagnant-lid diagnostics and regime
     heat_balance: dict = field(default_factory=dict)  # <Nu_top> - <Nu_bottom> - H / dT
+    rayleigh_numbers: dict = field(default_factory=dict)   # Ra at top, bottom, interior
     scales: object = None          # convsim.units.Scales of the config's [body], or None
     physical: dict | None = None   # the answers in physical units (convsim.units)
 
@@ -102,6 +103,7 @@ class RunResult:
                     output=self.output, message=self.message, settled=self.settled,
                     regime=self.lid.get("regime"), statistics=_finite(self.statistics),
                     lid=_finite(self.lid), heat_balance=_finite(self.heat_balance),
+                    **{f"rayleigh_{k}": v for k, v in self.rayleigh_numbers.items()},
                     **({"physical": self.physical} if self.physical else {}))
 
 

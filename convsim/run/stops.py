@@ -217,10 +217,14 @@ class Interrupted(StopRule):
         return None
 
 
-def runaway(report, rayleigh: float) -> Decision | None:
+def runaway(report, rayleigh: float, eta_min: float = 1.0, factor: float = 100.0
+            ) -> Decision | None:
     """Divergence: vrms or Nu not finite, or vrms far above the boundary-layer scaling
-    (max(1e3, 100 Ra^(2/3)), common practice as a generous bound).  The step is not kept."""
-    limit = max(1.0e3, 100.0 * rayleigh ** (2.0 / 3.0))
+    (``run.layer.runaway_velocity``: factor x max(10, (Ra / eta_min)^(2/3)), Ra with the
+    law's reference viscosity, eta_min the smallest viscosity of the layer, so the scale
+    is that of its least viscous fluid).  The step is not kept."""
+    from convsim.run.layer import runaway_velocity
+    limit = runaway_velocity(rayleigh, eta_min, factor)
     if not (np.isfinite(report.vrms) and np.isfinite(report.nusselt_top)) or report.vrms > limit:
         return Decision("diverged", f"step {report.step} at t = {report.time:.6g}: vrms = "
                                     f"{report.vrms:.3g} is not finite or above {limit:.3g}")

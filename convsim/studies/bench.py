@@ -41,7 +41,8 @@ from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
 from convsim.pool import process_pool
-from convsim.studies.published import ACCEPTANCE, CASE_SETUP, PUBLISHED, QUANTITIES, known_cases
+from convsim.studies.published import (ACCEPTANCE, CASE_SETUP, DEFAULT_CASES, PUBLISHED,
+                                       QUANTITIES, known_cases)
 
 __all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
            "BenchResult", "case_config_path", "package_cases_dir",
@@ -97,9 +98,9 @@ def parse_grids(text) -> tuple:
 
 
 def parse_cases(names) -> tuple:
-    """Case names (empty: all known cases, in order); ConfigError names an unknown one."""
+    """Case names (empty: the default cases, in order); ConfigError names an unknown one."""
     if not names:
-        return known_cases()
+        return DEFAULT_CASES
     out = []
     for name in names:
         name = name.strip().lower()
@@ -183,7 +184,9 @@ def run_task(task: BenchTask) -> BenchRow:
                            stop__end_time=0.0, start__continuation=())
         api.run(warm)
     before = _maxrss_mib()
-    cfg = cfg.replace(domain__nx=task.grid, domain__nz=task.grid)
+    # grid n: n cells through the depth, square cells across the box (aspect 2.5: 2.5 n)
+    cfg = cfg.replace(domain__nx=max(4, round(cfg.domain.aspect * task.grid)),
+                      domain__nz=task.grid)
     result = api.run(cfg)
     peak = _maxrss_mib()
     T = result.temperature
@@ -215,7 +218,7 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
 
 def plan(cases, grids, overrides=(), warmup=True) -> list:
     """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy."""
-    cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0}   # rough relative cost, our guess
+    cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0, "2b": 10.0}   # rough relative cost, our guess
     tasks = [BenchTask(c, n, str(case_config_path(c)), tuple(overrides), warmup)
              for c in cases for n in grids]
     return sorted(tasks, key=lambda t: -(t.grid ** 3) * cost.get(t.case, 1.0))
@@ -272,7 +275,8 @@ class CaseSummary:
 
     @property
     def extrapolated_error(self) -> dict:
-        return {q: (v - self.published[q]) / self.published[q] if math.isfinite(v) else math.nan
+        return {q: (v - self.published[q]) / self.published[q]
+                if math.isfinite(v) and q in self.published else math.nan
                 for q, v in self.extrapolated.items()}
 
     @property
@@ -341,7 +345,7 @@ def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummar
                      "extrapolated value are not measurable (they need three grids); judged: "
                      "steady state and the finest grid's error only")
     finest = rows[-1] if rows else None
-    for q in QUANTITIES:
+    for q in (q for q in QUANTITIES if q in published):     # 2b: Nu and vrms only
         acc = ACCEPTANCE[q]
         if finest is not None:
             err = finest.relative_error[q]

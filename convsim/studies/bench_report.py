@@ -132,8 +132,7 @@ def _acceptance(bench: dict) -> list:
     L += ["## Published values and definitions", ""]
     sources = {}
     for case in bench["cases"]:
-        for q in QUANTITIES:
-            pv = PUBLISHED[case["case"]][q]
+        for pv in PUBLISHED[case["case"]].values():
             sources[pv.source.key] = pv.source
     for src in sources.values():
         L += [f"- {src.citation}." + (f" **{src.note}.**" if src.note else "")]
@@ -186,14 +185,16 @@ def _case_setup(c: dict) -> list:
 
 def _case_runs(c: dict) -> list:
     pub = c["published"]
-    L = ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES)
+    L = ["Published: " + ", ".join(f"{LABEL[q]} = {_g(pub[q], 8)}" for q in QUANTITIES
+                                   if q in pub)
           + " (" + PUBLISHED[c["case"]]["nusselt_top"].citation + ").", ""]
     rows = []
     for r in c["rows"]:
         e = r["relative_error"]
         rows.append([r["grid"], r["status"], r["steps"], _g(r["nusselt_top"]),
                      _g(r["nusselt_bottom"]), _g(r["vrms"]), _g(r["q1"]), _g(r["q2"]),
-                     _pct(e["nusselt_top"]), _pct(e["vrms"]), _pct(e["q1"]), _pct(e["q2"]),
+                     _pct(e["nusselt_top"]), _pct(e["vrms"]), _pct(e.get("q1")),
+                     _pct(e.get("q2")),
                      _g(r["wall_seconds"], 4)])
     L += _table(["grid", "status", "steps", "Nu top", "Nu bottom", "vrms", "q1", "q2",
                  "err Nu", "err vrms", "err q1", "err q2", "wall s"], rows)
@@ -210,7 +211,7 @@ def _case_convergence(c: dict) -> list:
     pub = c["published"]
     L = ["Convergence from the three finest steady grids:", ""]
     rows = []
-    for q in QUANTITIES:
+    for q in (q for q in QUANTITIES if q in pub):
         est = c["convergence"].get(q)
         if est is None:
             rows.append([LABEL[q], "not enough grids", "-", "-", "-", "-", "-", "-"])
@@ -343,7 +344,8 @@ def terminal_table(bench: dict) -> str:
                          f"{_pct(err['vrms'], 2):>9}")
         lines.append(f"{c['case']:<5}{'pub':>5} {'':<9}{_g(c['published']['nusselt_top']):>11}"
                      f"{'':>9}{_g(c['published']['vrms']):>11}{'':>9}"
-                     f"{_g(c['published']['q1'], 6):>10}{_g(c['published']['q2'], 5):>9}")
+                     f"{_g(c['published'].get('q1'), 6):>10}"
+                     f"{_g(c['published'].get('q2'), 5):>9}")
         order = (f"observed order p(Nu) {_g(p['nusselt_top'], 3)}, p(vrms) {_g(p['vrms'], 3)}"
                  if measurable else f"order and extrapolation not measurable with "
                  f"{len(c['rows'])} grid(s) (three needed); judged on the finest grid")

@@ -1,0 +1,83 @@
+"""Time and check the two lid-regime cases from their configs, and a grid-convergence study.
+
+Usage (from the repository root; run under the CPU lock so the timings mean something):
+
+    flock /tmp/convsim-cpu.lock python3 benchmarks/lid_cases.py [--study]
+
+Goals (issue 10): Blankenbach et al. (1989) case 2b (configs/benchmark_case_2b.toml) at
+160 x 64 from its config in under 30 s, within 0.5 % of the published Nu = 6.9299 and
+vrms = 171.755 (quoted from memory); the stagnant-lid case 1 of Tosi et al. (2015)
+(configs/benchmark_viscoplastic_case1.toml) at 128 x 128 in under 60 s.  ``--study`` also
+runs both on coarser grids and prints the convergence (observed order from the three finest
+grids, common practice: p = log((f3 - f2) / (f2 - f1)) / log 2).  A benchmark, not a test:
+it prints figures and marks each goal met or not; it never fails on speed.
+"""
+
+import argparse
+import math
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+
+PUBLISHED_2B = {"nusselt_top": 6.9299, "vrms": 171.755}   # Blankenbach et al. 1989, from memory
+
+
+def _run(config: str, nx: int, nz: int):
+    from convsim.api import run
+    from convsim.config import load_config
+    cfg = load_config(ROOT / "configs" / config).replace(domain__nx=nx, domain__nz=nz)
+    t0 = time.perf_counter()
+    result = run(cfg)
+    return result, time.perf_counter() - t0
+
+
+def _line(name, grid, result, seconds):
+    return (f"{name:<6} {grid:>8}  {result.status:<8} steps {result.steps:>5}  "
+            f"Nu {result.nusselt_top:.6f}  vrms {result.vrms:.5f}  <T> "
+            f"{result.mean_temperature:.6f}  {seconds:7.1f} s")
+
+
+def _order(values):
+    f1, f2, f3 = values[-1], values[-2], values[-3]          # finest last
+    if (f3 - f2) * (f2 - f1) <= 0 or f2 == f1:
+        return math.nan
+    return math.log(abs((f3 - f2) / (f2 - f1))) / math.log(2.0)
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--study", action="store_true", help="also coarser grids: convergence")
+    args = parser.parse_args()
+    from convsim.model.linsolve import limit_blas_threads
+    limit_blas_threads(1)
+    cases = [("2b", "benchmark_case_2b.toml", [(40, 16), (80, 32), (160, 64)], 30.0),
+             ("lid", "benchmark_viscoplastic_case1.toml", [(32, 32), (64, 64), (128, 128)],
+              60.0)]
+    goals = []
+    for name, config, grids, limit in cases:
+        runs = grids if args.study else grids[-1:]
+        results = []
+        for nx, nz in runs:
+            result, seconds = _run(config, nx, nz)
+            results.append(result)
+            print(_line(name, f"{nx}x{nz}", result, seconds), flush=True)
+        goals.append((f"{name} at {runs[-1][0]}x{runs[-1][1]} steady in under {limit:g} s "
+                      f"({seconds:.1f} s)", result.status == "steady" and seconds < limit))
+        if name == "2b":
+            for q, pub in PUBLISHED_2B.items():
+                err = getattr(result, q) / pub - 1.0
+                goals.append((f"2b {q} within 0.5 % of {pub} ({100 * err:+.3f} %)",
+                              abs(err) <= 0.005))
+        if len(results) >= 3:
+            for q in ("nusselt_top", "vrms", "mean_temperature"):
+                print(f"       observed order of {q}: "
+                      f"{_order([getattr(r, q) for r in results]):.3g}")
+    for text, met in goals:
+        print(f"{'MET    ' if met else 'NOT MET'}  {text}")
+
+
+if __name__ == "__main__":
+    main()
