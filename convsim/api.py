@@ -18,6 +18,7 @@ from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
 from convsim.files.xdmf import write_xdmf
+from convsim.threads import limit_threads
 from convsim.views import open_run
 
 __all__ = ["load_config", "run", "open_run", "start_temperature"]
@@ -36,7 +37,8 @@ def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
 
 def run(config: Config | str | Path, output: str | Path | None = None, *,
         overwrite: bool = False, restart: str | Path | None = None, observers=(),
-        grid: Grid | None = None, progress: bool = False) -> RunResult:
+        grid: Grid | None = None, progress: bool = False, threads: int | None = None
+        ) -> RunResult:
     """Run a config to its stop rule.
 
     Parameters
@@ -55,6 +57,9 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     progress : bool
         Show a progress bar (a widget in Jupyter, a line on a terminal; see
         ``convsim.run.progress``).
+    threads : int, optional
+        Threads for the numerics (BLAS, numba); default $CONVSIM_THREADS or 1
+        (see ``convsim.threads``).
 
     Returns
     -------
@@ -62,6 +67,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         With ``physical`` (answers in mW m^-2, cm yr^-1, K, Myr) and ``scales`` when the
         config has a [body] table; ``result.to_xarray()`` gives an ``xarray.Dataset``.
     """
+    limit_threads(threads)
     if not isinstance(config, Config):
         config = load_config(config)
     scales = None

@@ -190,6 +190,9 @@ class Stop:
     newton_threshold: float = _key(
         "try Newton once max|dT/dt| / Nu falls below this (retried later if it fails)",
         default=0.1, gt=0.0, le=1.0e9)
+    newton_decay: float = _key(
+        "also try Newton once max|dT/dt| has decayed to this fraction of its peak in the "
+        "stage (0: off)", default=0.1, ge=0.0, lt=1.0)
     mean_precision: float = _key(
         "stop when the time means of Nu at top and bottom are known to this relative 95 % "
         "half-width, after the spin-up (0: off)", default=0.0, ge=0.0, le=1.0)

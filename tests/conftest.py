@@ -39,7 +39,7 @@ def _run(tmp_path_factory, name, config, overrides, **replace):
 def constant_run(tmp_path_factory) -> Path:
     """Case 1a (constant viscosity) on 12 x 12 cells, 200 steps, a snapshot every 50."""
     return _run(tmp_path_factory, "const", "benchmark_case_1a.toml",
-                ["domain.nx=12", "domain.nz=12", "stop.max_steps=200",
+                ["domain.nx=12", "domain.nz=12", "stop.max_steps=200", "stop.steady=false",
                  "output.snapshot_steps=50"])
 
 

@@ -32,6 +32,18 @@ def load_run_config(path, overrides=(), grid=None):
 EXIT_FOR_STATUS = {"diverged": 3, "interrupted": 130}
 
 
+def _positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1 (argparse turns the error into exit status 2)."""
+    import argparse
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a whole number >= 1")
+    return value
+
+
 @command("run", "run a config: a convecting box to steady state or an end time")
 def _add_run(p):
     p.add_argument("config", nargs="?", help="TOML config file (with --restart: default the "
@@ -46,6 +58,8 @@ def _add_run(p):
                    help="continue this run file from its last snapshot, bit for bit")
     p.add_argument("--overwrite", action="store_true", help="replace an existing run file")
     p.add_argument("--json", action="store_true", help="print the summary as JSON on stdout")
+    p.add_argument("--threads", type=_positive_int, metavar="N",
+                   help="threads for the numerics (default: $CONVSIM_THREADS or 1)")
     p.set_defaults(handler=_run)
 
 
@@ -107,7 +121,7 @@ def _run(args):
         output = Path(args.out) / (Path(args.config).stem + ".h5")
     from convsim.run.progress import ProgressDisplay
     result = api.run(cfg, output, overwrite=args.overwrite, restart=args.restart,
-                     observers=[ProgressDisplay(cfg)])
+                     observers=[ProgressDisplay(cfg)], threads=args.threads)
     summary = result.summary()
     if args.json:
         emit_json(summary)

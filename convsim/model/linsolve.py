@@ -26,6 +26,7 @@ import scipy.sparse.linalg as sla
 
 from convsim.errors import SolverError
 from convsim.model.choices import FACTOR_REUSE
+from convsim.threads import reapply_limit
 
 __all__ = ["FACTORIZERS", "limit_blas_threads", "available_factorizers", "make_factorizer", "solve_spd",
            "LaggedFactorSolver", "SolveReport"]
@@ -61,24 +62,36 @@ class CholmodFactorizer:
                               "allowed: 'superlu', or pip install cvxopt") from exc
         self._cvxopt = cvxopt
         self._cholmod = cvxopt.cholmod
-        limit_blas_threads(1)
+        reapply_limit()          # cvxopt loads a BLAS of its own: same limit as the run
         self._cholmod.options["supernodal"] = 2
         self._symbolic = None
-        self._key = None
-        self._lower = None
+        self._pattern = None        # (indptr, indices) of the A the analysis belongs to
+        self._upper = None          # positions of A's upper triangle in A.data
+        self._matrix = None         # the lower triangle as a cvxopt matrix (values refilled)
 
     def factor(self, A: sp.spmatrix) -> None:
+        """Factor A; the symbolic analysis and the cvxopt matrix are kept per sparsity pattern.
+
+        The lower triangle in compressed-column order is the upper triangle of the
+        symmetric A in CSR order, so a refactor only gathers A's values at fixed
+        positions into the kept matrix (no triplet lists, no re-sorting).
+        """
         cvx = self._cvxopt
-        lower = sp.tril(A, format="coo")
-        key = (A.shape, lower.nnz, hash(lower.row.tobytes()), hash(lower.col.tobytes()))
-        if key != self._key:
-            self._I = cvx.matrix(lower.row.astype(np.int64).tolist(), tc="i")
-            self._J = cvx.matrix(lower.col.astype(np.int64).tolist(), tc="i")
-        M = cvx.spmatrix(cvx.matrix(lower.data), self._I, self._J, size=A.shape)
-        if key != self._key:
-            self._symbolic = self._cholmod.symbolic(M, uplo="L")
-            self._key = key
-        self._cholmod.numeric(M, self._symbolic)
+        A = sp.csr_matrix(A)
+        A.sort_indices()
+        if self._pattern is None or not (np.array_equal(A.indptr, self._pattern[0])
+                                         and np.array_equal(A.indices, self._pattern[1])):
+            rows = np.repeat(np.arange(A.shape[0], dtype=np.int64), np.diff(A.indptr))
+            upper = A.indices >= rows
+            self._upper = np.flatnonzero(upper)
+            self._matrix = cvx.spmatrix(cvx.matrix(A.data[self._upper]),
+                                        cvx.matrix(A.indices[upper].astype(np.int64)),
+                                        cvx.matrix(rows[upper]), size=A.shape)
+            self._symbolic = self._cholmod.symbolic(self._matrix, uplo="L")
+            self._pattern = (A.indptr.copy(), A.indices.copy())
+        else:
+            self._matrix.V = cvx.matrix(A.data[self._upper])
+        self._cholmod.numeric(self._matrix, self._symbolic)
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         x = self._cvxopt.matrix(np.ascontiguousarray(b, dtype=float))
@@ -86,24 +99,15 @@ class CholmodFactorizer:
         return np.array(x).ravel()
 
 
-def limit_blas_threads(n: int = 1):
-    """Limit every loaded BLAS to n threads (also those loaded later, through the environment).
+def limit_blas_threads(n: int | None = None):
+    """Limit every thread pool of this process to n threads (default: ``convsim.threads``).
 
     cvxopt ships its own OpenBLAS beside numpy's; two spinning thread pools on a
     small machine slow every dense and sparse kernel several times over (measured:
     a 128 x 128 variable-viscosity step went from 190 ms to 29 ms on 2 cores).
-    The matrices here are too small to gain from threaded BLAS, and parallel runs
-    (bench, sweep, onset brackets) are the parallelism: each worker calls this.
-    Returns the threadpoolctl limiter (or None without threadpoolctl).
     """
-    import os
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ.setdefault(var, str(n))    # for BLAS libraries loaded later (cvxopt)
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # pragma: no cover
-        return None
-    return threadpool_limits(limits=n, user_api="blas")
+    from convsim.threads import limit_threads
+    return limit_threads(n)
 
 
 FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}

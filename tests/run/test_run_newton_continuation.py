@@ -59,3 +59,20 @@ def test_continuation_stages_and_the_flow_at_the_new_rayleigh_number():
     again = Continuation.from_config(cfg)
     again.restore(stages.restart_state())
     assert again.rayleigh == 3e3
+
+
+def test_newton_is_tried_once_the_transient_has_decayed_to_a_tenth_of_its_peak():
+    """The decay trigger (run/newton_finish.py): a transient that rises to a peak of
+    max|dT/dt| = 90 and decays; the absolute threshold (0.1 Nu = 0.5) is never met, the
+    decay test fires at the first step with a rate <= 9, and the peak survives a restart."""
+    policy = NewtonFinish(threshold=0.1, tolerance=1e-6, decay=0.1)
+    rates = [90.0 * np.exp(-((s - 200.0) / 80.0) ** 2) + 1.0 for s in range(1000)]
+    report = lambda step: SimpleNamespace(step=step, nusselt_top=5.0, tendency_max=rates[step])
+    fired = [s for s in range(1, 1000) if policy.due(report(s))]
+    first = next(s for s in range(201, 1000) if rates[s] <= 0.1 * max(rates[:s + 1]))
+    assert fired[0] == first
+    copy = NewtonFinish(0.1, 1e-6, decay=0.1)
+    copy.restore(policy.restart_state())
+    assert copy.peak == policy.peak == max(rates[1:])
+    off = NewtonFinish(0.1, 1e-6, decay=0.0)
+    assert not any(off.due(report(s)) for s in range(1, 1000))
