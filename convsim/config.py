@@ -6,7 +6,8 @@ a suggestion for a misspelt one), wrong types and out-of-range values; each
 message names the key, the value and what is allowed.  The README's config
 reference is generated from these declarations (``reference_markdown``).
 
-Only the standard library and ``convsim.errors`` are imported here.
+Only the standard library, ``convsim.errors`` and the plain-data law declarations
+(``convsim.model.laws``, whose [viscosity] keys are built here) are imported.
 """
 
 from __future__ import annotations
@@ -22,6 +23,7 @@ from typing import Any
 from convsim.errors import ConfigError
 from convsim.model.choices import (ADVECTION_SCHEMES, FACTOR_REUSE, FLOW_CONDITIONS, LIMITERS,
                                    SIDE_CONDITIONS, THERMAL_CONDITIONS, TIME_SCHEMES)
+import convsim.model.laws as _laws   # plain-data law declarations (no numpy at import)
 
 __all__ = [
     "Config", "Domain", "Physics", "Boundaries", "Viscosity", "Start", "Numerics", "Stop",
@@ -95,29 +97,29 @@ class Boundaries:
                                "dT or dT/d", default=1.0, ge=-1.0e6, le=1.0e6)
 
 
-@dataclass(frozen=True)
-class Viscosity:
-    """Viscosity law eta(T, z), nondimensional, equal to 1 at T = 0, z = 1 (the reference of Ra)."""
+def _viscosity_table():
+    """The [viscosity] table, built from the law declarations of ``convsim.model.laws``.
 
-    law: str = _key("viscosity law", default="constant",
-                    choices=("constant", "frank-kamenetskii", "arrhenius"))
-    thermal_contrast: float = _key(
-        "frank-kamenetskii: eta(T=0)/eta(T=1) = exp(b); eta = exp(-b T + c (1 - z))",
-        default=1.0, ge=1.0, le=1.0e30)
-    depth_contrast: float = _key(
-        "frank-kamenetskii: eta(z=0)/eta(z=1) = exp(c) at fixed T", default=1.0,
-        ge=1.0e-30, le=1.0e30)
-    activation_energy: float = _key(
-        "arrhenius: E in eta = exp((E + V (1 - z))/(T + T0) - E/T0)", "dT", default=0.0,
-        ge=0.0, le=1.0e4)
-    activation_volume: float = _key("arrhenius: V (depth term, see activation_energy)", "dT",
-                                    default=0.0, ge=0.0, le=1.0e4)
-    temperature_offset: float = _key(
-        "arrhenius: T0, the surface temperature on the absolute scale", "dT", default=1.0,
-        gt=0.0, le=1.0e4)
-    minimum: float = _key("lower cut-off of the viscosity", default=0.0, ge=0.0, le=1.0e30)
-    maximum: float = _key("upper cut-off of the viscosity (0: none)", default=0.0, ge=0.0,
-                          le=1.0e30)
+    ``law`` chooses one of ``laws.LAWS``; every parameter of every law and modifier is a
+    key with its declared doc, units, default and range (a law's keys say which law they
+    belong to).  A new law file adds its choice and keys here without an edit.
+    """
+    fields = [("law", "str", _key("viscosity law", default=_laws.DEFAULT_LAW,
+                                  choices=tuple(_laws.LAWS)))]
+    owner = {p.name: d for d in (*_laws.LAWS.values(), *_laws.MODIFIERS.values())
+             for p in d.parameters}
+    for key, p in _laws.PARAMETERS.items():
+        doc = p.doc if isinstance(owner[key], _laws.Modifier) else f"{owner[key].name}: {p.doc}"
+        fields.append((key, "float", _key(doc, p.units, default=float(p.default), ge=p.ge,
+                                          gt=p.gt, le=p.le)))
+    cls = dataclasses.make_dataclass("Viscosity", fields, frozen=True)
+    cls.__module__ = __name__
+    cls.__doc__ = ("Viscosity law eta(T, z), nondimensional, equal to 1 at T = 0, z = 1 "
+                   "(the reference of Ra).")
+    return cls
+
+
+Viscosity = _viscosity_table()
 
 
 @dataclass(frozen=True)
@@ -388,10 +390,8 @@ def _build_table(section: str, cls, raw) -> Any:
 
 def _check_consistency(cfg: Config) -> None:
     """Rules that involve more than one key."""
-    v = cfg.viscosity
-    if v.maximum and v.minimum and v.maximum < v.minimum:
-        raise ConfigError(f"viscosity.maximum = {v.maximum!r}: must be >= viscosity.minimum "
-                          f"= {v.minimum!r}")
+    for message in _laws.problems(cfg.viscosity.law, cfg.viscosity):
+        raise ConfigError(message)
     b = cfg.boundaries
     if b.top_heat == "flux" and b.bottom_heat == "flux":
         raise ConfigError("boundaries.top_heat = 'flux': with bottom_heat = 'flux' too the "

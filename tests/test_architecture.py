@@ -3,7 +3,8 @@
 One rule per folder of the package:
 
 - ``errors``, ``model/kernels`` and ``model/choices`` import nothing of convsim; ``config`` only
-  ``errors`` and the choice names of ``model/choices``;
+  ``errors``, the choice names of ``model/choices`` and the plain-data law declarations
+  ``model/laws`` (which import nothing else of convsim);
 - ``model/`` takes numbers, arrays and declarations: never ``config``, ``run``, ``files``,
   ``figures``, ``studies``, ``analysis`` or ``cli``;
 - ``run/`` never imports ``files``, ``figures``, ``studies`` or ``cli`` (writers come in as
@@ -54,13 +55,22 @@ def _check(room: str, forbidden: set) -> None:
             assert not bad, f"{path.relative_to(PACKAGE)} imports {sorted(bad)}"
 
 
+def _modules(path: Path) -> set:
+    """Full names of the convsim modules a file imports (``from a import b``: a)."""
+    tree = ast.parse(path.read_text())
+    names = {n.module for n in ast.walk(tree) if isinstance(n, ast.ImportFrom)}
+    names |= {a.name for n in ast.walk(tree) if isinstance(n, ast.Import) for a in n.names}
+    return {name for name in names if name.split(".")[0] == "convsim"}
+
+
 def test_foundations_import_nothing_of_convsim():
     assert _imports(PACKAGE / "errors.py")[0] == set()
     assert _imports(PACKAGE / "model" / "kernels.py")[0] == set()
     assert _imports(PACKAGE / "model" / "choices.py")[0] == set()
-    config_imports = {n.module for n in ast.walk(ast.parse((PACKAGE / "config.py").read_text()))
-                      if isinstance(n, ast.ImportFrom) and n.module.startswith("convsim")}
-    assert config_imports <= {"convsim.errors", "convsim.model.choices"}
+    assert _modules(PACKAGE / "config.py") <= {"convsim.errors", "convsim.model.choices",
+                                               "convsim.model.laws"}
+    for path in (PACKAGE / "model" / "laws").glob("*.py"):
+        assert all(m.startswith("convsim.model.laws") for m in _modules(path)), path
 
 
 def test_model_takes_numbers_not_configs():

@@ -38,6 +38,7 @@ from convsim.config import Config
 from convsim.errors import ConfigError
 from convsim.analysis.growth_rates import RateFit, critical_from_rates, fit_growth_rate
 from convsim.pool import process_pool
+from convsim.model.rheology import ViscosityLaw
 
 __all__ = ["RateFit", "RunBracket", "DEFAULT_FACTORS", "fit_growth_rate",
            "critical_from_rates", "bracket_configs", "default_grid", "onset_from_config",
@@ -226,10 +227,7 @@ def onset_from_config(config: Config, wavenumbers=None, points: int | None = Non
         top_flow=b.top_flow, bottom_flow=b.bottom_flow, top_heat=b.top_heat,
         top_value=b.top_value, bottom_heat=b.bottom_heat, bottom_value=b.bottom_value,
         internal_heating=config.physics.internal_heating, viscosity=v.law,
-        viscosity_parameters=dict(
-            thermal_contrast=v.thermal_contrast, depth_contrast=v.depth_contrast,
-            activation_energy=v.activation_energy, activation_volume=v.activation_volume,
-            temperature_offset=v.temperature_offset, minimum=v.minimum, maximum=v.maximum),
+        viscosity_parameters=ViscosityLaw.from_table(v).parameters,
         wavenumbers=wavenumbers, points=points)
 
 

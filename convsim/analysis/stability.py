@@ -53,7 +53,7 @@ from scipy.optimize import brentq
 from convsim.model.choices import SIDE_CONDITIONS
 from convsim.analysis._stability_operator import (RA_INFINITE, Layer, StabilityProblem, chebyshev,
                                   conductive_gradient, conductive_profile, default_points)
-from convsim.model import rheology
+from convsim.model import laws, rheology
 from convsim.errors import ConfigError
 
 __all__ = [
@@ -75,61 +75,47 @@ log = logging.getLogger(__name__)
 VISCOSITY_LAWS = rheology.LAWS
 
 
-def viscosity_law(name: str, *, thermal_contrast: float = 1.0, depth_contrast: float = 1.0,
-                  activation_energy: float = 0.0, activation_volume: float = 0.0,
-                  temperature_offset: float = 1.0, minimum: float = 0.0,
-                  maximum: float = 0.0) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
-    """The nondimensional viscosity eta(T, z) of a named law of ``convsim.model.rheology``.
+def viscosity_law(name: str, **parameters) -> Callable[[np.ndarray, np.ndarray], np.ndarray]:
+    """The nondimensional viscosity eta(T, z) of a declared law, as the onset solver uses it.
 
     Parameters
     ----------
     name : str
         One of ``VISCOSITY_LAWS``: 'constant' (eta = 1); 'frank-kamenetskii'
         (eta = exp(-b T + c (1 - z)), b = ln thermal_contrast, c = ln depth_contrast);
-        'arrhenius' (eta = exp((E + V (1 - z))/(T + T_off) - E/T_off)).
-    thermal_contrast, depth_contrast : float
-        Frank-Kamenetskii contrasts eta(T=0)/eta(T=1) and eta(z=0)/eta(z=1), both > 0.
-    activation_energy, activation_volume, temperature_offset : float
-        Arrhenius E, V and T_off, in the temperature scale; T_off > 0.
-    minimum, maximum : float
-        Cut-offs of eta (0: none).
+        'arrhenius' (eta = exp((E + V (1 - z))/(T + T_off) - E/T_off)); see
+        ``convsim.model.laws``.
+    **parameters : float
+        Any declared parameter (``convsim.model.laws.PARAMETERS``: thermal_contrast,
+        depth_contrast, activation_energy, activation_volume, temperature_offset, minimum,
+        maximum, ...); each is checked against its declared range.
 
     Returns
     -------
     callable
-        ``eta(T, z)`` on arrays, dimensionless: ``rheology.viscosity`` of the law.  For
-        'arrhenius' it raises ConfigError where T + T_off <= 0 (the simulator's law
-        guards that case for transients; for a conductive profile it is bad input).
+        ``eta(T, z)`` on arrays, dimensionless: the law and the modifiers that act on a
+        state without flow (``rheology.base_state_viscosity``; a yield stress acts through
+        the strain rate, zero in the conductive state).  Where a declaration says the law is
+        undefined on the profile (Arrhenius with T + T_off <= 0) it raises ConfigError.
     """
     if name not in VISCOSITY_LAWS:
         raise ConfigError(f"viscosity law = {name!r}: unknown; allowed: "
                           + ", ".join(repr(n) for n in VISCOSITY_LAWS))
-    for key, value in (("thermal_contrast", thermal_contrast), ("depth_contrast", depth_contrast),
-                       ("temperature_offset", temperature_offset)):
-        if not (math.isfinite(value) and value > 0.0):
-            raise ConfigError(f"{key} = {value!r}: expected a finite number > 0")
-    for key, value in (("activation_energy", activation_energy),
-                       ("activation_volume", activation_volume),
-                       ("minimum", minimum), ("maximum", maximum)):
-        if not (math.isfinite(value) and value >= 0.0):
-            raise ConfigError(f"{key} = {value!r}: expected a finite number >= 0")
-    law = rheology.ViscosityLaw(law=name, thermal_contrast=thermal_contrast,
-                                depth_contrast=depth_contrast,
-                                activation_energy=activation_energy,
-                                activation_volume=activation_volume,
-                                temperature_offset=temperature_offset, minimum=minimum,
-                                maximum=maximum)
-    if name != "arrhenius":
-        return law
+    for key, value in parameters.items():
+        declared = laws.PARAMETERS.get(key)
+        if declared is None:
+            raise ConfigError(f"{key}: unknown viscosity parameter; allowed: "
+                              + ", ".join(laws.PARAMETERS))
+        if (message := declared.problem(value)) is not None:
+            raise ConfigError(message)
+    law = rheology.ViscosityLaw(name, **parameters)
+    checks = [d.undefined for d in laws.declarations(name) if d.undefined is not None]
 
     def eta(T, z):
-        absolute = np.asarray(T, dtype=float) + temperature_offset
-        if np.any(absolute <= 0.0):
-            raise ConfigError(
-                f"temperature_offset = {temperature_offset!r}: T + temperature_offset must "
-                f"stay > 0 in the conductive profile (its minimum is "
-                f"{float(np.min(absolute)) - temperature_offset:g}); allowed: a larger offset")
-        return rheology.viscosity(law, T, z)
+        for check in checks:
+            if (message := check(np.ravel(T), np.ravel(z), law)) is not None:
+                raise ConfigError(message)
+        return rheology.base_state_viscosity(law, T, z)
     return eta
 
 
@@ -359,7 +345,9 @@ def analyse_onset(rayleigh: float | None = None, *, aspect: float = 1.0,
     if isinstance(viscosity, str):
         params = dict(viscosity_parameters or {})
         eta = viscosity_law(viscosity, **params)
-        cuts = {key: params.pop(key, 0.0) for key in ("minimum", "maximum")}
+        # a modifier whose onset use is 'kinks' (the cut-offs) splits the collocation
+        cuts = {p.name: params.pop(p.name, p.default)
+                for m in laws.MODIFIERS.values() if m.onset == "kinks" for p in m.parameters}
         if any(cuts.values()):
             breaks = cutoff_breaks(viscosity_law(viscosity, **params), Layer(**thermal), **cuts)
     elif callable(viscosity):

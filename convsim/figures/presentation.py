@@ -22,6 +22,7 @@ import numpy as np
 
 from convsim.errors import ConfigError
 from convsim.files.runfile import RunFile
+from convsim.model.laws import describe as describe_law
 
 __all__ = ["Presentation", "run_config", "presentation_for", "select_snapshot",
            "viscosity_varies", "parameter_lines", "VARIES"]
@@ -213,16 +214,7 @@ def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple
     ra_series = run.series.get("rayleigh", ())
     ra = float(ra_series[-1]) if len(ra_series) else cfg.physics.rayleigh
     b, v = cfg.boundaries, cfg.viscosity
-    law = v.law
-    if law == "frank-kamenetskii":
-        law += f", contrast exp(b) = {v.thermal_contrast:g}"
-        if v.depth_contrast != 1.0:
-            law += f", depth exp(c) = {v.depth_contrast:g}"
-    elif law == "arrhenius":
-        law += (f", E = {v.activation_energy:g}, V = {v.activation_volume:g}, "
-                f"T0 = {v.temperature_offset:g}")
-    if v.minimum or v.maximum:
-        law += f", cut-offs [{v.minimum:g}, {v.maximum or math.inf:g}]"
+    law = describe_law(v.law, v)
 
     def heat(kind, value):
         return f"T = {value:g}" if kind == "temperature" else f"flux {value:g}"

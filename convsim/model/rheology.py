@@ -1,16 +1,15 @@
-"""Viscosity laws eta(T, z) as pure functions, and a registry by name.
+"""The viscosity of a declared law, evaluated on arrays.
 
-All laws are nondimensional and equal 1 at the reference state T = 0, z = 1 (the
-cold top), which is the viscosity the Rayleigh number is defined with.
+Each law and modifier is declared once in ``convsim.model.laws`` (one file each):
+its function, parameters (doc, units, default, range), whether it is uniform, how
+the onset solver uses it and how it is shown.  This module holds a law's parameter
+values (``ViscosityLaw``) and evaluates it:
 
-- ``constant``:          eta = 1
-- ``frank-kamenetskii``: eta = exp(-b T + c (1 - z)),  b = ln(thermal_contrast),
-                         c = ln(depth_contrast)  (the linearised Arrhenius law)
-- ``arrhenius``:         eta = exp((E + V (1 - z)) / (T + T0) - E / T0)
+    eta = modifier_k( ... modifier_1( law(inputs) ) ... )
 
-Cut-offs: eta is clipped to [minimum, maximum] where those are set (> 0).
-To add a law, write one function ``law(T, z, params) -> eta`` here and add it to
-``LAWS``; the config's ``viscosity.law`` choices list must name it too.
+where the modifiers (cut-offs; later yielding) apply in their declared order when
+their parameters switch them on.  All viscosities are nondimensional, 1 at the
+reference state T = 0, z = 1 (the cold top), the viscosity of the Rayleigh number.
 """
 
 from __future__ import annotations
@@ -19,64 +18,117 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["ViscosityLaw", "LAWS", "viscosity"]
+from convsim.model import laws as _laws
+from convsim.model.laws import LawInputs
+
+__all__ = ["ViscosityLaw", "LAWS", "LawInputs", "viscosity", "base_state_viscosity"]
+
+#: The laws chosen by name (declarations of ``convsim.model.laws``).
+LAWS = _laws.LAWS
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class ViscosityLaw:
-    """Parameters of a viscosity law (plain numbers, as in the config's [viscosity] table)."""
+    """A law by name and the values of every declared parameter (plain numbers).
 
-    law: str = "constant"
-    thermal_contrast: float = 1.0
-    depth_contrast: float = 1.0
-    activation_energy: float = 0.0
-    activation_volume: float = 0.0
-    temperature_offset: float = 1.0
-    minimum: float = 0.0
-    maximum: float = 0.0
+    ``ViscosityLaw("frank-kamenetskii", thermal_contrast=1e3)``; parameters not given
+    take their declared defaults; each parameter is also an attribute
+    (``law.thermal_contrast``).  Unknown names and keys raise ``ValueError``.
+    """
 
-    def __post_init__(self):
-        if self.law not in LAWS:
-            raise ValueError(f"viscosity law {self.law!r}: expected one of {tuple(LAWS)}")
+    name: str
+    values: tuple          # ((key, value), ...) in the order of laws.PARAMETERS
+
+    def __init__(self, name: str = _laws.DEFAULT_LAW, **parameters):
+        if name not in LAWS:
+            raise ValueError(f"viscosity law {name!r}: expected one of {tuple(LAWS)}")
+        unknown = set(parameters) - set(_laws.PARAMETERS)
+        if unknown:
+            raise ValueError(f"viscosity parameters {sorted(unknown)}: unknown; allowed: "
+                             f"{', '.join(_laws.PARAMETERS)}")
+        values = tuple((key, float(parameters.get(key, p.default)))
+                       for key, p in _laws.PARAMETERS.items())
+        object.__setattr__(self, "name", name)
+        object.__setattr__(self, "values", values)
+
+    def __getattr__(self, key):
+        if key.startswith("__") or key in ("name", "values"):
+            raise AttributeError(key)
+        for name, value in self.values:
+            if name == key:
+                return value
+        raise AttributeError(f"viscosity law has no parameter {key!r}")
+
+    @classmethod
+    def from_table(cls, table) -> "ViscosityLaw":
+        """The law of any object with ``law`` and the declared parameters as attributes
+        (the config's [viscosity] table): every declared key is read, none is dropped."""
+        return cls(table.law, **{key: getattr(table, key) for key in _laws.PARAMETERS})
+
+    @property
+    def parameters(self) -> dict:
+        return dict(self.values)
 
     @property
     def is_constant(self) -> bool:
-        """True when eta = 1 everywhere (after the cut-offs)."""
-        if self.law == "constant":
-            return True
-        if self.law == "frank-kamenetskii":
-            return self.thermal_contrast == 1.0 and self.depth_contrast == 1.0
-        return self.activation_energy == 0.0 and self.activation_volume == 0.0
+        """True when eta = 1 everywhere (after the modifiers)."""
+        return _laws.is_uniform(self.name, self)
 
-    def __call__(self, T: np.ndarray, z: np.ndarray) -> np.ndarray:
-        return viscosity(self, T, z)
+    @property
+    def needs_strain_rate(self) -> bool:
+        """True when an active part of the law reads the strain rate (the Stokes problem is
+        then nonlinear)."""
+        return any("strain_rate" in d.needs for d in self._active())
 
+    def _active(self) -> list:
+        return [LAWS[self.name]] + [m for m in _laws.MODIFIERS.values() if m.active(self)]
 
-def _constant(T, z, p):
-    return np.ones(np.broadcast(T, z).shape)
-
-
-def _frank_kamenetskii(T, z, p):
-    b = np.log(p.thermal_contrast)
-    c = np.log(p.depth_contrast)
-    return np.exp(-b * T + c * (1.0 - z))
+    def __call__(self, T, z, strain_rate=None, composition=None) -> np.ndarray:
+        return viscosity(self, T, z, strain_rate, composition)
 
 
-def _arrhenius(T, z, p):
-    t0 = p.temperature_offset
-    # guard against T + T0 <= 0 (unphysical, can appear transiently in a diverging run)
-    absolute = np.maximum(T + t0, 1e-3 * t0)
-    return np.exp((p.activation_energy + p.activation_volume * (1.0 - z)) / absolute
-                  - p.activation_energy / t0)
+def viscosity(law: ViscosityLaw, T, z, strain_rate=None, composition=None, *,
+              modifiers: bool = True) -> np.ndarray:
+    """eta(T, z[, strain rate, composition]) of the law, after its active modifiers.
+
+    Parameters
+    ----------
+    law : ViscosityLaw
+    T, z : array_like
+        Temperature (dT units) and height (layer depths); they broadcast.
+    strain_rate : array_like, optional
+        Second invariant of the strain-rate tensor, for laws that read it.
+    composition : array_like, optional
+        Reserved for a compositional field.
+    modifiers : bool
+        False gives the chosen law alone (no cut-offs, no yielding).
+
+    Returns
+    -------
+    ndarray
+        Nondimensional viscosity, the broadcast shape of the inputs.
+    """
+    inputs = LawInputs(np.asarray(T, float), np.asarray(z, float),
+                       None if strain_rate is None else np.asarray(strain_rate, float),
+                       composition)
+    eta = LAWS[law.name].function(inputs, law)
+    if modifiers:
+        for modifier in _laws.MODIFIERS.values():
+            if modifier.active(law):
+                eta = modifier.function(eta, inputs, law)
+    return eta
 
 
-LAWS = {"constant": _constant, "frank-kamenetskii": _frank_kamenetskii, "arrhenius": _arrhenius}
+def base_state_viscosity(law: ViscosityLaw, T, z) -> np.ndarray:
+    """eta(T, z) of a state without flow, as the onset (linear stability) solver uses it.
 
-
-def viscosity(law: ViscosityLaw, T: np.ndarray, z: np.ndarray) -> np.ndarray:
-    """eta(T, z) for the given law, clipped to the cut-offs; T and z broadcast."""
-    eta = LAWS[law.law](np.asarray(T, float), np.asarray(z, float), law)
-    if law.minimum > 0.0 or law.maximum > 0.0:
-        eta = np.clip(eta, law.minimum if law.minimum > 0 else None,
-                      law.maximum if law.maximum > 0 else None)
+    The chosen law and every active modifier except those declared ``onset =
+    'inactive'`` (they act through the strain rate, which is zero in the conductive
+    base state and multiplies the viscosity perturbation at linear order).
+    """
+    inputs = LawInputs(np.asarray(T, float), np.asarray(z, float))
+    eta = LAWS[law.name].function(inputs, law)
+    for modifier in _laws.MODIFIERS.values():
+        if modifier.active(law) and modifier.onset != "inactive":
+            eta = modifier.function(eta, inputs, law)
     return eta

@@ -7,8 +7,6 @@ the viscosity law and the ``Model`` (with its Stokes back end and stepper).
 
 from __future__ import annotations
 
-from dataclasses import fields as dc_fields
-
 from convsim.config import Config
 from convsim.model.energy import ThermalBoundaries
 from convsim.model.grid import Grid
@@ -33,8 +31,7 @@ def build_thermal(config: Config) -> ThermalBoundaries:
 
 def build_law(config: Config) -> ViscosityLaw:
     """The viscosity law of [viscosity]."""
-    v = config.viscosity
-    return ViscosityLaw(**{f.name: getattr(v, f.name) for f in dc_fields(ViscosityLaw)})
+    return ViscosityLaw.from_table(config.viscosity)
 
 
 def build_model(config: Config, grid: Grid | None = None) -> Model:

@@ -53,8 +53,7 @@ AGREEMENT = 1.0e-3
 
 def viscosity_law(config: Config) -> ViscosityLaw:
     """The model's ``ViscosityLaw`` from the config's [viscosity] table."""
-    v = config.viscosity
-    return ViscosityLaw(**{name: getattr(v, name) for name in ViscosityLaw.__dataclass_fields__})
+    return ViscosityLaw.from_table(config.viscosity)
 
 
 def reference_states(config: Config) -> dict:

@@ -9,7 +9,6 @@ velocity of the interior band and the viscosity contrast of the case.
 
 from __future__ import annotations
 
-import dataclasses
 import hashlib
 import math
 import logging
@@ -134,8 +133,7 @@ def _result_columns(cfg: Config, result) -> dict:
         t_low, t_high = sorted((b.top_value, b.bottom_value))
     else:
         t_low, t_high = float(result.temperature.min()), float(result.temperature.max())
-    law = ViscosityLaw(**{f.name: getattr(cfg.viscosity, f.name)
-                          for f in dataclasses.fields(ViscosityLaw)})
+    law = ViscosityLaw.from_table(cfg.viscosity)
     eta = np.asarray(result.viscosity)
     return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
                 nusselt_top=float(result.nusselt_top), nusselt_bottom=float(result.nusselt_bottom),
