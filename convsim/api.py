@@ -6,6 +6,7 @@ the run-file writer together.
 
 from __future__ import annotations
 
+import logging
 from pathlib import Path
 
 import numpy as np
@@ -16,12 +17,14 @@ from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.run.layer import resolve
-from convsim.files.runfile import RunFileObserver, RunFileWriter, read_run
-from convsim.files.xdmf import write_xdmf
+from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable, read_run
+from convsim.files.xdmf import sidecar_path, write_xdmf
 from convsim.threads import limit_threads
 from convsim.views import open_run
 
-__all__ = ["load_config", "run", "open_run", "start_temperature"]
+__all__ = ["load_config", "run", "open_run", "start_temperature", "check_restart_config"]
+
+log = logging.getLogger(__name__)
 
 
 def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
@@ -35,6 +38,54 @@ def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
     return interpolate_cells(source.x, source.z, source.fields["temperature"], grid)
 
 
+def check_restart_config(path: str | Path, config: Config) -> None:
+    """A restart may change only [stop] and [output]: refuse a file whose stored config is
+    missing or unreadable, or differs elsewhere (it would not continue the same run)."""
+    import tomllib
+    from convsim.config import to_dict
+    text = read_run(path).config_text
+    if not text.strip():
+        raise ConfigError(f"--restart {str(path)!r}: the file holds no stored config, so the "
+                          f"restart cannot be checked against the run; start a new run instead")
+    try:
+        saved = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"--restart {str(path)!r}: the stored config is not valid TOML "
+                          f"({exc}); the file cannot be continued") from None
+    new = to_dict(config)
+    for table in saved:
+        if table in ("stop", "output", "title"):
+            continue
+        if not isinstance(saved[table], dict) or saved[table] != new.get(table):
+            keys = ([k for k in saved[table] if saved[table][k] != new.get(table, {}).get(k)]
+                    if isinstance(saved[table], dict) else [table])
+            raise ConfigError(f"--restart {str(path)!r}: [{table}] differs from the run's own "
+                              f"config ({', '.join(keys)}); only [stop] and [output] may change")
+
+
+def _check_resources(config: Config, grid: Grid | None, output: Path | None) -> None:
+    """Refuse a grid the machine's memory cannot hold; warn when the disk may fill up."""
+    from convsim.files.commit import format_bytes, free_bytes
+    from convsim.files.runfile import RECORD_BYTES, snapshot_bytes
+    from convsim.run.resources import check_memory, run_file_estimate, snapshot_count
+    nx, nz = (config.domain.nx, config.domain.nz) if grid is None else (grid.nx, grid.nz)
+    warning = check_memory(nx, nz, config.viscosity.law == "constant")
+    if warning:
+        log.warning("%s", warning)
+    if output is None:
+        return
+    size = run_file_estimate(config, snapshot_bytes(nx, nz), RECORD_BYTES)
+    try:
+        free = free_bytes(output.parent)
+    except OSError:
+        return
+    if 2 * size > free:
+        log.warning("the run file may grow to %s (up to %d snapshots of %s) and each snapshot "
+                    "briefly needs its size again; the disk has %s free", format_bytes(size),
+                    snapshot_count(config), format_bytes(snapshot_bytes(nx, nz)),
+                    format_bytes(free))
+
+
 def run(config: Config | str | Path, output: str | Path | None = None, *,
         overwrite: bool = False, restart: str | Path | None = None, observers=(),
         grid: Grid | None = None, progress: bool = False, threads: int | None = None
@@ -46,9 +97,9 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     config : Config or path
         A config, or the path of a TOML config file (read with ``load_config``).
     output : path, optional
-        Run file to write (HDF5).  None keeps everything in memory.
+        Run file to write (HDF5), with its XDMF sidecar.  None keeps everything in memory.
     overwrite : bool
-        Replace an existing output file.
+        Replace an existing output file and sidecar.
     restart : path, optional
         Continue the run recorded in this file from its last snapshot, appending to it.
     observers : extra ``simulation.Observer`` objects (a progress bar, say).
@@ -81,14 +132,19 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         observers.append(ProgressDisplay(config, always=True))
     resume = None
     if restart is not None:
+        check_restart_config(restart, config)
         saved = read_run(restart, restart=True)
         if not saved.restart:
             raise ConfigError(f"--restart {str(restart)!r}: the file holds no restart state")
         resume = ResumePoint(saved.restart)
-        observers.insert(0, RunFileObserver(RunFileWriter(restart, append=True)))
+        writer = RunFileWriter(restart, append=True)
         output = restart
     elif output is not None:
-        observers.insert(0, RunFileObserver(RunFileWriter(output, overwrite=overwrite)))
+        writer = RunFileWriter(output, overwrite=overwrite)
+        check_writable(sidecar_path(output), overwrite)
+    _check_resources(config, grid, None if output is None else Path(output))
+    if output is not None:
+        observers.insert(0, RunFileObserver(writer))
     model = build_model(config, grid)
     sim = Simulation(config, model, start_temperature(config, model.grid), observers)
     result = sim.run(resume)
@@ -98,5 +154,5 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         result.scales = scales
         result.physical = physical_quantities(result.summary(), scales, config.boundaries)
     if output is not None:
-        write_xdmf(output, overwrite=True)      # the sidecar belongs to its run file
+        write_xdmf(output, overwrite=True)      # the sidecar belongs to its run file (checked)
     return result

@@ -22,7 +22,8 @@ from typing import Any
 
 from convsim.errors import ConfigError
 from convsim.model.choices import (ADVECTION_SCHEMES, FACTOR_REUSE, FLOW_CONDITIONS, LIMITERS,
-                                   SIDE_CONDITIONS, THERMAL_CONDITIONS, TIME_SCHEMES)
+                                   NONLINEAR_METHODS, SIDE_CONDITIONS, THERMAL_CONDITIONS,
+                                   TIME_SCHEMES)
 import convsim.model.laws as _laws   # plain-data law declarations (no numpy at import)
 
 __all__ = [
@@ -110,12 +111,16 @@ def _viscosity_table():
              for p in d.parameters}
     for key, p in _laws.PARAMETERS.items():
         doc = p.doc if isinstance(owner[key], _laws.Modifier) else f"{owner[key].name}: {p.doc}"
-        fields.append((key, "float", _key(doc, p.units, default=float(p.default), ge=p.ge,
-                                          gt=p.gt, le=p.le)))
+        if p.choices:
+            fields.append((key, "str", _key(doc, p.units, default=p.default, choices=p.choices)))
+        else:
+            fields.append((key, "float", _key(doc, p.units, default=float(p.default), ge=p.ge,
+                                              gt=p.gt, le=p.le)))
     cls = dataclasses.make_dataclass("Viscosity", fields, frozen=True)
     cls.__module__ = __name__
     cls.__doc__ = ("Viscosity law eta(T, z), nondimensional, equal to 1 at T = 0, z = 1 "
-                   "(the reference of Ra).")
+                   "(the reference of Ra); optionally yielding (strain-rate dependent) and "
+                   "cut off.")
     return cls
 
 
@@ -169,6 +174,15 @@ class Numerics:
         "variable viscosity: refactor every step (always) or reuse the factor as a CG "
         "preconditioner while it pays (adaptive)", default="adaptive",
         choices=FACTOR_REUSE)
+    nonlinear_solver: str = _key(
+        "strain-rate-dependent (yielding) viscosity: iteration of the nonlinear Stokes problem, "
+        "Picard or Newton (Picard steps until the residual is below 1e-2, then Newton with a "
+        "line search)", default="newton", choices=NONLINEAR_METHODS)
+    nonlinear_tolerance: float = _key(
+        "the nonlinear Stokes iteration stops at ||A(eta(psi)) psi - b|| <= this x ||b||",
+        default=1.0e-8, ge=1.0e-9, le=1.0e-2)
+    nonlinear_max_iterations: int = _key("nonlinear Stokes iterations per solve at most",
+                                         default=50, ge=1, le=10000)
 
 
 @dataclass(frozen=True)
@@ -428,6 +442,8 @@ def parse_config(data: dict, *, source: str = "config") -> Config:
 def read_toml(path: str | Path, what: str = "config file") -> dict:
     """Parse a TOML file; a missing, non-UTF-8 or malformed file raises ``ConfigError``."""
     path = Path(path)
+    if path.is_dir():
+        raise ConfigError(f"{what} {str(path)!r}: is a directory; expected a TOML file")
     if not path.is_file():
         raise ConfigError(f"{what} {str(path)!r}: not found")
     try:
@@ -436,6 +452,8 @@ def read_toml(path: str | Path, what: str = "config file") -> dict:
         raise ConfigError(f"{what} {str(path)!r}: not valid TOML ({exc})") from None
     except UnicodeDecodeError:
         raise ConfigError(f"{what} {str(path)!r}: not UTF-8 text") from None
+    except OSError as exc:
+        raise ConfigError(f"{what} {str(path)!r}: cannot be read ({exc.strerror})") from None
 
 
 def load_config(path: str | Path, overrides: list[str] | tuple[str, ...] = ()) -> Config:

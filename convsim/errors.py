@@ -6,7 +6,8 @@ during a run is reported as a status in the run result instead (see
 line on stderr and exit status 2.
 """
 
-__all__ = ["ConvsimError", "ConfigError", "SolverError", "SnapshotError", "OutputExistsError"]
+__all__ = ["ConvsimError", "ConfigError", "SolverError", "SnapshotError", "DiskFullError",
+           "OutputExistsError"]
 
 
 class ConvsimError(Exception):
@@ -23,6 +24,12 @@ class SolverError(ConvsimError, RuntimeError):
 
 class SnapshotError(ConvsimError, OSError):
     """A run file cannot be read or written."""
+
+
+class DiskFullError(SnapshotError):
+    """The disk (or the quota) is full: a run file keeps every snapshot committed before.
+
+    The command line exits with status 4 (``EXIT_DISK_FULL``) on it."""
 
 
 class OutputExistsError(ConvsimError, FileExistsError):

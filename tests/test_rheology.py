@@ -93,7 +93,10 @@ def test_config_table_is_the_registry():
 def test_no_config_key_is_dropped_on_the_way_to_the_model():
     from convsim.run.build import build_model
     for key, p in laws.PARAMETERS.items():
-        value = (p.gt or p.ge or 0.0) + 0.5 if p.le is None or p.le > 1.0 else p.le / 2
+        if p.choices:
+            value = next(c for c in p.choices if c != p.default)
+        else:
+            value = (p.gt or p.ge or 0.0) + 0.5 if p.le is None or p.le > 1.0 else p.le / 2
         cfg = Config().replace(viscosity__law="frank-kamenetskii", **{f"viscosity__{key}": value})
         law = ViscosityLaw.from_table(cfg.viscosity)
         assert getattr(law, key) == value != p.default, key

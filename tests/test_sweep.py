@@ -166,17 +166,24 @@ def test_local_pool_and_dask_cluster_give_identical_results(tmp_path):
 
 def test_rerun_skips_finished_cases_and_a_failing_case_is_recorded(tmp_path):
     text = SMALL.replace("values = [1e4, 3e4, 1e5]", "values = [1e4, 3e4]") + \
-        '[[axis]]\nkey = "domain.nz"\nvalues = [12, 2]\n'     # nz = 2 is below the minimum 4
+        '[[axis]]\nkey = "domain.nz"\nvalues = [12, 8]\n'      # nz = 8: the runner fails
     text = text.replace("domain.nz = 12\n", "")
     spec = load_sweep(write(tmp_path, text))
     events = []
-    first = run_sweep(spec, tmp_path / "out", backend="inline", progress=events.append)
+
+    def runner(task):
+        if dict(task.params)["domain.nz"] == 8:
+            raise ConfigError("domain.nz = 2: out of range (injected)")
+        return run_case(task)
+
+    first = run_sweep(spec, tmp_path / "out", backend="inline", progress=events.append,
+                      runner=runner)
     assert (first.executed, first.skipped, first.failed) == (4, 0, 2)
     by_nz = {}
     for r in first.records:
         by_nz.setdefault(r["domain.nz"], []).append(r)
     assert all(r["status"] == "step-limit" for r in by_nz[12])
-    for r in by_nz[2]:
+    for r in by_nz[8]:
         assert r["status"] == "failed"
         assert "domain.nz = 2" in r["error"] and "ConfigError" in r["error"]
     assert sum(not e.skipped for e in events) == 4
@@ -184,10 +191,11 @@ def test_rerun_skips_finished_cases_and_a_failing_case_is_recorded(tmp_path):
               for r in by_nz[12]}
     # rerun: the two good cases are skipped, the two failed ones are tried again
     events.clear()
-    again = run_sweep(spec, tmp_path / "out", backend="inline", progress=events.append)
+    again = run_sweep(spec, tmp_path / "out", backend="inline", progress=events.append,
+                      runner=runner)
     assert (again.executed, again.skipped, again.failed) == (2, 2, 2)
     assert sorted(e.case_id for e in events if not e.skipped) == sorted(
-        r["case_id"] for r in by_nz[2])
+        r["case_id"] for r in by_nz[8])
     for cid, t in mtimes.items():
         assert os.stat(tmp_path / "out" / "cases" / f"{cid}.h5").st_mtime_ns == t
     good = {r["case_id"]: r["nusselt_top"] for r in by_nz[12]}
@@ -196,7 +204,7 @@ def test_rerun_skips_finished_cases_and_a_failing_case_is_recorded(tmp_path):
     assert list(table["status"]).count("failed") == 2
     # a lost record (crash before it was written) makes that case run again
     os.remove(tmp_path / "out" / "cases" / f"{by_nz[12][0]['case_id']}.json")
-    third = run_sweep(spec, tmp_path / "out", backend="inline")
+    third = run_sweep(spec, tmp_path / "out", backend="inline", runner=runner)
     assert third.executed == 3
 
 

@@ -11,11 +11,15 @@ import os
 import sys
 
 from convsim import __version__
-from convsim.errors import ConvsimError
+from convsim.errors import ConvsimError, DiskFullError
 from convsim.cli.common import COMMANDS
 # the command groups register themselves, in the order `convsim --help` lists them
 from convsim.cli import run, rayleigh, sweep, onset, files, bench  # noqa: F401,E402
 from convsim.cli import scenario, compare  # noqa: F401,E402
+
+
+#: Exit status on a full disk (or quota); 2 is bad input, ``run.EXIT_FOR_STATUS`` the rest.
+EXIT_DISK_FULL = 4
 
 
 class _Parser(argparse.ArgumentParser):
@@ -43,6 +47,9 @@ def main(argv=None) -> int:
                         format="%(levelname)s %(name)s: %(message)s")
     try:
         return int(args.handler(args) or 0)
+    except DiskFullError as exc:     # the run file keeps every snapshot completed before
+        print(f"convsim: error: {exc}", file=sys.stderr)
+        return EXIT_DISK_FULL
     except ConvsimError as exc:
         print(f"convsim: error: {exc}", file=sys.stderr)
         return 2

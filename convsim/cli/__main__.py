@@ -3,4 +3,8 @@ import sys
 
 from convsim.cli import main
 
-sys.exit(main())
+try:
+    sys.exit(main())
+except KeyboardInterrupt:       # a second Ctrl-C outside the command's own handler
+    sys.stderr.write("convsim: interrupted\n")
+    sys.exit(130)

@@ -154,6 +154,8 @@ def _run_onset(args) -> int:
         existing = [str(t) for t in targets if t.exists()]
         if existing and not args.overwrite:
             raise OutputExistsError(f"{existing[0]}: exists; pass --overwrite to replace it")
+        from convsim.files.runfile import check_output_folder
+        check_output_folder(out)
     result = _onset_from_config(cfg, wavenumbers, args.points)
     payload = result.to_dict()
     stated = _onset_stated(cfg, result)

@@ -170,22 +170,19 @@ def _restart_config(path, overrides, grid):
     from convsim.files.runfile import read_run
     if grid:
         raise ConfigError(f"--grid {grid!r}: a restart continues on the run's own grid")
-    data = tomllib.loads(read_run(path).config_text)
+    text = read_run(path).config_text
+    if not text.strip():
+        raise ConfigError(f"--restart {str(path)!r}: the file holds no stored config; give the "
+                          f"run's config file too, or start a new run")
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"--restart {str(path)!r}: the stored config is not valid TOML "
+                          f"({exc}); the file cannot be continued") from None
     return parse_config(apply_overrides(data, overrides), source=f"{path} (its config)")
 
 
 def _check_restart_config(path, cfg):
     """A restart may change only [stop] and [output]: anything else would not continue the run."""
-    import tomllib
-    from convsim.config import to_dict
-    from convsim.errors import ConfigError
-    from convsim.files.runfile import read_run
-    saved = tomllib.loads(read_run(path).config_text)
-    new = to_dict(cfg)
-    for table in saved:
-        if table in ("stop", "output", "title"):
-            continue
-        if saved[table] != new.get(table):
-            keys = [k for k in saved[table] if saved[table][k] != new.get(table, {}).get(k)]
-            raise ConfigError(f"--restart {path!r}: [{table}] differs from the run's own config "
-                              f"({', '.join(keys)}); only [stop] and [output] may change")
+    from convsim.api import check_restart_config
+    check_restart_config(path, cfg)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import signal
 import sys
 
 from convsim.cli.common import command, emit_json
@@ -23,6 +24,10 @@ def _add_sweep(p):
     p.set_defaults(handler=_run_sweep)
 
 
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
+
+
 def _run_sweep(args) -> int:
     from pathlib import Path
     from tqdm import tqdm
@@ -41,10 +46,12 @@ def _run_sweep(args) -> int:
         bar.set_postfix_str(f"{event.case_id}: {'done before' if event.skipped else event.status}",
                             refresh=False)
 
+    previous = signal.signal(signal.SIGTERM, _terminate)   # SIGTERM ends a sweep like Ctrl-C
     try:
         outcome = run_sweep(spec, out, jobs=args.jobs, scheduler=args.scheduler,
                             progress=progress, overwrite=args.overwrite)
     finally:
+        signal.signal(signal.SIGTERM, previous)
         bar.close()
     summary = outcome.summary()
     if args.json:
@@ -120,7 +127,9 @@ def _run_fit(args) -> int:
     from convsim.analysis.fitting import RegimeThresholds, fit_report
     from convsim.files.jsonio import write_json
     from convsim.studies.sweep_table import read_table
+    from convsim.files.runfile import check_output_folder
     table = read_table(args.table)
+    check_output_folder(Path(args.out) if args.out else Path(args.table).parent / "fit")
     ys = [y.strip() for y in args.y.split(",") if y.strip()]
     statuses = None if args.status.strip() == "all" else tuple(
         s.strip() for s in args.status.split(",") if s.strip())

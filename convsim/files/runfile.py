@@ -30,9 +30,12 @@ Layout (root group):
 - attributes: ``Conventions``, ``title``, ``config`` (the full TOML), provenance
   (``convsim_version``, ``created``, ``wall_seconds``, ``status``).
 
-Crash safety: the file is opened, appended to, flushed and closed at each
-snapshot, so a run killed between snapshots leaves a complete, readable file
-holding everything up to the last one.
+Crash safety: the committed file is never changed in place.  Each snapshot
+(with its series rows, the restart state and the status) is one commit: copy
+the file, append to the copy, rename the copy over the file
+(``convsim.files.commit``).  A reader sees the file before a snapshot or after
+it, never a part of one; a run killed at any moment leaves its last committed
+snapshot; a full disk stops the run with every earlier snapshot kept.
 """
 
 from __future__ import annotations
@@ -40,17 +43,18 @@ from __future__ import annotations
 import datetime as _dt
 import math
 import os
-import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import h5py
 import numpy as np
 
-from convsim.errors import OutputExistsError, SnapshotError
+from convsim.errors import DiskFullError, OutputExistsError, SnapshotError
+from convsim.files.commit import commit, fault_point, is_disk_full
 
 __all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
-           "check_writable", "write_statistics", "read_statistics"]
+           "check_writable", "check_output_folder", "snapshot_bytes", "RECORD_BYTES",
+           "write_statistics", "read_statistics"]
 
 # name: (dimensions after time, units, long_name)
 FIELDS = {
@@ -121,28 +125,28 @@ RESTART_KEYS = ("temperature", "psi", "previous_temperature", "previous_tendency
                 "factor_weights")
 
 
+def snapshot_bytes(nx: int, nz: int) -> int:
+    """Bytes one snapshot adds to a run file (float64 fields, uncompressed)."""
+    sizes = {"z": nz, "x": nx, "z_node": nz + 1, "x_node": nx + 1}
+    return sum(8 * int(np.prod([sizes[d] for d in dims])) for dims, _, _ in FIELDS.values())
+
+
+#: Bytes one row of the diagnostic series adds to a run file.
+RECORD_BYTES = 8 * (len(SERIES) + 1)
+
+
 def open_run_file(path, mode: str = "r"):
-    """Open a run file.  Readers skip HDF5's file lock, so that looking at a file (a notebook,
-    ``convsim info``) never stops the run writing it; the writer retries for a few seconds
-    while another program holds a lock (errno EAGAIN)."""
-    if mode == "r":
-        try:
-            return h5py.File(path, "r", locking=False)
-        except OSError as exc:   # already open in this process with locking (xarray, say)
-            if "locking flag" not in str(exc):
-                raise
-            return h5py.File(path, "r")
-    for attempt in range(50):
-        try:
-            return h5py.File(path, mode)
-        except BlockingIOError:
-            if attempt == 49:
-                raise
-            time.sleep(0.1)
-        except OSError as exc:
-            if "unable to lock file" not in str(exc) or attempt == 49:
-                raise
-            time.sleep(0.1)
+    """Open a run file for reading.  Readers skip HDF5's file lock: the writer never changes a
+    committed file in place (it renames a finished copy over it), so no lock is needed, and a
+    reader never stops the run writing the file."""
+    if mode != "r":
+        raise ValueError("run files are changed only through convsim.files.commit")
+    try:
+        return h5py.File(path, "r", locking=False)
+    except OSError as exc:   # already open in this process with locking (xarray, say)
+        if "locking flag" not in str(exc):
+            raise
+        return h5py.File(path, "r")
 
 
 def check_writable(path: Path, overwrite: bool, *,
@@ -163,15 +167,34 @@ def check_writable(path: Path, overwrite: bool, *,
         raise SnapshotError(f"output folder {str(folder)!r}: not writable")
 
 
+def check_output_folder(folder, option: str = "--out") -> Path:
+    """Make sure ``folder`` exists (created with its parents) and a file can be written in it:
+    checked before any work, so that hours of runs never end in an unwritable place."""
+    import tempfile
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise SnapshotError(f"{option} {str(folder)!r}: exists and is not a directory")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        with tempfile.NamedTemporaryFile(dir=folder, prefix=".convsim-check-"):
+            pass
+    except OSError as exc:
+        raise SnapshotError(f"{option} {str(folder)!r}: cannot be written "
+                            f"({exc.strerror or exc})") from None
+    return folder
+
+
 class RunFileWriter:
     """Writes snapshots and the diagnostic series of one run into its HDF5 file.
 
-    The file is opened only for each write and closed after it.
+    Every write is one commit of a copy (see the module docstring); the committed file is
+    never open for writing.
     """
 
     def __init__(self, path: str | Path, *, overwrite: bool = False, append: bool = False):
         self.path = Path(path)
         self.append = append
+        self._fresh = False          # the new file waits as RUN.h5.part for its first snapshot
         if not append:
             check_writable(self.path, overwrite)
         elif not self.path.is_file():
@@ -179,11 +202,24 @@ class RunFileWriter:
 
     # -- creation -----------------------------------------------------------------------------
     def create(self, grid, config_text: str, title: str, version: str) -> None:
-        """Write a new file with the grid and metadata (replaces an old one, checked before)."""
+        """Prepare a new file with the grid and metadata, as ``RUN.h5.part``: it replaces an
+        old file (checked before) together with the first snapshot, in one commit."""
         if self.append:
             return
         tmp = self.path.with_name(self.path.name + ".part")
-        with h5py.File(tmp, "w") as f:
+        try:
+            self._create(tmp, grid, config_text, title, version)
+            self._fresh = True
+        except OSError as exc:
+            tmp.unlink(missing_ok=True)
+            if is_disk_full(exc, self.path.parent):
+                raise DiskFullError(f"run file {str(self.path)!r}: the disk is full, no snapshot "
+                                    f"written ({exc.strerror or exc})") from None
+            raise SnapshotError(f"run file {str(self.path)!r}: cannot be written ({exc})") from None
+
+    def _create(self, tmp, grid, config_text, title, version):
+        fault_point("create")
+        with h5py.File(tmp, "w", locking=False) as f:
             f.attrs["Conventions"] = "CF-1.8"
             f.attrs["title"] = title or "convsim run"
             f.attrs["source"] = f"convsim {version}"
@@ -224,7 +260,6 @@ class RunFileWriter:
                                      chunks=(4096,))
                 self._attach(f, d, ("series_time",), units, long_name)
             _physical_coordinates(f, config_text)
-        os.replace(tmp, self.path)
 
     @staticmethod
     def _coordinate(d, name, units):
@@ -240,45 +275,58 @@ class RunFileWriter:
     # -- appending ----------------------------------------------------------------------------
     def write(self, *, time: float, fields: dict, series: dict, restart: dict,
               status: str, wall_seconds: float) -> int:
-        """Append one snapshot and the new series rows; replace the restart state. Returns the snapshot index."""
-        try:
-            with open_run_file(self.path, "a") as f:
-                n = f["time"].shape[0]
-                f["time"].resize((n + 1,))
-                f["time"][n] = time
-                for name in FIELDS:
+        """Append one snapshot and the new series rows; replace the restart state.
+
+        One commit (``convsim.files.commit``): the snapshot, its series rows, the restart state
+        and the status become visible together or not at all.  Returns the snapshot index."""
+        def update(f):
+            n = f["time"].shape[0]
+            f["time"].resize((n + 1,))
+            f["time"][n] = time
+            for name in FIELDS:
+                d = f[name]
+                d.resize((n + 1,) + d.shape[1:])
+                d[n] = fields[name]
+            fault_point("fields")
+            rows = len(series.get("series_time", ()))
+            if rows:
+                m = f["record"].shape[0]
+                f["record"].resize((m + rows,))
+                f["record"][m:] = np.arange(m, m + rows)
+                for name in SERIES:
                     d = f[name]
-                    d.resize((n + 1,) + d.shape[1:])
-                    d[n] = fields[name]
-                rows = len(series.get("series_time", ()))
-                if rows:
-                    m = f["record"].shape[0]
-                    f["record"].resize((m + rows,))
-                    f["record"][m:] = np.arange(m, m + rows)
-                    for name in SERIES:
-                        d = f[name]
-                        d.resize((m + rows,))
-                        d[m:] = series[name]
-                _append_physical_times(f)
-                if "restart" in f:
-                    del f["restart"]
-                g = f.create_group("restart")
-                for key, value in restart.items():
-                    if value is None:
-                        continue
-                    if isinstance(value, np.ndarray):
-                        g.create_dataset(key, data=value)
-                    else:
-                        g.attrs[key] = value
-                f.attrs["status"] = status
-                f.attrs["wall_seconds"] = wall_seconds
-                f.flush()
-                return n
-        except OSError as exc:
-            raise SnapshotError(f"run file {str(self.path)!r}: cannot be written ({exc})") from None
+                    d.resize((m + rows,))
+                    d[m:] = series[name]
+            _append_physical_times(f)
+            fault_point("series")
+            _replace_restart(f, restart)
+            fault_point("restart")
+            f.attrs["status"] = status
+            f.attrs["wall_seconds"] = wall_seconds
+            fault_point("attrs")
+            return n
+
+        size = sum(np.asarray(v).nbytes for v in fields.values())
+        size += sum(np.asarray(v).nbytes for v in series.values())
+        try:
+            n = commit(self.path, update, extra_bytes=size, fresh=self._fresh)
+            self._fresh = False
+            return n
+        except DiskFullError as exc:
+            raise DiskFullError(f"{exc}; the file keeps every snapshot completed before "
+                                f"({self.snapshots()} of them); free some space and continue "
+                                f"the run with --restart {str(self.path)!r}") from None
+
+    def snapshots(self) -> int:
+        """Snapshots in the committed file."""
+        try:
+            with open_run_file(self.path) as f:
+                return int(f["time"].shape[0])
+        except (OSError, KeyError):
+            return 0
 
     def finish(self, status: str, wall_seconds: float, summary: dict) -> None:
-        with open_run_file(self.path, "a") as f:
+        def update(f):
             f.attrs["status"] = status
             f.attrs["wall_seconds"] = wall_seconds
             for key, value in summary.items():
@@ -286,76 +334,30 @@ class RunFileWriter:
                     f.attrs[f"final_{key}"] = value
             if summary.get("statistics"):
                 write_statistics(f, summary)
+            fault_point("attrs")
+        commit(self.path, update)
 
 
-PROFILE_STATISTICS = ("temperature_profile", "viscosity_profile")
-
-
-def write_statistics(f, summary: dict) -> None:
-    """Group ``statistics``: the time means of a finished run (``RunResult.summary``).
-
-    Attributes ``settled`` and, per scalar quantity q, ``q_mean``, ``q_ci95`` (95 %
-    half-width), ``q_from_time``; the profiles as variables ``<profile>_mean`` and
-    ``<profile>_ci95`` over z; the lid diagnostics as attributes of the subgroup ``lid``
-    (the upwellings as its variable ``upwellings``); the heat balance as
-    ``heat_balance_<name>``.  Replaced when a restarted run finishes again.
-    """
-    if "statistics" in f:
-        del f["statistics"]
-    g = f.create_group("statistics")
-    g.attrs["settled"] = str(summary.get("settled"))
-    for name, est in summary["statistics"].items():
-        if name in PROFILE_STATISTICS:
-            for part in ("mean", "ci95"):
-                d = g.create_dataset(f"{name}_{part}", data=np.array(
-                    [math.nan if v is None else v for v in est[part]], float))
-                d.dims[0].attach_scale(f["z"])
-                d.attrs["units"] = "1"
-                d.attrs["long_name"] = f"time {part} of the {name.replace('_', ' ')}"
-            g.attrs[f"{name}_from_time"] = _number(est["from_time"])
+def _replace_restart(f, restart: dict) -> None:
+    """Write the restart state into group ``restart``, in place where shapes allow (so that the
+    file does not grow by a dead copy of the state at every snapshot)."""
+    g = f.require_group("restart")
+    for key in list(g):
+        if restart.get(key) is None or not isinstance(restart[key], np.ndarray) \
+                or g[key].shape != restart[key].shape or g[key].dtype != restart[key].dtype:
+            del g[key]
+    for key in list(g.attrs):
+        del g.attrs[key]
+    for key, value in restart.items():
+        if value is None:
             continue
-        for part in ("mean", "ci95", "from_time"):
-            g.attrs[f"{name}_{part}"] = _number(est[part])
-    lid = g.create_group("lid")
-    for key, value in (summary.get("lid") or {}).items():
-        if key == "upwellings":
-            lid.create_dataset("upwellings", data=np.asarray(value, float))
-        else:
-            lid.attrs[key] = _number(value) if value is None else value
-    for key, value in (summary.get("heat_balance") or {}).items():
-        g.attrs[f"heat_balance_{key}"] = _number(value) if value is None else value
-
-
-def _number(value) -> float:
-    """A JSON-safe number (None for NaN or inf) back to a float."""
-    return math.nan if value is None else float(value)
-
-
-def read_statistics(f) -> dict:
-    """The ``statistics`` group as {settled, statistics: {q: {mean, ci95, from_time}}, lid,
-    heat_balance} (empty dict when the run has none)."""
-    if "statistics" not in f:
-        return {}
-    g = f["statistics"]
-    attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g.attrs.items()}
-    stats = {}
-    for key, value in attrs.items():
-        if key.endswith("_from_time"):
-            name = key[: -len("_from_time")]
-            if name in PROFILE_STATISTICS:
-                stats[name] = dict(mean=g[f"{name}_mean"][:], ci95=g[f"{name}_ci95"][:],
-                                   from_time=value)
+        if isinstance(value, np.ndarray):
+            if key in g:
+                g[key][...] = value
             else:
-                stats[name] = dict(mean=attrs[f"{name}_mean"], ci95=attrs[f"{name}_ci95"],
-                                   from_time=value)
-    lid = {}
-    if "lid" in g:
-        lid = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g["lid"].attrs.items()}
-        if "upwellings" in g["lid"]:
-            lid["upwellings"] = g["lid"]["upwellings"][:]
-    return dict(settled=attrs.get("settled"), statistics=stats, lid=lid,
-                heat_balance={k[13:]: v for k, v in attrs.items()
-                              if k.startswith("heat_balance_")})
+                g.create_dataset(key, data=value)
+        else:
+            g.attrs[key] = value
 
 
 def _physical_coordinates(f, config_text: str) -> None:
@@ -501,3 +503,73 @@ class RunFileObserver:
     def on_finish(self, result) -> None:
         summary = {k: v for k, v in result.summary().items() if k != "output" and v is not None}
         self.writer.finish(result.status, result.wall_seconds, summary)
+
+
+PROFILE_STATISTICS = ("temperature_profile", "viscosity_profile")
+
+
+def write_statistics(f, summary: dict) -> None:
+    """Group ``statistics``: the time means of a finished run (``RunResult.summary``).
+
+    Attributes ``settled`` and, per scalar quantity q, ``q_mean``, ``q_ci95`` (95 %
+    half-width), ``q_from_time``; the profiles as variables ``<profile>_mean`` and
+    ``<profile>_ci95`` over z; the lid diagnostics as attributes of the subgroup ``lid``
+    (the upwellings as its variable ``upwellings``); the heat balance as
+    ``heat_balance_<name>``.  Replaced when a restarted run finishes again.
+    """
+    if "statistics" in f:
+        del f["statistics"]
+    g = f.create_group("statistics")
+    g.attrs["settled"] = str(summary.get("settled"))
+    for name, est in summary["statistics"].items():
+        if name in PROFILE_STATISTICS:
+            for part in ("mean", "ci95"):
+                d = g.create_dataset(f"{name}_{part}", data=np.array(
+                    [math.nan if v is None else v for v in est[part]], float))
+                d.dims[0].attach_scale(f["z"])
+                d.attrs["units"] = "1"
+                d.attrs["long_name"] = f"time {part} of the {name.replace('_', ' ')}"
+            g.attrs[f"{name}_from_time"] = _number(est["from_time"])
+            continue
+        for part in ("mean", "ci95", "from_time"):
+            g.attrs[f"{name}_{part}"] = _number(est[part])
+    lid = g.create_group("lid")
+    for key, value in (summary.get("lid") or {}).items():
+        if key == "upwellings":
+            lid.create_dataset("upwellings", data=np.asarray(value, float))
+        else:
+            lid.attrs[key] = _number(value) if value is None else value
+    for key, value in (summary.get("heat_balance") or {}).items():
+        g.attrs[f"heat_balance_{key}"] = _number(value) if value is None else value
+
+
+def _number(value) -> float:
+    """A JSON-safe number (None for NaN or inf) back to a float."""
+    return math.nan if value is None else float(value)
+
+
+def read_statistics(f) -> dict:
+    """The ``statistics`` group as {settled, statistics: {q: {mean, ci95, from_time}}, lid,
+    heat_balance} (empty dict when the run has none)."""
+    if "statistics" not in f:
+        return {}
+    g = f["statistics"]
+    attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g.attrs.items()}
+    stats = {}
+    for key, value in attrs.items():
+        if key.endswith("_from_time"):
+            name = key[: -len("_from_time")]
+            if name in PROFILE_STATISTICS:
+                stats[name] = dict(mean=g[f"{name}_mean"][:], ci95=g[f"{name}_ci95"][:],
+                                   from_time=value)
+            else:
+                stats[name] = dict(mean=attrs[f"{name}_mean"], ci95=attrs[f"{name}_ci95"],
+                                   from_time=value)
+    lid = {}
+    if "lid" in g:
+        lid = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g["lid"].attrs.items()}
+        if "upwellings" in g["lid"]:
+            lid["upwellings"] = g["lid"]["upwellings"][:]
+    return dict(settled=attrs.get("settled"), statistics=stats, lid=lid,
+                heat_balance={k[13:]: v for k, v in attrs.items()
+                              if k.startswith("heat_balance_")})

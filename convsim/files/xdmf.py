@@ -41,8 +41,9 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 
 
-from convsim.errors import SnapshotError
+from convsim.errors import DiskFullError, SnapshotError
 from convsim.files.atomic import atomic_write_text
+from convsim.files.commit import fault_point, is_disk_full
 from convsim.files.runfile import check_writable, open_run_file
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
@@ -160,5 +161,12 @@ def write_xdmf(run_path: str | Path, output: str | Path | None = None, *,
                             f"{str(run_path)!r} (the data are referenced by relative path)")
     text = xdmf_text(run_path)
     check_writable(output, overwrite, other="")    # `convsim xdmf` has no --out
-    atomic_write_text(output, text)
+    try:
+        fault_point("xdmf")
+        atomic_write_text(output, text)
+    except OSError as exc:
+        kind = DiskFullError if is_disk_full(exc, output.parent) else SnapshotError
+        raise kind(f"XDMF sidecar {str(output)!r}: cannot be written ({exc.strerror or exc}); "
+                   f"the run file is complete, write the sidecar later with: convsim xdmf "
+                   f"{str(run_path)!r}") from None
     return output

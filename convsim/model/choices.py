@@ -6,7 +6,7 @@ in one place.  (Viscosity laws and Stokes solvers have their own registries.)
 """
 
 __all__ = ["FLOW_CONDITIONS", "THERMAL_CONDITIONS", "SIDE_CONDITIONS", "ADVECTION_SCHEMES",
-           "LIMITERS", "TIME_SCHEMES", "FACTOR_REUSE"]
+           "LIMITERS", "TIME_SCHEMES", "FACTOR_REUSE", "NONLINEAR_METHODS"]
 
 #: Mechanical condition of a horizontal wall.
 FLOW_CONDITIONS = ("free-slip", "no-slip")
@@ -22,3 +22,5 @@ LIMITERS = ("van-leer", "minmod", "superbee", "mc")
 TIME_SCHEMES = ("sbdf2", "euler")
 #: Variable viscosity: reuse the Stokes factor as a CG preconditioner while it pays, or refactor.
 FACTOR_REUSE = ("adaptive", "always")
+#: Iteration of the nonlinear Stokes problem of a strain-rate-dependent viscosity.
+NONLINEAR_METHODS = ("newton", "picard")

@@ -153,6 +153,8 @@ class SolveReport:
     solve_seconds: float = 0.0
     residual: float = 0.0        # ||b - A x|| / ||b|| of the answer
     refinements: int = 0         # iterative-refinement steps after a direct solve
+    nonlinear_iterations: int = 0   # Picard/Newton steps of a strain-rate-dependent law
+    nonlinear_residual: float = 0.0  # their final ||R|| / ||b||
 
 
 class LaggedFactorSolver:

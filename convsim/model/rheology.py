@@ -7,7 +7,7 @@ values (``ViscosityLaw``) and evaluates it:
 
     eta = modifier_k( ... modifier_1( law(inputs) ) ... )
 
-where the modifiers (cut-offs; later yielding) apply in their declared order when
+where the modifiers (yielding, then the cut-offs) apply in their declared order when
 their parameters switch them on.  All viscosities are nondimensional, 1 at the
 reference state T = 0, z = 1 (the cold top), the viscosity of the Rayleigh number.
 """
@@ -25,6 +25,15 @@ __all__ = ["ViscosityLaw", "LAWS", "LawInputs", "viscosity", "base_state_viscosi
 
 #: The laws chosen by name (declarations of ``convsim.model.laws``).
 LAWS = _laws.LAWS
+
+
+def _value(declared, value):
+    """A parameter value as stored: a word for a word parameter, else a float."""
+    if declared.choices:
+        if value not in declared.choices:
+            raise ValueError(declared.problem(value))
+        return value
+    return float(value)
 
 
 @dataclass(frozen=True, init=False)
@@ -46,7 +55,7 @@ class ViscosityLaw:
         if unknown:
             raise ValueError(f"viscosity parameters {sorted(unknown)}: unknown; allowed: "
                              f"{', '.join(_laws.PARAMETERS)}")
-        values = tuple((key, float(parameters.get(key, p.default)))
+        values = tuple((key, _value(p, parameters.get(key, p.default)))
                        for key, p in _laws.PARAMETERS.items())
         object.__setattr__(self, "name", name)
         object.__setattr__(self, "values", values)
@@ -122,13 +131,9 @@ def viscosity(law: ViscosityLaw, T, z, strain_rate=None, composition=None, *,
 def base_state_viscosity(law: ViscosityLaw, T, z) -> np.ndarray:
     """eta(T, z) of a state without flow, as the onset (linear stability) solver uses it.
 
-    The chosen law and every active modifier except those declared ``onset =
-    'inactive'`` (they act through the strain rate, which is zero in the conductive
-    base state and multiplies the viscosity perturbation at linear order).
+    The law and its active modifiers at zero strain rate: the conductive base state has no
+    flow, and the strain-rate dependence of eta multiplies the base strain rate (zero) at
+    linear order, so only this profile enters.
     """
-    inputs = LawInputs(np.asarray(T, float), np.asarray(z, float))
-    eta = LAWS[law.name].function(inputs, law)
-    for modifier in _laws.MODIFIERS.values():
-        if modifier.active(law) and modifier.onset != "inactive":
-            eta = modifier.function(eta, inputs, law)
-    return eta
+    T = np.asarray(T, float)
+    return viscosity(law, T, z, strain_rate=np.zeros(np.broadcast(T, z).shape))

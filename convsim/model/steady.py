@@ -98,7 +98,7 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
             return T, psi, NewtonReport(True, it - 1, newton.evaluations, fmax, newton.history)
         if not np.isfinite(fmax):
             break
-        step = newton.step(T, delta)
+        step = newton.step(T, delta, psi)
         if step is None:
             log.info("newton: no acceptable pseudo-time step at iteration %d", it)
             break
@@ -122,11 +122,11 @@ class _PseudoTransient:
         self.evaluations = 1            # the residual at the start
         self.history: list = []
 
-    def _linearise(self, T):
+    def _linearise(self, T, psi_guess=None):
         """F(T) (flat), the flow of T, the Jacobian-vector product and the local part
         K - C(u) of the Jacobian (the preconditioner)."""
         model, K = self.model, self.K
-        psi, dflow = model.linearised_flow(T)
+        psi, dflow = model.linearised_flow(T, psi_guess)
         base = model.explicit_term(T, psi)
         f = (base + model.diffusion.apply(T)).ravel()
         u, w = face_velocities(model.grid, psi)
@@ -148,10 +148,10 @@ class _PseudoTransient:
         self.evaluations += 1
         return F, psi, float(np.linalg.norm(F))
 
-    def step(self, T, delta: float):
+    def step(self, T, delta: float, psi_guess=None):
         """One accepted pseudo-time step from T: (T, F, psi, next delta, gmres info), or None
         when six reductions of delta found no acceptable step."""
-        f, psi, jv, local = self._linearise(T)
+        f, psi, jv, local = self._linearise(T, psi_guess)
         fnorm = float(np.linalg.norm(f))
         n = f.size
         for _attempt in range(6):

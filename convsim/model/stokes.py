@@ -208,6 +208,24 @@ class StokesOperator:
             total = product if total is None else (total + product).tocoo()
         return np.sort(total.row.astype(np.int64) * n + total.col)
 
+    def strain_parts(self, solution: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The two rows of A's dissipation quadrature applied to an unknown vector.
+
+        Returns ``(L x)`` on the nodes, shape (nz + 1, nx + 1): psi_zz - psi_xx = 2 e_xz
+        where A has a row (interior and no-slip wall nodes), 0 on free-slip walls (no shear
+        stress there); and ``(B x)`` at the cell centres, shape (nz, nx): psi_xz = e_xx.
+        """
+        g = self.grid
+        if not hasattr(self, "_strain_matrices"):
+            self._strain_matrices = (self._L.matrix(self.n_unknowns),
+                                     self._B.matrix(self.n_unknowns))
+        L, B = self._strain_matrices
+        shear = np.zeros(g.node_shape)
+        shear[self._L_node] = L @ solution
+        if g.periodic:
+            shear[:, g.nx] = shear[:, 0]
+        return shear, (B @ solution).reshape(g.cell_shape)
+
     def viscosity_weights(self, eta_node: np.ndarray, eta_cell: np.ndarray) -> np.ndarray:
         """The weights [w eta at the L rows ; 4 eta_cell] that the value map multiplies."""
         jn, in_ = self._L_node

@@ -36,6 +36,8 @@ from convsim.model import diagnostics as diag
 from convsim.model.energy import DiffusionSolver, ThermalBoundaries, advection
 from convsim.model.grid import Grid
 from convsim.model.linsolve import LaggedFactorSolver, SolveReport, make_factorizer, available_factorizers
+from convsim.model.nonlinear import LaggedLinear, solve_nonlinear, strain_rate_invariants
+from convsim.model.nonlinear import linearised_flow as nonlinear_linearised
 from convsim.model.rheology import ViscosityLaw, viscosity
 from convsim.model.stepsize import GROWTH_LIMIT, StepSizeRule
 from convsim.model.stokes import StokesOperator, TransformSolver, face_velocities
@@ -78,6 +80,8 @@ class StepReport:
     stokes_iterations: int = 0
     refactored: bool = False
     stokes_residual: float = 0.0           # ||b - A psi|| / ||b|| of the Stokes solve
+    nonlinear_iterations: int = 0          # Picard/Newton steps of a yielding law (0: linear)
+    nonlinear_residual: float = 0.0        # their final ||R|| / ||b||
     seconds: dict = field(default_factory=dict)   # wall time per phase
 
 
@@ -104,6 +108,9 @@ class Model:
         dt <= this fraction of the flow's time scale (see ``convsim.model.stepsize``); 0: off.
     stokes_solver : {'auto', 'transform', 'cholmod', 'superlu'}
     factor_reuse : {'adaptive', 'always'}
+    nonlinear : tuple
+        (method, rtol, max_iterations) of ``convsim.model.nonlinear.solve_nonlinear``, used
+        when the law reads the strain rate.
     """
 
     def __init__(self, grid: Grid, rayleigh: float, thermal: ThermalBoundaries,
@@ -111,7 +118,8 @@ class Model:
                  top_flow: str = "free-slip", bottom_flow: str = "free-slip",
                  advection_limiter: str = "van-leer", time_scheme: str = "sbdf2",
                  cfl: float = 0.4, max_dt: float = 1e-2, stokes_solver: str = "auto",
-                 factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04):
+                 factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04,
+                 nonlinear: tuple = ("newton", 1e-8, 50)):
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
@@ -137,15 +145,29 @@ class Model:
             self._transform = None
             self._lagged = LaggedFactorSolver(make_factorizer(stokes_solver), factor_reuse)
         self.stokes_solver = stokes_solver
+        self.nonlinear = tuple(nonlinear)
 
     # -- pieces -----------------------------------------------------------------------------
-    def viscosities(self, T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Viscosity at the nodes (nz + 1, nx + 1) and at the cell centres (nz, nx)."""
+    def viscosities(self, T: np.ndarray, psi: np.ndarray | None = None
+                    ) -> tuple[np.ndarray, np.ndarray]:
+        """Viscosity at the nodes (nz + 1, nx + 1) and at the cell centres (nz, nx).
+
+        A law that reads the strain rate takes it from the flow psi (None: no flow).
+        """
+        law_of_strain = self.viscosity_of_strain(T)
+        if psi is None or not self.law.needs_strain_rate:
+            return law_of_strain(None, None)
+        return law_of_strain(*strain_rate_invariants(self.stokes, psi))
+
+    def viscosity_of_strain(self, T: np.ndarray):
+        """``(e_node, e_cell) -> (eta_node, eta_cell)``: the law at temperature T as a
+        function of the strain-rate invariant (None: zero)."""
         tb, tt = diag.wall_temperatures(self.grid, T, self.thermal)
         tb_n = np.concatenate([tb[:1], 0.5 * (tb[1:] + tb[:-1]), tb[-1:]])
         tt_n = np.concatenate([tt[:1], 0.5 * (tt[1:] + tt[:-1]), tt[-1:]])
         t_node = self.grid.cell_to_node(T, tb_n, tt_n)
-        return viscosity(self.law, t_node, self._z_node), viscosity(self.law, T, self._z_cell)
+        return lambda e_node, e_cell: (viscosity(self.law, t_node, self._z_node, e_node),
+                                       viscosity(self.law, T, self._z_cell, e_cell))
 
     def restore_factor(self, weights: np.ndarray | None) -> None:
         """Rebuild the Stokes factor a saved run was using (for a bit-for-bit restart)."""
@@ -160,14 +182,19 @@ class Model:
             t0 = time.perf_counter()
             x = self._transform.solve(b)
             return self.stokes.to_nodes(x), SolveReport(solve_seconds=time.perf_counter() - t0)
+        x0 = None if psi_guess is None else self.stokes.from_nodes(psi_guess)
+        if self.law.needs_strain_rate:
+            method, rtol, most = self.nonlinear
+            x, nl = solve_nonlinear(self.stokes, self.viscosity_of_strain(T), b, x0,
+                                    LaggedLinear(self.stokes, self._lagged), method, rtol, most)
+            return self.stokes.to_nodes(x), nl.solve_report()
         eta_n, eta_c = self.viscosities(T)
         weights = self.stokes.viscosity_weights(eta_n, eta_c)
         A = self.stokes.matrix_from_weights(weights)
-        x0 = None if psi_guess is None else self.stokes.from_nodes(psi_guess)
         x, report = self._lagged.solve(A, b, x0, weights)
         return self.stokes.to_nodes(x), report
 
-    def linearised_flow(self, T: np.ndarray):
+    def linearised_flow(self, T: np.ndarray, psi_guess: np.ndarray | None = None):
         """The streamfunction of T and its derivative with respect to T.
 
         Returns ``psi`` (nz + 1, nx + 1) and a function ``v -> dpsi`` giving the
@@ -181,6 +208,13 @@ class Model:
         if self._transform is not None:
             psi = op.to_nodes(self._transform.solve(op.rhs(T, self.rayleigh)))
             return psi, lambda v: op.to_nodes(self._transform.solve(op.rhs(v, self.rayleigh)))
+        if self.law.needs_strain_rate:
+            x, derivative, _ = nonlinear_linearised(
+                op, self.viscosity_of_strain, lambda v: op.rhs(v, self.rayleigh), T,
+                None if psi_guess is None else op.from_nodes(psi_guess),
+                make_factorizer(self.stokes_solver), min(self.nonlinear[1], 1e-9),
+                self.nonlinear[2])
+            return op.to_nodes(x), lambda v: op.to_nodes(derivative(v))
         factor = make_factorizer(self.stokes_solver)
         eta_n, eta_c = self.viscosities(T)
         factor.factor(self.stokes.matrix_from_weights(op.viscosity_weights(eta_n, eta_c)))
@@ -300,7 +334,9 @@ class Model:
             energy_residual=residual, heat_imbalance=imbalance,
             tendency_max=float(change), rejections=rejections,
             stokes_iterations=solve.iterations, refactored=solve.refactored,
-            stokes_residual=solve.residual)
+            stokes_residual=solve.residual,
+            nonlinear_iterations=solve.nonlinear_iterations,
+            nonlinear_residual=solve.nonlinear_residual)
 
     def with_rayleigh(self, rayleigh: float) -> "Model":
         """The same model at another Rayleigh number (for continuation)."""

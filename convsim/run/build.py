@@ -42,4 +42,5 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     return Model(grid or build_grid(config), layer.internal_rayleigh(config),
                  build_thermal(config), build_law(config), config.physics.internal_heating,
                  b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
-                 n.stokes_solver, n.factor_reuse, n.time_scale_fraction)
+                 n.stokes_solver, n.factor_reuse, n.time_scale_fraction,
+                 (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations))

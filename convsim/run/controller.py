@@ -111,7 +111,8 @@ class Simulation:
         with DeferredInterrupt() as interrupt:
             p.rules.append(Interrupted(interrupt))
             try:
-                decision = self._loop(p)
+                decision = self._finished_before(p) if resume is not None else None
+                decision = decision or self._loop(p)
             except KeyboardInterrupt:      # not in the main thread: no deferred handler there
                 decision = Decision("interrupted", f"interrupted at step {p.state.step}")
             if p.state.step != p.last_snapshot_step:     # a signal now stops nothing half-written
@@ -153,6 +154,16 @@ class Simulation:
             p.model.restore_factor(p.state.factor_weights)
             p.last_snapshot_step = p.state.step
         return p
+
+    @staticmethod
+    def _finished_before(p: RunProgress) -> Decision | None:
+        """A restarted run that met its stop rule already takes no step (a finished run
+        restarted stays as it was)."""
+        for rule in p.rules:
+            decision = rule.reached(p.state)
+            if decision is not None and not (decision.ends_stage and p.continuation.has_next):
+                return decision
+        return None
 
     def _loop(self, p: RunProgress) -> Decision:
         """Step until a rule decides; returns the decision."""

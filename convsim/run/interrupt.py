@@ -15,7 +15,10 @@ __all__ = ["DeferredInterrupt"]
 
 
 class DeferredInterrupt:
-    """Turns the given signals (default: SIGINT, Ctrl-C) into a flag while it is active.
+    """Turns the given signals (default: SIGINT, Ctrl-C, and SIGTERM, what batch schedulers send
+    before they kill a job) into a flag while it is active; a second Ctrl-C raises
+    ``KeyboardInterrupt`` (the command line exits with 130); a second SIGTERM changes nothing
+    (a process pool that shuts down sends its workers SIGTERM again).
 
     Use as a context manager; the previous handlers come back on exit.
 
@@ -27,15 +30,22 @@ class DeferredInterrupt:
         The signal that arrived (the last one).
     """
 
-    def __init__(self, signals=(signal.SIGINT,)):
+    def __init__(self, signals=(signal.SIGINT, signal.SIGTERM)):
         self.signals = tuple(signals)
         self.requested = False
         self.signum = None
         self._previous: dict = {}
 
     def _handle(self, signum, frame):
+        if self.requested and signum == signal.SIGINT:   # a second Ctrl-C: stop now (a snapshot
+            raise KeyboardInterrupt    # being written is dropped whole, the file keeps the one before)
         self.requested = True
         self.signum = signum
+
+    @property
+    def name(self) -> str:
+        """The signal that arrived, by name (SIGINT, SIGTERM), or ''."""
+        return "" if self.signum is None else signal.Signals(self.signum).name
 
     def install(self) -> "DeferredInterrupt":
         if threading.current_thread() is threading.main_thread():

@@ -158,7 +158,7 @@ def snapshot_fields(model, state) -> dict:
     """The fields of a snapshot (``convsim.files.runfile.FIELDS``) from the state."""
     from convsim.model.stokes import face_velocities
     grid = model.grid
-    eta_c = model.viscosities(state.temperature)[1]
+    eta_c = model.viscosities(state.temperature, state.psi)[1]
     u, w = face_velocities(grid, state.psi)
     q = diag.corner_gradients(grid, state.temperature, model.thermal)
     return dict(temperature=state.temperature, viscosity=eta_c, streamfunction=state.psi,
@@ -180,5 +180,5 @@ def final_result(model, state, decision, wall: float, series: dict, phase: dict)
         mean_temperature=float(state.temperature.mean()),
         corner_gradients=diag.corner_gradients(grid, state.temperature, model.thermal),
         temperature=state.temperature, psi=state.psi,
-        viscosity=model.viscosities(state.temperature)[1], grid=grid, series=series,
+        viscosity=model.viscosities(state.temperature, state.psi)[1], grid=grid, series=series,
         phase_seconds=phase)

@@ -66,6 +66,10 @@ class StopRule:
     def restore(self, saved: dict) -> None:
         pass
 
+    def reached(self, state) -> Decision | None:
+        """The decision when a restored run has met this rule already (no step taken then)."""
+        return None
+
     def watch(self, averages) -> None:
         """Receive the run's time means (``run.averages.RunAverages``), for rules that read them."""
 
@@ -133,6 +137,12 @@ class SteadyState(StopRule):
         self.settled = int(saved.get("settled", 0))
         self.window = [tuple(v) for v in np.asarray(saved.get("window", np.zeros((0, 2))))]
 
+    def reached(self, state) -> Decision | None:
+        if self.settled >= self.settle:
+            return Decision(self.status, f"already steady at step {state.step} before this "
+                                         f"restart; nothing to do", ends_stage=True)
+        return None
+
 
 @register
 class MeanPrecision(StopRule):
@@ -183,6 +193,12 @@ class EndTime(StopRule):
             return Decision(self.status, f"reached end time {self.end_time:g}")
         return None
 
+    def reached(self, state) -> Decision | None:
+        if state.time >= self.end_time * (1 - TIME_ROUNDING):
+            return Decision(self.status, f"already at the end time {self.end_time:g} before this "
+                                         f"restart; nothing to do (raise stop.end_time to go on)")
+        return None
+
 
 @register
 class StepLimit(StopRule):
@@ -202,6 +218,13 @@ class StepLimit(StopRule):
             return Decision(self.status, f"reached the step limit {self.max_steps}")
         return None
 
+    def reached(self, state) -> Decision | None:
+        if state.step >= self.max_steps:
+            return Decision(self.status, f"already at the step limit {self.max_steps} (step "
+                                         f"{state.step}) before this restart; nothing to do "
+                                         f"(raise stop.max_steps to go on)")
+        return None
+
 
 class Interrupted(StopRule):
     """Stop when the interrupt flag (``run.interrupt.DeferredInterrupt``) is set."""
@@ -213,7 +236,8 @@ class Interrupted(StopRule):
 
     def observe(self, report) -> Decision | None:
         if self.flag.requested:
-            return Decision(self.status, f"interrupted at step {report.step}")
+            by = f" ({self.flag.name})" if getattr(self.flag, "name", "") else ""
+            return Decision(self.status, f"interrupted{by} at step {report.step}")
         return None
 
 

@@ -41,7 +41,10 @@ def report_paths(out) -> list:
 
 
 def check_outputs(out, overwrite: bool = False) -> None:
-    """Raise OutputExistsError if any report file exists in ``out`` and overwrite is off."""
+    """Raise OutputExistsError if any report file exists in ``out`` and overwrite is off;
+    SnapshotError if ``out`` cannot be created or written."""
+    from convsim.files.runfile import check_output_folder
+    check_output_folder(out)
     if overwrite:
         return
     existing = [p for p in report_paths(out) if p.exists()]

@@ -210,6 +210,7 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
     t0 = time.perf_counter()
     run = _SweepRun(spec, _sweep_folder(out), progress)
     run.load_records(out, overwrite)
+    _check_same_sweep(run.folder, spec, overwrite)
     write_json(run.folder / "sweep.json", _definition(spec), indent=1)
     skipped = run.report_skipped()
     engine = None if run.all_done() else make_backend(backend, runner, jobs=jobs,
@@ -231,6 +232,33 @@ def run_sweep(spec: SweepSpec, out: str | Path, *, jobs: int | None = None, sche
                         backend=engine.name if engine else "none",
                         workers=engine.workers if engine else 0,
                         wall_seconds=time.perf_counter() - t0)
+
+
+def _check_same_sweep(folder: Path, spec: SweepSpec, overwrite: bool) -> None:
+    """Refuse a folder that holds another sweep's table (its ``sweep.json`` differs, or a
+    table without one) unless ``overwrite``: the table would lose that sweep's rows."""
+    import json
+    if overwrite:
+        return
+    new = {k: v for k, v in json.loads(json.dumps(_definition(spec), default=float)).items()
+           if k not in ("source", "title")}
+    stored = folder / "sweep.json"
+    if stored.is_file():
+        try:
+            old = json.loads(stored.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            old = None
+        if isinstance(old, dict) and {k: v for k, v in old.items()
+                                      if k not in ("source", "title")} == new:
+            return
+        what = (f"another sweep ({old.get('source', '?')})" if isinstance(old, dict)
+                else "an unreadable sweep.json")
+    elif (folder / "table.csv").exists() or (folder / "table.h5").exists():
+        what = "a sweep table without its sweep.json"
+    else:
+        return
+    raise OutputExistsError(f"sweep folder {str(folder)!r}: holds {what}; pass --overwrite to "
+                            f"replace its table or --out for another folder")
 
 
 def _sweep_folder(out) -> Path:
@@ -267,10 +295,12 @@ class _SweepRun:
         self.executed = self.done = 0
 
     def _digest(self, case: Case) -> str:
+        """The case's config digest; every case is checked here, before the first run."""
         try:
             return config_digest(case_config(self.spec.base_config, case.params, self.spec.fixed))
-        except ConfigError:               # the worker reports it as the case's failure
-            return "invalid"
+        except ConfigError as exc:
+            params = ", ".join(f"{k} = {v!r}" for k, v in case.params)
+            raise ConfigError(f"{self.spec.source}: case {case.index} ({params}): {exc}") from None
 
     def load_records(self, out, overwrite: bool) -> None:
         """The finished cases of an earlier run of this sweep (resuming)."""

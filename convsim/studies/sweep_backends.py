@@ -82,6 +82,10 @@ class LocalBackend:
             return cid, exc
 
     def close(self, cancel: bool = False) -> None:
+        """End the pool; ``cancel``: drop the queued cases and stop the running ones."""
+        if cancel:
+            from convsim.pool import stop_workers
+            stop_workers(self.pool)
         self.pool.shutdown(wait=True, cancel_futures=cancel)
 
 

@@ -19,9 +19,8 @@ __all__ = ["Parameter", "LawInputs", "Law", "Modifier", "ONSET_USES"]
 #: How the linear-stability (onset) solver uses a declaration: the conductive base state
 #: has no flow, so only its profile eta0(z) = eta(T0(z), z) enters.
 ONSET_USES = {
-    "profile": "evaluated on the conductive profile T0(z) (smooth)",
+    "profile": "evaluated on the conductive profile T0(z) with no flow (strain rate 0)",
     "kinks": "evaluated on the conductive profile; the collocation splits where it switches on",
-    "inactive": "no effect at onset: it acts through the strain rate, zero in the base state",
 }
 
 
@@ -31,19 +30,25 @@ class Parameter:
 
     ``doc`` states the meaning (with the equation where it helps), ``units`` the
     nondimensional unit, ``default`` the value when the key is absent; ``ge``, ``gt``,
-    ``le`` bound the allowed values (None: no bound).
+    ``le`` bound a number (None: no bound); ``choices`` lists the words a word parameter takes.
     """
 
     name: str
     doc: str
-    default: float
+    default: float | str
     units: str = "-"
     ge: float | None = None
     gt: float | None = None
     le: float | None = None
+    choices: tuple | None = None     # a word parameter: its allowed values (default one of them)
 
     def problem(self, value: Any) -> str | None:
         """Why ``value`` is not allowed (one phrase quoting it), or None when it is."""
+        if self.choices is not None:
+            if value in self.choices:
+                return None
+            return (f"{self.name} = {value!r}: expected one of "
+                    + ", ".join(repr(c) for c in self.choices))
         if isinstance(value, bool) or not isinstance(value, (int, float)) \
                 or not math.isfinite(value):
             return f"{self.name} = {value!r}: expected a finite number"
@@ -62,9 +67,9 @@ class LawInputs:
     """What a viscosity may depend on, as arrays of one shape (broadcastable).
 
     temperature : T (dT units); z : height (layer depths, 0 bottom, 1 top);
-    strain_rate : the second invariant of the strain-rate tensor (1/(d^2/kappa)),
-    None where the caller has no flow; composition : reserved for a compositional
-    field (None today).
+    strain_rate : e_II = sqrt(e_ij e_ij / 2), the second invariant of the strain-rate
+    tensor (1/(d^2/kappa)); None means no flow (zero); composition : reserved for a
+    compositional field (None today).
     """
 
     temperature: Any

@@ -1,0 +1,293 @@
+"""The nonlinear Stokes problem of a strain-rate-dependent viscosity: Picard and Newton.
+
+With eta = eta(T, z, e_II) the discrete Stokes problem (``convsim.model.stokes``)
+
+    R(x) = A(w(x)) x - b = 0,     w(x) = weights of eta(T, z, e_II(x)),           (1)
+
+is nonlinear in the streamfunction unknowns x.  Strain rate on the staggered grid, the
+way A uses the viscosity: A's node rows are L x = psi_zz - psi_xx = 2 e_xz and its cell
+rows B x = psi_xz = e_xx (u = psi_z, w = -psi_x, so e_zz = -e_xx).  The invariant
+e_II = sqrt(e_ij e_ij / 2) = sqrt(e_xx^2 + e_xz^2) needs both parts at one place:
+
+    at the nodes: e_xz from L x (0 on free-slip walls), e_xx averaged from the cells
+                  around (``Grid.cell_to_node``: mirrored at reflecting sides, wrapped
+                  when periodic, extrapolated linearly to the top and bottom rows);
+    at the cells: e_xx from B x, e_xz averaged from the four corners.
+
+Iterations, from a guess x_0 (the previous step's flow):
+
+- Picard: x_{k+1} solves A(w(x_k)) x = b (linear convergence); each solve goes through
+  the lagged factor (the old factor preconditions CG; refactored when CG needs more
+  than a few iterations), so it costs little once the viscosity settles.
+- Newton: J(x_k) dx = -R(x_k), J v = A(w) v + A(dw/dx v) x (the exact directional
+  derivative: dw/dx v from de_II = (e_xx de_xx + e_xz de_xz)/e_II and deta/de_II by a
+  central difference of the law, elementwise), solved by GMRES preconditioned with the
+  current factor of a Picard matrix; a backtracking line search on ||R|| makes each step
+  lower the residual.  The 'newton' method takes Picard steps until the relative
+  residual is below ``NEWTON_SWITCH`` and Newton steps after (Newton-Picard).
+
+Convergence: ||R(x)|| <= rtol ||b||; rtol should stay above the linear solver's own
+tolerance (1e-10 for the lagged-factor CG), where Picard steps stop moving x.  Deterministic throughout, so a restarted run
+repeats the uninterrupted one bit for bit.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+import scipy.sparse.linalg as sla
+
+from convsim.model.choices import NONLINEAR_METHODS
+from convsim.model.linsolve import SolveReport
+from convsim.model.stokes import StokesOperator
+
+__all__ = ["METHODS", "NonlinearReport", "LaggedLinear", "strain_rate_invariants",
+           "solve_nonlinear"]
+
+log = logging.getLogger(__name__)
+
+METHODS = NONLINEAR_METHODS
+NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton steps
+LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
+DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
+
+
+@dataclass
+class NonlinearReport:
+    """What one nonlinear Stokes solve did."""
+
+    iterations: int = 0                 # Picard and Newton steps taken
+    residual: float = 0.0               # ||R(x)|| / ||b|| at the end
+    converged: bool = True
+    newton_steps: int = 0
+    linear_iterations: int = 0          # CG (Picard) and GMRES (Newton) iterations, summed
+    refactored: bool = False
+    factor_seconds: float = 0.0
+    history: list = field(default_factory=list)   # relative residual before each step
+
+    def solve_report(self) -> SolveReport:
+        """The linear solver's report, with the nonlinear iterations and residual."""
+        return SolveReport(iterations=self.linear_iterations, refactored=self.refactored,
+                           factor_seconds=self.factor_seconds,
+                           nonlinear_iterations=self.iterations,
+                           nonlinear_residual=self.residual, residual=self.residual)
+
+
+class LaggedLinear:
+    """The linear solves of the iteration through a ``LaggedFactorSolver`` (factor reused
+    as a CG preconditioner while it pays)."""
+
+    def __init__(self, op: StokesOperator, lagged):
+        self.op, self.lagged = op, lagged
+
+    def solve(self, weights, b, x0):
+        return self.lagged.solve(self.op.matrix_from_weights(weights), b, x0, weights)
+
+    def precondition(self, r):
+        return self.lagged.factorizer.solve(r)
+
+    def ensure_factor(self, weights):
+        if self.lagged.factored_weights is None:
+            self.lagged.refactor(self.op.matrix_from_weights(weights), weights)
+
+
+def _strain_parts(op: StokesOperator, x: np.ndarray):
+    """(e_xx, e_xz) at the nodes and at the cells, each linear in x."""
+    shear, stretch = op.strain_parts(x)
+    exz_node = 0.5 * shear
+    exx_node = op.grid.cell_to_node(stretch)
+    exz_cell = 0.125 * (shear[1:, 1:] + shear[1:, :-1] + shear[:-1, 1:] + shear[:-1, :-1])
+    return (exx_node, exz_node), (stretch, exz_cell)
+
+
+def strain_rate_invariants(op: StokesOperator, psi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """e_II = sqrt(e_xx^2 + e_xz^2) of the streamfunction psi (nz + 1, nx + 1).
+
+    Returns the invariant at the nodes (nz + 1, nx + 1) and at the cells (nz, nx), in
+    1/(d^2/kappa) (see the module docstring for where each part is taken).
+    """
+    nodes, cells = _strain_parts(op, op.from_nodes(psi))
+    return np.hypot(*nodes), np.hypot(*cells)
+
+
+class _Residual:
+    """R(x), the weights at x and the Jacobian-vector product of equation (1)."""
+
+    def __init__(self, op: StokesOperator, viscosity: Callable, b: np.ndarray):
+        self.op, self.viscosity, self.b = op, viscosity, b
+
+    def at(self, x: np.ndarray):
+        nodes, cells = _strain_parts(self.op, x)
+        e_node, e_cell = np.hypot(*nodes), np.hypot(*cells)
+        eta_node, eta_cell = self.viscosity(e_node, e_cell)
+        weights = self.op.viscosity_weights(eta_node, eta_cell)
+        r = self.op.matrix_from_weights(weights) @ x - self.b
+        return r, weights, (nodes, cells, e_node, e_cell)
+
+    def jacobian(self, x: np.ndarray, weights: np.ndarray, parts) -> sla.LinearOperator:
+        nodes, cells, e_node, e_cell = parts
+        A = self.op.matrix_from_weights(weights)
+        slope_node, slope_cell = self._slopes(e_node, e_cell)
+
+        def change(parts_v, e, pair, slope):
+            de = np.divide(pair[0] * parts_v[0] + pair[1] * parts_v[1], e,
+                           out=np.zeros_like(e), where=e > 0.0)
+            return slope * de
+
+        def jv(v):
+            nodes_v, cells_v = _strain_parts(self.op, v)
+            dw = self.op.viscosity_weights(change(nodes_v, e_node, nodes, slope_node),
+                                           change(cells_v, e_cell, cells, slope_cell))
+            return A @ v + self.op.matrix_from_weights(dw) @ x
+
+        n = x.size
+        return sla.LinearOperator((n, n), matvec=jv)
+
+    def _slopes(self, e_node, e_cell):
+        """deta/de_II at the nodes and cells, by central differences of the law."""
+        h_n = DERIVATIVE_STEP * np.maximum(e_node, 1e-12)
+        h_c = DERIVATIVE_STEP * np.maximum(e_cell, 1e-12)
+        up_n, up_c = self.viscosity(e_node + h_n, e_cell + h_c)
+        dn_n, dn_c = self.viscosity(np.maximum(e_node - h_n, 0.0), np.maximum(e_cell - h_c, 0.0))
+        return ((up_n - dn_n) / (e_node + h_n - np.maximum(e_node - h_n, 0.0)),
+                (up_c - dn_c) / (e_cell + h_c - np.maximum(e_cell - h_c, 0.0)))
+
+
+def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report):
+    """One Newton step with a backtracking line search; returns the new x (or None)."""
+    n = x.size
+    J = problem.jacobian(x, weights, parts)
+    M = sla.LinearOperator((n, n), matvec=precondition)
+    count = [0]
+
+    def counted(_):
+        count[0] += 1
+    dx, _info = sla.gmres(J, -r, rtol=1e-4, atol=0.0, restart=30, maxiter=3, M=M,
+                          callback=counted, callback_type="pr_norm")
+    report.linear_iterations += count[0]
+    norm = np.linalg.norm(r)
+    step = 1.0
+    for _ in range(LINE_SEARCH_STEPS):
+        trial = x + step * dx
+        if np.linalg.norm(problem.at(trial)[0]) <= (1.0 - 1e-4 * step) * norm:
+            return trial
+        step *= 0.5
+    return None
+
+
+def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
+                    linear, method: str = "picard", rtol: float = 1e-6,
+                    max_iterations: int = 100) -> tuple[np.ndarray, NonlinearReport]:
+    """Solve equation (1) from x0 by Picard or Newton-Picard iteration.
+
+    Parameters
+    ----------
+    op : StokesOperator
+    viscosity : callable
+        ``(e_node, e_cell) -> (eta_node, eta_cell)``: the law at this temperature as a
+        function of the strain-rate invariant at the nodes and the cells.
+    b : ndarray
+        Right-hand side Ra dT/dx at the unknowns.
+    x0 : ndarray or None
+        Starting unknowns (the previous flow; None: no flow, and the first linear solve gets
+        no guess, exactly as a linear law's solve would).
+    linear : object
+        ``linear.solve(weights, b, x0) -> (x, SolveReport)`` solves A(weights) x = b (the
+        lagged factor); ``linear.precondition(r)`` applies its current factor, which
+        ``linear.ensure_factor(weights)`` makes exist.
+    method : {'picard', 'newton'}
+    rtol : float
+        Converged when ||R(x)|| <= rtol ||b||.
+    max_iterations : int
+
+    Returns
+    -------
+    x, NonlinearReport (``converged`` False when max_iterations ran out: the last x is
+    returned, and the caller decides).
+    """
+    problem = _Residual(op, viscosity, b)
+    report = NonlinearReport()
+    bnorm = float(np.linalg.norm(b))
+    x = np.zeros(op.n_unknowns) if x0 is None else x0
+    for _ in range(max_iterations + 1):
+        r, weights, parts = problem.at(x)
+        report.residual = float(np.linalg.norm(r)) / bnorm if bnorm > 0.0 else 0.0
+        if report.residual <= rtol or bnorm == 0.0:
+            return x, report
+        if report.iterations == max_iterations:
+            break
+        report.history.append(report.residual)
+        report.iterations += 1
+        if method == "newton" and report.residual < NEWTON_SWITCH:
+            t0 = time.perf_counter()
+            linear.ensure_factor(weights)
+            trial = _newton_step(problem, x, r, weights, parts, linear.precondition, report)
+            if trial is not None:
+                report.newton_steps += 1
+                x = trial
+                continue
+            log.debug("newton step found no descent; a Picard step instead (%.2g s)",
+                      time.perf_counter() - t0)
+        previous = x
+        x, solve = linear.solve(weights, b, None if x0 is None and report.iterations == 1 else x)
+        report.linear_iterations += solve.iterations
+        report.refactored |= solve.refactored
+        report.factor_seconds += solve.factor_seconds
+        if np.array_equal(x, previous):     # the linear solver's tolerance is reached
+            report.residual = float(np.linalg.norm(problem.at(x)[0])) / bnorm
+            break
+    report.converged = report.residual <= rtol
+    return x, report
+
+
+def linearised_flow(op: StokesOperator, viscosity_at: Callable, rhs: Callable, T: np.ndarray,
+                    x0, factorizer, rtol: float = 1e-9, max_iterations: int = 100):
+    """The flow x(T) of equation (1) and its derivative with respect to T (steady Newton).
+
+    Differentiating R(x(T), T) = 0: J dx = rhs(v) - A(dw/dT v) x, with J the Newton
+    Jacobian at the converged x (strain rate moving with x) and dw/dT v the change of the
+    weights with T at fixed strain rate (central difference of the law).  Each dx is a
+    GMRES solve preconditioned by a factor of A(w(x)) of its own (``factorizer``), apart
+    from the time stepper's, so restarts stay bit for bit.
+
+    Parameters
+    ----------
+    viscosity_at : callable
+        ``T -> ((e_node, e_cell) -> (eta_node, eta_cell))``.
+    rhs : callable
+        ``T -> Ra dT/dx`` at the unknowns (linear in T).
+
+    Returns
+    -------
+    x, ``derivative(v) -> dx``, NonlinearReport
+    """
+    from convsim.model.linsolve import LaggedFactorSolver
+    linear = LaggedLinear(op, LaggedFactorSolver(factorizer, "adaptive"))
+    b = rhs(T)
+    x, report = solve_nonlinear(op, viscosity_at(T), b, x0, linear, "newton", rtol,
+                                max_iterations)
+    problem = _Residual(op, viscosity_at(T), b)
+    _, weights, parts = problem.at(x)
+    linear.lagged.refactor(op.matrix_from_weights(weights), weights)
+    J = problem.jacobian(x, weights, parts)
+    M = sla.LinearOperator(J.shape, matvec=linear.precondition)
+    e_node, e_cell = parts[2], parts[3]
+
+    def derivative(v):
+        scale = float(np.abs(v).max())
+        if scale == 0.0:
+            return np.zeros_like(x)
+        h = 1e-5 / scale
+        up = viscosity_at(T + h * v)(e_node, e_cell)
+        dn = viscosity_at(T - h * v)(e_node, e_cell)
+        dw = op.viscosity_weights((up[0] - dn[0]) / (2 * h), (up[1] - dn[1]) / (2 * h))
+        f = rhs(v) - op.matrix_from_weights(dw) @ x
+        dx, _info = sla.gmres(J, f, x0=linear.precondition(f), rtol=1e-8, atol=0.0,
+                              restart=40, maxiter=5, M=M)
+        return dx
+
+    return x, derivative, report

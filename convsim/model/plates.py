@@ -1,0 +1,84 @@
+"""Diagnostics of a lid that can yield: pure functions of the fields.
+
+Nondimensional: velocities in kappa/d, strain rates in kappa/d^2, stresses in
+eta_ref kappa/d^2, lengths in layer depths.
+
+- Strain rate ``strain_rate_field``: e_II = sqrt(e_ij e_ij / 2) at the cell centres, as the
+  Stokes operator sees it (``convsim.model.nonlinear.strain_rate_invariants``).
+- Stress ``stress_field``: the second invariant of the deviatoric stress, 2 eta e_II.
+- Yielded region ``yielded_mask`` and its area fraction ``yielded_fraction``: cells where
+  the plastic branch is below the linear law, eta_plast < eta_lin (the yield stress is
+  reached there: 2 eta_lin e_II > sigma_y for eta* = 0).
+- Surface velocity profile ``surface_velocity``: u = dpsi/dz on the top wall at the node
+  columns (one-sided, second order; the same as ``diagnostics.surface_rms_velocity``).
+- Mobility ``mobility``: surface rms velocity / rms velocity of the layer (Tackley 2000,
+  Geochem. Geophys. Geosyst. 1, quoted from memory; the definition of the lid regime label).
+- Plateness ``plateness``: P = 1 - f80 / 0.6, with f80 the smallest fraction of the surface
+  that holds 80 % of the surface deformation sum |du/dx| dx, and 0.6 its value for
+  isoviscous convection (Tackley 2000, quoted from memory): near 1 for rigid plates with
+  narrow boundaries, near 0 or below for a smoothly deforming surface.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from convsim.model.grid import Grid
+from convsim.model.nonlinear import strain_rate_invariants
+from convsim.model.rheology import ViscosityLaw, viscosity
+from convsim.model.laws.yielding import plastic_viscosity
+from convsim.model.laws import LawInputs
+from convsim.model.stokes import StokesOperator
+
+__all__ = ["strain_rate_field", "stress_field", "yielded_mask", "yielded_fraction",
+           "surface_velocity", "mobility", "plateness", "ISOVISCOUS_F80"]
+
+ISOVISCOUS_F80 = 0.6      # f80 of isoviscous convection (Tackley 2000, quoted from memory)
+
+
+def strain_rate_field(op: StokesOperator, psi: np.ndarray) -> np.ndarray:
+    """e_II at the cell centres, shape (nz, nx)."""
+    return strain_rate_invariants(op, psi)[1]
+
+
+def stress_field(eta_cell: np.ndarray, strain_rate: np.ndarray) -> np.ndarray:
+    """sigma_II = 2 eta e_II at the cell centres."""
+    return 2.0 * eta_cell * strain_rate
+
+
+def yielded_mask(law: ViscosityLaw, T: np.ndarray, z: np.ndarray,
+                 strain_rate: np.ndarray) -> np.ndarray:
+    """Cells where eta_plast < eta_lin (all False for a law without yielding)."""
+    from convsim.model.laws import MODIFIERS
+    if not MODIFIERS["yielding"].active(law):
+        return np.zeros(np.shape(T), dtype=bool)
+    lin = viscosity(law, T, z, modifiers=False)
+    plast = plastic_viscosity(LawInputs(np.asarray(T), np.asarray(z), strain_rate), law)
+    return plast < lin
+
+
+def yielded_fraction(mask: np.ndarray) -> float:
+    """Area fraction of the yielded cells (uniform cells)."""
+    return float(np.mean(mask))
+
+
+def surface_velocity(grid: Grid, psi: np.ndarray) -> np.ndarray:
+    """u on the top wall at the node columns x_node, shape (nx + 1,)."""
+    return (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * grid.dz)
+
+
+def mobility(surface_vrms: float, vrms: float) -> float:
+    """M = surface rms velocity / rms velocity (NaN without flow)."""
+    return float(surface_vrms / vrms) if vrms > 0.0 else float("nan")
+
+
+def plateness(grid: Grid, psi: np.ndarray, share: float = 0.8) -> float:
+    """P = 1 - f80 / 0.6 of the surface velocity profile (see the module docstring)."""
+    u = surface_velocity(grid, psi)
+    deformation = np.abs(np.diff(u))                  # |du/dx| dx per surface cell
+    total = deformation.sum()
+    if total == 0.0:
+        return float("nan")
+    ordered = np.sort(deformation)[::-1]
+    cells = int(np.searchsorted(np.cumsum(ordered), share * total) + 1)
+    return 1.0 - (cells / grid.nx) / ISOVISCOUS_F80
