@@ -28,7 +28,7 @@ import convsim.model.laws as _laws   # plain-data law declarations (no numpy at 
 
 __all__ = [
     "Config", "Domain", "Physics", "Boundaries", "Viscosity", "Start", "Numerics", "Stop",
-    "Output", "Body", "load_config", "parse_config", "apply_overrides", "to_toml",
+    "Output", "Tracer", "Body", "load_config", "parse_config", "apply_overrides", "to_toml",
     "reference_markdown",
 ]
 
@@ -227,6 +227,27 @@ class Output:
 
 
 @dataclass(frozen=True)
+class Tracer:
+    """Optional passive dye: advected with the flow (TVD), no buoyancy, insulating walls."""
+
+    enabled: bool = _key("carry a passive dye", default=False)
+    kind: str = _key("starting shape: a layer between two heights, a round blob, or an "
+                     "expression in x and z", default="layer",
+                     choices=("layer", "blob", "expression"))
+    layer_bottom: float = _key("layer: dye = 1 from this height", "d", default=0.0, ge=0.0,
+                               le=1.0)
+    layer_top: float = _key("layer: dye = 1 up to this height", "d", default=0.1, ge=0.0,
+                            le=1.0)
+    blob_x: float = _key("blob: centre x", "d", default=0.5, ge=0.0, le=64.0)
+    blob_z: float = _key("blob: centre z", "d", default=0.5, ge=0.0, le=1.0)
+    blob_radius: float = _key("blob: radius", "d", default=0.1, gt=0.0, le=64.0)
+    expression: str = _key("expression: numpy expression in x, z (aspect, pi, e; sin, exp, "
+                           "tanh, where, ...), e.g. \"where(z > 0.9, 1.0, 0.0)\"", default="")
+    diffusivity: float = _key("dye diffusivity over the thermal diffusivity (0: none)", "kappa",
+                              default=0.0, ge=0.0, le=1.0e3)
+
+
+@dataclass(frozen=True)
 class Body:
     """Optional physical properties of the layer, for units in figures and `convsim rayleigh`.
 
@@ -268,6 +289,7 @@ class Config:
     numerics: Numerics = field(default_factory=Numerics)
     stop: Stop = field(default_factory=Stop)
     output: Output = field(default_factory=Output)
+    tracer: Tracer = field(default_factory=Tracer)
     body: Body | None = None
     title: str = ""
     #: the ``section.key`` names set in the file, by --set or by ``replace`` (not compared)
@@ -412,6 +434,13 @@ def _check_consistency(cfg: Config) -> None:
                           "temperature is undetermined; allowed: at least one 'temperature'")
     if cfg.start.kind == "snapshot" and not cfg.start.file:
         raise ConfigError("start.file = '': start.kind = 'snapshot' needs the path of a run file")
+    t = cfg.tracer
+    if t.enabled and t.kind == "layer" and not t.layer_top > t.layer_bottom:
+        raise ConfigError(f"tracer.layer_top = {t.layer_top!r}: must be > tracer.layer_bottom "
+                          f"= {t.layer_bottom!r}")
+    if t.enabled and t.kind == "expression" and not t.expression.strip():
+        raise ConfigError("tracer.expression = '': tracer.kind = 'expression' needs an "
+                          "expression in x and z")
     if cfg.stop.end_time == 0.0 and not cfg.stop.steady and cfg.stop.max_steps >= 10**9:
         raise ConfigError("stop: with end_time = 0 and steady = false, max_steps must be < 1e9")
 

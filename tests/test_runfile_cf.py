@@ -41,8 +41,9 @@ def test_xarray_opens_the_run_file_with_dimensions_and_coordinates(constant_run,
     np.testing.assert_array_equal(ds["z_node"], run.z_node)
     np.testing.assert_array_equal(ds["time"], run.times)
     assert ds["time"].dtype == np.float64  # nondimensional time: not decoded as dates
-    for name, (dims, _, _) in FIELDS.items():
-        assert ds[name].dims == ("time",) + dims, name
+    assert set(run.fields) == set(FIELDS) - {"dye"}        # the dye only where [tracer] is on
+    for name in run.fields:
+        assert ds[name].dims == ("time",) + FIELDS[name][0], name
     np.testing.assert_array_equal(ds["temperature"].isel(time=-1), run.fields["temperature"])
     np.testing.assert_array_equal(ds["streamfunction"].isel(time=-1),
                                   run.fields["streamfunction"])

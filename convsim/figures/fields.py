@@ -44,10 +44,12 @@ from convsim.figures.presentation import (Presentation, parameter_lines, present
 from convsim.figures.lines import (draw_profiles, draw_series, profiles_figure, run_statistics,
                                    series_figure)
 from convsim.files.runfile import RunFile, check_writable, read_run
+from convsim.model.fields import ADVECTED
 
 __all__ = ["Presentation", "presentation_for", "select_snapshot", "viscosity_varies",
            "temperature_figure", "viscosity_figure", "profiles_figure", "series_figure",
-           "summary_figure", "draw_temperature", "draw_streamlines", "draw_arrows",
+           "summary_figure", "advected_figure", "draw_advected", "draw_temperature",
+           "draw_streamlines", "draw_arrows",
            "draw_anomaly", "draw_viscosity", "draw_profiles", "draw_series", "log_ticks",
            "save_figures", "plot_run", "draw_field", "streamline_levels", "SHADINGS"]
 
@@ -216,6 +218,28 @@ def draw_anomaly(ax, run: RunFile, pres: Presentation, *, colorbar=True, shading
     return mesh
 
 
+def draw_advected(ax, run: RunFile, pres: Presentation, name: str, *, colorbar=True):
+    """An advected field other than the temperature (a dye) with streamlines; the QuadMesh.
+
+    Colour map and label come from the field's declaration (``convsim.model.fields``).
+    """
+    declaration = ADVECTED[name]
+    values = run.fields[name]
+    lo, hi = float(np.min(values)), float(np.max(values))
+    mesh = ax.pcolormesh(pres.length(run.x_node), pres.length(run.z_node), values,
+                         cmap=style.FIELD_CMAPS.get(declaration.colormap, style.DYE_CMAP),
+                         vmin=lo, vmax=hi if hi > lo else lo + 1.0, shading="flat",
+                         rasterized=True)
+    mesh.set_label(name)
+    draw_streamlines(ax, run, pres)
+    _field_axes(ax, run, pres)
+    ax.set_title(pres.time_text(run.times[run.snapshot]), loc="left")
+    if colorbar:
+        units = "" if declaration.units == "1" else f" [{declaration.units}]"
+        _colorbar(ax, mesh, f"{name}{units}")
+    return mesh
+
+
 def _colorbar(ax, mesh, label):
     """A colour bar exactly as tall as the (equal-aspect) field axes, just right of it."""
     cax = ax.inset_axes([1.04, 0.0, 0.05, 1.0])
@@ -286,6 +310,15 @@ def viscosity_figure(run: RunFile, *, pres: Presentation | None = None, shading:
     with style.context():
         fig = style.new_figure(*_field_size(run))
         draw_viscosity(fig.add_subplot(), run, pres, shading=shading)
+    return style.freeze_layout(fig)
+
+
+def advected_figure(run: RunFile, name: str, *, pres: Presentation | None = None):
+    """An advected field (a dye) with streamlines, one column wide."""
+    pres = presentation_for(run) if pres is None else pres
+    with style.context():
+        fig = style.new_figure(*_field_size(run))
+        draw_advected(fig.add_subplot(), run, pres, name)
     return style.freeze_layout(fig)
 
 
@@ -389,7 +422,8 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
     """All figures of one run file (the ``convsim plot`` command); returns the paths written.
 
     Files are ``<stem>_temperature``, ``_viscosity`` (only when the viscosity
-    varies), ``_profiles``, ``_series`` and ``_summary`` in ``out_dir`` (default:
+    varies), one per further advected field (``_dye``), ``_profiles``, ``_series``
+    and ``_summary`` in ``out_dir`` (default:
     beside the run file); when a snapshot or time is chosen the snapshot
     figures carry ``_sNNNN``.
     """
@@ -413,6 +447,8 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
     else:
         log.info("viscosity uniform (%g): no viscosity field figure",
                  run.fields["viscosity"].flat[0])
+    for name in run.advected[1:]:                # the dye and any other advected field
+        makers[f"{stem}_{name}{tag}"] = lambda name=name: advected_figure(run, name, pres=pres)
     makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres, statistics=stats)
     makers[f"{stem}_series"] = lambda: series_figure(run, pres=pres, statistics=stats)
     makers[f"{stem}_summary{tag}"] = lambda: summary_figure(run, arrows=arrows, pres=pres,

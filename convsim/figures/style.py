@@ -58,7 +58,7 @@ from matplotlib.figure import Figure
 from convsim.files.atomic import atomic_path
 
 __all__ = ["COLUMN_WIDTH", "PAGE_WIDTH", "TEMPERATURE_CMAP", "VISCOSITY_CMAP", "DIVERGING_CMAP",
-           "VISCOSITY_DECADES",
+           "VISCOSITY_DECADES", "DYE_CMAP", "FIELD_CMAPS",
            "LINE_COLORS", "LINE_STYLES", "MARKERS", "GUIDE_COLOR", "RC", "FORMATS", "context", "new_figure", "freeze_layout", "save",
            "save_file", "metadata_for", "to_rgba_array", "symmetric_limits", "figure_width",
            "light_grid", "log_label", "log_ticks"]
@@ -78,6 +78,10 @@ DIVERGING_CMAP = "cmc.vik"
 #: relative to the least viscous one hardly moves (common practice: a contrast of 1e4 or
 #: more behaves as a rigid lid), so its colour is clipped and the colour bar says so.
 VISCOSITY_DECADES = 4.0
+#: Sequential map for passive fields, a dye (Crameri's batlow).  Each advected field names its
+#: map in its declaration (``convsim.model.fields``), looked up in :data:`FIELD_CMAPS`.
+DYE_CMAP = "cmc.batlow"
+FIELD_CMAPS = {"temperature": TEMPERATURE_CMAP, "viscosity": VISCOSITY_CMAP, "dye": DYE_CMAP}
 #: Line colours, in order: blue, vermillion, bluish green, orange, reddish purple, sky blue,
 #: black from matplotlib's ``okabe_ito`` map (its yellow is left out: too light on white).
 LINE_COLORS = tuple(matplotlib.colors.to_hex(matplotlib.colormaps["okabe_ito"].colors[i])

@@ -14,6 +14,7 @@ from pathlib import Path
 from convsim.errors import SnapshotError
 from convsim.files.jsonio import plain
 from convsim.files.runfile import FIELDS, SERIES, open_run_file, read_statistics
+from convsim.model.diagnostics import DIAGNOSTICS
 
 __all__ = ["describe_run", "format_info"]
 
@@ -66,8 +67,7 @@ def describe_run(path: str | Path) -> dict:
     final = {k[len("final_"):]: v for k, v in attrs.items() if k.startswith("final_")}
     if not final and last:
         final = {"time": last.get("series_time"), "steps": last.get("series_step"),
-                 **{k: last[k] for k in ("nusselt_top", "nusselt_bottom", "vrms",
-                                         "surface_vrms", "mean_temperature") if k in last}}
+                 **{k: last[k] for k, d in DIAGNOSTICS.items() if d.of_state and k in last}}
     nx, nz = len(x_node) - 1, len(z_node) - 1
     sidecar = path.with_suffix(".xdmf")
     return {
@@ -81,7 +81,8 @@ def describe_run(path: str | Path) -> dict:
                  "dz": plain((z_node[-1] - z_node[0]) / nz)},
         "snapshots": {"count": int(len(times)), "times": plain(times), "steps": plain(steps)},
         "series": {"records": records, "first_time": first_time,
-                   "last_time": last.get("series_time"), "names": list(SERIES)},
+                   "last_time": last.get("series_time"), "names": list(SERIES),
+                   "units": {name: SERIES[name][0] for name in SERIES}},
         "fields": fields,
         "final": final,
         "settled": statistics.get("settled"),
@@ -148,8 +149,8 @@ def format_info(info: dict) -> str:
                  + (f", t = {s['first_time']:.6g} to {s['last_time']:.6g}" if s["records"] else ""))
     fin = info["final"]
     if fin:
-        keys = [k for k in ("time", "steps", "nusselt_top", "nusselt_bottom", "vrms",
-                            "surface_vrms", "mean_temperature", "message") if k in fin]
+        state_diagnostics = [k for k, d in DIAGNOSTICS.items() if d.of_state]
+        keys = [k for k in ("time", "steps", *state_diagnostics, "message") if k in fin]
         lines.append("  final       " + ", ".join(
             f"{k} = {fin[k]:.6g}" if isinstance(fin[k], float) else f"{k} = {fin[k]}"
             for k in keys))

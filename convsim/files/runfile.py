@@ -11,12 +11,14 @@ Layout (root group):
   ``time`` (one entry per snapshot, unlimited, axis T) and ``series_time`` (one entry
   per row of the diagnostic time series, unlimited, axis T: the series' own time
   coordinate, so that ``ds.nusselt_top.plot()`` draws against time);
-- snapshot fields over (time, ...): ``temperature``, ``viscosity`` (cells),
+- snapshot fields over (time, ...): every advected field of the run (``temperature``,
+  and ``dye`` where [tracer] is enabled; declared in ``convsim.model.fields.ADVECTED``,
+  named in the root attribute ``advected_fields``), ``viscosity`` (cells),
   ``streamfunction`` (corners), ``velocity_x`` (vertical faces: z, x_node),
   ``velocity_z`` (horizontal faces: z_node, x), profiles over (time, z), corner
   gradients ``q1`` .. ``q4`` and ``step`` over (time,);
 - time series over (series_time,): ``record`` (the row index), ``series_step`` and
-  every diagnostic of ``StepReport``;
+  every declared diagnostic (``convsim.model.diagnostics.DIAGNOSTICS``);
 - units: strings that udunits and pint read; nondimensional numbers have units
   ``"1"`` and name their scale in the attribute ``nondimensional_scale`` (and in
   ``comment``), e.g. ``"kappa/d"`` for a velocity; ``long_name`` says what it is;
@@ -51,14 +53,16 @@ import numpy as np
 
 from convsim.errors import DiskFullError, OutputExistsError, SnapshotError
 from convsim.files.commit import commit, fault_point, is_disk_full
+from convsim.model.diagnostics import DIAGNOSTICS
+from convsim.model.fields import ADVECTED
 
 __all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
            "check_writable", "check_output_folder", "snapshot_bytes", "RECORD_BYTES",
-           "write_statistics", "read_statistics"]
+           "stored_fields", "write_statistics", "read_statistics"]
 
-# name: (dimensions after time, units, long_name)
+# name: (dimensions after time, units, long_name); the advected fields from their declarations
 FIELDS = {
-    "temperature": (("z", "x"), "1", "temperature (T - T_top) / contrast, cell centres"),
+    **{name: (("z", "x"), d.units, d.long_name) for name, d in ADVECTED.items()},
     "viscosity": (("z", "x"), "1", "viscosity over the reference viscosity, cell centres"),
     "streamfunction": (("z_node", "x_node"), "1", "streamfunction psi (u = dpsi/dz, w = -dpsi/dx) in kappa"),
     "velocity_x": (("z", "x_node"), "1", "horizontal velocity on vertical faces, units kappa/d"),
@@ -72,19 +76,13 @@ FIELDS = {
     "step": ((), "1", "time step number of the snapshot"),
 }
 
+# the step's own columns, then every declared diagnostic (units, long_name, CF attributes)
 SERIES = {
     "series_time": ("1", "time of the record, units d^2/kappa"),
     "series_step": ("1", "time step number"),
     "dt": ("1", "time step size, units d^2/kappa"),
     "rayleigh": ("1", "Rayleigh number in force"),
-    "nusselt_top": ("1", "Nusselt number at the top"),
-    "nusselt_bottom": ("1", "Nusselt number at the bottom"),
-    "vrms": ("1", "root-mean-square velocity, units kappa/d"),
-    "surface_vrms": ("1", "rms horizontal velocity at the top, units kappa/d"),
-    "mean_temperature": ("1", "mean temperature"),
-    "energy_residual": ("1", "heat budget misfit over the top heat flow"),
-    "tendency_max": ("1", "max |dT/dt|"),
-    "stokes_iterations": ("1", "conjugate-gradient iterations of the Stokes solve"),
+    **{name: (d.units, d.long_name) for name, d in DIAGNOSTICS.items()},
 }
 
 COORDINATES = {
@@ -121,8 +119,6 @@ def cf_attributes(name: str, units: str, long_name: str) -> dict:
     return attrs
 
 
-RESTART_KEYS = ("temperature", "psi", "previous_temperature", "previous_tendency",
-                "factor_weights")
 
 
 def snapshot_bytes(nx: int, nz: int) -> int:
@@ -201,14 +197,19 @@ class RunFileWriter:
             raise SnapshotError(f"run file {str(self.path)!r}: not found")
 
     # -- creation -----------------------------------------------------------------------------
-    def create(self, grid, config_text: str, title: str, version: str) -> None:
+    def create(self, grid, config_text: str, title: str, version: str,
+               advected=("temperature",)) -> None:
         """Prepare a new file with the grid and metadata, as ``RUN.h5.part``: it replaces an
-        old file (checked before) together with the first snapshot, in one commit."""
+        old file (checked before) together with the first snapshot, in one commit.
+
+        ``advected``: names of the run's advected fields (``ADVECTED``); the others get no
+        dataset.
+        """
         if self.append:
             return
         tmp = self.path.with_name(self.path.name + ".part")
         try:
-            self._create(tmp, grid, config_text, title, version)
+            self._create(tmp, grid, config_text, title, version, advected)
             self._fresh = True
         except OSError as exc:
             tmp.unlink(missing_ok=True)
@@ -217,7 +218,7 @@ class RunFileWriter:
                                     f"written ({exc.strerror or exc})") from None
             raise SnapshotError(f"run file {str(self.path)!r}: cannot be written ({exc})") from None
 
-    def _create(self, tmp, grid, config_text, title, version):
+    def _create(self, tmp, grid, config_text, title, version, advected=("temperature",)):
         fault_point("create")
         with h5py.File(tmp, "w", locking=False) as f:
             f.attrs["Conventions"] = "CF-1.8"
@@ -230,6 +231,7 @@ class RunFileWriter:
             f.attrs["wall_seconds"] = 0.0
             f.attrs["aspect"] = grid.aspect
             f.attrs["periodic"] = int(grid.periodic)
+            f.attrs["advected_fields"] = " ".join(advected)
             for name, values in (("x", grid.x_cell), ("z", grid.z_cell), ("x_node", grid.x_node),
                                  ("z_node", grid.z_node)):
                 d = f.create_dataset(name, data=values)
@@ -247,18 +249,23 @@ class RunFileWriter:
                                  chunks=(4096,))
             self._attach(f, d, ("series_time",), "1", COORDINATES["record"])
             for name, (dims, units, long_name) in FIELDS.items():
+                if name in ADVECTED and name not in advected:
+                    continue
                 shape = tuple(len(f[d]) for d in dims)
                 d = f.create_dataset(name, shape=(0,) + shape, maxshape=(None,) + shape,
                                      dtype="i8" if name == "step" else "f8",
                                      chunks=(1,) + shape if shape else (256,))
                 self._attach(f, d, ("time",) + dims, units, long_name)
+                d.attrs.update(ADVECTED[name].cf if name in ADVECTED else {})
             for name, (units, long_name) in SERIES.items():
                 if name == "series_time":
                     continue
+                kind = DIAGNOSTICS[name].dtype if name in DIAGNOSTICS else "f8"
                 d = f.create_dataset(name, shape=(0,), maxshape=(None,),
-                                     dtype="i8" if name in ("series_step", "stokes_iterations") else "f8",
+                                     dtype="i8" if name == "series_step" else kind,
                                      chunks=(4096,))
                 self._attach(f, d, ("series_time",), units, long_name)
+                d.attrs.update(DIAGNOSTICS[name].cf if name in DIAGNOSTICS else {})
             _physical_coordinates(f, config_text)
 
     @staticmethod
@@ -283,7 +290,7 @@ class RunFileWriter:
             n = f["time"].shape[0]
             f["time"].resize((n + 1,))
             f["time"][n] = time
-            for name in FIELDS:
+            for name in stored_fields(f):
                 d = f[name]
                 d.resize((n + 1,) + d.shape[1:])
                 d[n] = fields[name]
@@ -293,7 +300,7 @@ class RunFileWriter:
                 m = f["record"].shape[0]
                 f["record"].resize((m + rows,))
                 f["record"][m:] = np.arange(m, m + rows)
-                for name in SERIES:
+                for name in (n for n in SERIES if n in f):
                     d = f[name]
                     d.resize((m + rows,))
                     d[m:] = series[name]
@@ -385,7 +392,8 @@ def _physical_coordinates(f, config_text: str) -> None:
         d.attrs.update(units="Myr", long_name=COORDINATES[name].split(",")[0])
     physical = {"time": "time_myr", "x": "x_km", "z": "z_km", "x_node": "x_node_km",
                 "z_node": "z_node_km"}
-    for name, (dims, *_) in FIELDS.items():                # CF auxiliary coordinates
+    for name in stored_fields(f):                          # CF auxiliary coordinates
+        dims = FIELDS[name][0]
         f[name].attrs["coordinates"] = " ".join(physical[d] for d in ("time",) + tuple(dims))
     for name in SERIES:
         if name != "series_time":
@@ -427,6 +435,11 @@ class RunFile:
     def config_text(self) -> str:
         return self.attrs.get("config", "")
 
+    @property
+    def advected(self) -> list[str]:
+        """Names of the run's advected fields (the temperature in files before the attribute)."""
+        return str(self.attrs.get("advected_fields", "temperature")).split()
+
 
 def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> RunFile:
     """Read a run file: metadata, the series, and the fields of one snapshot (default the last)."""
@@ -443,8 +456,8 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
             if not 0 <= index < count:
                 raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
                                     f"{count} (0 to {count - 1})")
-            fields = {name: f[name][index] for name in FIELDS}
-            series = {name: f[name][:] for name in SERIES}
+            fields = {name: f[name][index] for name in stored_fields(f)}
+            series = {name: f[name][:] for name in SERIES if name in f}
             state = {}
             if restart and "restart" in f:
                 g = f["restart"]
@@ -461,13 +474,19 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 
 
-def iter_fields(path: str | Path, names=tuple(FIELDS)):
+def stored_fields(f) -> list[str]:
+    """Names of the snapshot fields an open run file holds (``FIELDS`` order)."""
+    return [name for name in FIELDS if name in f]
+
+
+def iter_fields(path: str | Path, names=None):
     """Yield ``(index, time, {name: array})`` for every snapshot, the file opened once.
 
-    For animations and sweeps over snapshots: reads only the named fields, not the series.
+    For animations and sweeps over snapshots: reads only the named fields (default: all the
+    file holds), not the series.
     """
     path = Path(path)
-    unknown = [n for n in names if n not in FIELDS]
+    unknown = [n for n in names or () if n not in FIELDS]
     if unknown:
         raise SnapshotError(f"fields {unknown}: unknown; allowed: {', '.join(FIELDS)}")
     if not path.is_file():
@@ -475,8 +494,9 @@ def iter_fields(path: str | Path, names=tuple(FIELDS)):
     try:
         with open_run_file(path) as f:
             times = f["time"][:]
+            chosen = stored_fields(f) if names is None else list(names)
             for index, when in enumerate(times):
-                yield index, float(when), {name: f[name][index] for name in names}
+                yield index, float(when), {name: f[name][index] for name in chosen}
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 
@@ -491,7 +511,7 @@ class RunFileObserver:
         from convsim import __version__
         if not resumed:
             self.writer.create(simulation.grid, simulation.config_text, simulation.config.title,
-                               __version__)
+                               __version__, [f.name for f in simulation.model.fields])
 
     def on_step(self, report) -> None:
         pass

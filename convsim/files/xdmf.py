@@ -45,11 +45,19 @@ from convsim.errors import DiskFullError, SnapshotError
 from convsim.files.atomic import atomic_write_text
 from convsim.files.commit import fault_point, is_disk_full
 from convsim.files.runfile import check_writable, open_run_file
+from convsim.model.fields import ADVECTED
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
 
-#: Snapshot fields described in the sidecar: name -> XDMF centre.
+#: Snapshot fields described in the sidecar: name -> XDMF centre (and every advected field
+#: the run file holds, at the cells: ``convsim.model.fields.ADVECTED``).
 XDMF_FIELDS = {"temperature": "Cell", "viscosity": "Cell", "streamfunction": "Node"}
+
+
+def _described(f) -> dict:
+    """The fields of an open run file the sidecar describes: name -> centre."""
+    advected = {name: "Cell" for name in ADVECTED if name in f}
+    return {**advected, **{k: v for k, v in XDMF_FIELDS.items() if k in f}}
 
 
 def sidecar_path(run_path: str | Path) -> Path:
@@ -76,8 +84,9 @@ def xdmf_text(run_path: str | Path) -> str:
             times = f["time"][:]
             nx1, nz1 = len(f["x_node"]), len(f["z_node"])
             coord_types = {k: f[k].dtype for k in ("x_node", "z_node")}
-            shapes = {k: f[k].shape for k in XDMF_FIELDS}
-            types = {k: f[k].dtype for k in XDMF_FIELDS}
+            described = _described(f)
+            shapes = {k: f[k].shape for k in described}
+            types = {k: f[k].dtype for k in described}
             title = f.attrs.get("title", "convsim run")
             faces = {k: (f[k].shape, f[k].dtype) for k in ("velocity_x", "velocity_z")}
     except (OSError, KeyError) as exc:
@@ -98,7 +107,7 @@ def xdmf_text(run_path: str | Path) -> str:
         geometry = ET.SubElement(grid, "Geometry", GeometryType="VXVY")
         _data_item(geometry, (nx1,), f"{name}:/x_node", coord_types["x_node"])
         _data_item(geometry, (nz1,), f"{name}:/z_node", coord_types["z_node"])
-        for field, centre in XDMF_FIELDS.items():
+        for field, centre in described.items():
             shape = shapes[field]  # (time, rows, columns)
             attribute = ET.SubElement(grid, "Attribute", Name=field, AttributeType="Scalar",
                                       Center=centre)

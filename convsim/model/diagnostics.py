@@ -18,18 +18,30 @@ twenty times smaller than the three-point one-sided gradient (see DEVELOPERS.md)
 Corner gradients q1..q4 extrapolate this wall flux to the side walls.
 
 The rms velocity is vrms = sqrt(<u^2 + w^2>) over the box (area mean).
+
+Each diagnostic the run reports is declared once in ``DIAGNOSTICS`` (name, units,
+long_name, CF attributes, the function that computes it from a ``Sample``): the
+step report (``timestepping.StepReport`` has one attribute per declaration), the
+time series and its run-file variables, ``--json``, ``convsim info`` and the run
+result read that table.  A new diagnostic is one ``Diagnostic(...)`` line there.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+from typing import Callable
 
 import numpy as np
 
 from convsim.model.energy import ThermalBoundaries, boundary_heat_flux
 from convsim.model.grid import Grid
+from convsim.model.linsolve import SolveReport
 from convsim.model.stokes import face_velocities
 
 __all__ = ["wall_temperatures", "nusselt_numbers", "rms_velocity", "surface_rms_velocity",
-           "corner_gradients", "heat_content", "horizontal_mean", "heat_budget"]
+           "corner_gradients", "heat_content", "horizontal_mean", "heat_budget", "Sample",
+           "Diagnostic", "DIAGNOSTICS", "evaluate"]
 
 
 def wall_temperatures(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tuple[np.ndarray, np.ndarray]:
@@ -133,3 +145,93 @@ def heat_budget(grid: Grid, heat_rate: float, T: np.ndarray, bc: ThermalBoundari
     scale = max(abs(outflow), abs(inflow), abs(source), 1e-300)
     imbalance = inflow + source - outflow
     return (heat_rate - imbalance) / scale, imbalance / scale
+
+
+# -- the declared diagnostics -------------------------------------------------------------------
+class Sample:
+    """What a diagnostic may read: the state a step reached and, for the step's own
+    measures, the step (each shared quantity computed once, on first use).
+
+    Parameters
+    ----------
+    grid, thermal, heating : the problem (``heating`` = H).
+    T, psi : temperature (nz, nx) and streamfunction (nz + 1, nx + 1) of the state.
+    previous_T : temperature one step earlier, or None (no step: a start, a jump).
+    dt : the step's size (0: no step).
+    heat_rate : d/dt of the heat content as the time stepper computed it (0: no step).
+    solve : the step's Stokes ``SolveReport`` (iterations, residual, nonlinear iterations),
+        or None.
+    """
+
+    def __init__(self, grid: Grid, thermal: ThermalBoundaries, heating: float, T: np.ndarray,
+                 psi: np.ndarray, previous_T: np.ndarray | None = None, dt: float = 0.0,
+                 heat_rate: float = 0.0, solve=None):
+        self.grid, self.thermal, self.heating = grid, thermal, float(heating)
+        self.T, self.psi, self.previous_T = T, psi, previous_T
+        self.dt, self.heat_rate = dt, heat_rate
+        self.solve = solve if solve is not None else SolveReport()
+
+    @cached_property
+    def nusselt(self) -> tuple[float, float]:
+        return nusselt_numbers(self.grid, self.T, self.thermal)
+
+    @cached_property
+    def budget(self) -> tuple[float, float]:
+        return heat_budget(self.grid, self.heat_rate, self.T, self.thermal, self.heating)
+
+    def tendency_max(self) -> float:
+        """max |T^{n+1} - T^n| / dt (NaN without a step)."""
+        if self.previous_T is None or not self.dt > 0:
+            return float("nan")
+        return float(np.abs(self.T - self.previous_T).max() / self.dt)
+
+
+@dataclass(frozen=True)
+class Diagnostic:
+    """One scalar diagnostic, declared once.
+
+    ``of_state``: it depends on the state alone (so it is also computed for the final
+    state of a run); otherwise it measures the step that reached the state.
+    """
+
+    name: str
+    units: str
+    long_name: str
+    compute: Callable[[Sample], float]
+    of_state: bool = True
+    dtype: str = "f8"
+    cf: dict = field(default_factory=dict)
+
+
+DIAGNOSTICS = {d.name: d for d in (
+    Diagnostic("nusselt_top", "1", "Nusselt number at the top (upward wall heat flux over the "
+               "conductive one)", lambda s: s.nusselt[0]),
+    Diagnostic("nusselt_bottom", "1", "Nusselt number at the bottom", lambda s: s.nusselt[1]),
+    Diagnostic("vrms", "1", "root-mean-square velocity of the box, units kappa/d",
+               lambda s: rms_velocity(s.grid, s.psi)),
+    Diagnostic("surface_vrms", "1", "rms horizontal velocity at the top, units kappa/d",
+               lambda s: surface_rms_velocity(s.grid, s.psi)),
+    Diagnostic("mean_temperature", "1", "mean temperature of the box",
+               lambda s: float(s.T.mean())),
+    Diagnostic("heat_imbalance", "1", "bottom inflow + heating - top outflow over the largest "
+               "heat flow (0 when steady)", lambda s: s.budget[1]),
+    Diagnostic("energy_residual", "1", "heat budget misfit of the step over the largest heat "
+               "flow (round-off)", lambda s: s.budget[0], of_state=False),
+    Diagnostic("tendency_max", "1", "max |dT/dt| over the step, units dT/(d^2/kappa)",
+               Sample.tendency_max, of_state=False),
+    Diagnostic("stokes_iterations", "1", "conjugate-gradient iterations of the Stokes solve",
+               lambda s: int(s.solve.iterations), of_state=False, dtype="i8"),
+    Diagnostic("stokes_residual", "1", "relative residual ||b - A psi|| / ||b|| of the Stokes "
+               "solve", lambda s: float(s.solve.residual), of_state=False),
+    Diagnostic("nonlinear_iterations", "1", "Picard/Newton steps of a strain-rate law's Stokes "
+               "iteration (0: linear law)", lambda s: int(s.solve.nonlinear_iterations),
+               of_state=False, dtype="i8"),
+    Diagnostic("nonlinear_residual", "1", "final ||R|| / ||b|| of that iteration",
+               lambda s: float(s.solve.nonlinear_residual), of_state=False),
+)}
+
+
+def evaluate(sample: Sample, state_only: bool = False) -> dict:
+    """{name: value} of every declared diagnostic (of the state alone if ``state_only``)."""
+    return {name: d.compute(sample) for name, d in DIAGNOSTICS.items()
+            if d.of_state or not state_only}

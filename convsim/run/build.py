@@ -8,13 +8,16 @@ the viscosity law and the ``Model`` (with its Stokes back end and stepper).
 from __future__ import annotations
 
 from convsim.config import Config
+from convsim.errors import ConfigError
+from convsim.model import dye
+from convsim.model.fields import dye_field
 from convsim.model.energy import ThermalBoundaries
 from convsim.model.grid import Grid
 from convsim.model.rheology import ViscosityLaw
 from convsim.model.timestepping import Model
 from convsim.run import layer
 
-__all__ = ["build_model", "build_grid", "build_thermal", "build_law"]
+__all__ = ["build_model", "build_grid", "build_thermal", "build_law", "build_tracers"]
 
 
 def build_grid(config: Config) -> Grid:
@@ -38,9 +41,30 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
     """The ``Model`` a config describes (``grid`` overrides [domain], for convergence studies)."""
     b, n = config.boundaries, config.numerics
     limiter = "upwind" if n.advection == "upwind" else n.limiter
+    grid = grid or build_grid(config)
     # Ra with the law's reference viscosity, from Ra at the stated reference (run.layer)
-    return Model(grid or build_grid(config), layer.internal_rayleigh(config),
-                 build_thermal(config), build_law(config), config.physics.internal_heating,
-                 b.top_flow, b.bottom_flow, limiter, n.time_scheme, n.cfl, n.max_dt,
-                 n.stokes_solver, n.factor_reuse, n.time_scale_fraction,
-                 (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations))
+    return Model(grid, layer.internal_rayleigh(config), build_thermal(config),
+                 build_law(config), config.physics.internal_heating, b.top_flow, b.bottom_flow,
+                 limiter, n.time_scheme, n.cfl, n.max_dt, n.stokes_solver, n.factor_reuse,
+                 n.time_scale_fraction,
+                 (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations),
+                 fields=build_tracers(config, grid))
+
+
+def build_tracers(config: Config, grid: Grid) -> tuple:
+    """The dye's declaration from [tracer] (none when it is not enabled); an expression is
+    checked and tried on the grid here, so a bad one is a config error naming the key."""
+    t = config.tracer
+    if not t.enabled:
+        return ()
+    if t.kind == "layer":
+        start = dye.layer(t.layer_bottom, t.layer_top)
+    elif t.kind == "blob":
+        start = dye.blob(t.blob_x, t.blob_z, t.blob_radius)
+    else:
+        try:
+            start = dye.expression(t.expression)
+            start(grid)
+        except ValueError as exc:
+            raise ConfigError(f"tracer.expression = {t.expression!r}: {exc}") from None
+    return (dye_field(t.diffusivity, start),)

@@ -66,8 +66,7 @@ class Continuation:
                  self.rayleigh, state.step, self.rayleighs[self.stage + 1])
         self.stage += 1
         model = self.model(base)
-        psi = model.solve_flow(state.temperature, state.psi)[0]
-        return model, fresh_state(model, state, state.temperature, psi)
+        return model, fresh_state(model, state)
 
     def restart_state(self) -> dict:
         return dict(stage=self.stage)

@@ -150,8 +150,7 @@ class Simulation:
             for part in p.parts():
                 part.restore(resume.state)
             p.model = p.continuation.model(self.model)
-            p.state = state_from_record(resume.state)
-            p.model.restore_factor(p.state.factor_weights)
+            p.state = state_from_record(p.model, resume.state)
             p.last_snapshot_step = p.state.step
         return p
 

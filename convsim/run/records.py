@@ -16,9 +16,9 @@ from convsim.model.grid import Grid
 __all__ = ["SnapshotData", "Observer", "ResumePoint", "RunResult", "Series", "SERIES_COLUMNS",
            "snapshot_fields", "final_result"]
 
-SERIES_COLUMNS = ("series_time", "series_step", "dt", "rayleigh", "nusselt_top", "nusselt_bottom",
-                  "vrms", "surface_vrms", "mean_temperature", "energy_residual", "tendency_max",
-                  "stokes_iterations")
+#: The step's own columns, then one per declared diagnostic (``model.diagnostics.DIAGNOSTICS``).
+STEP_COLUMNS = ("series_time", "series_step", "dt", "rayleigh")
+SERIES_COLUMNS = STEP_COLUMNS + tuple(diag.DIAGNOSTICS)
 
 
 @dataclass
@@ -79,6 +79,7 @@ class RunResult:
     settled: str = "unfinished"                      # steady | statistically-steady | unfinished
     lid: dict = field(default_factory=dict)          # stagnant-lid diagnostics and regime
     heat_balance: dict = field(default_factory=dict)  # <Nu_top> - <Nu_bottom> - H / dT
+    diagnostics: dict = field(default_factory=dict)   # every declared diagnostic of the state
     rayleigh_numbers: dict = field(default_factory=dict)   # Ra at top, bottom, interior
     scales: object = None          # convsim.units.Scales of the config's [body], or None
     physical: dict | None = None   # the answers in physical units (convsim.units)
@@ -95,9 +96,7 @@ class RunResult:
     def summary(self) -> dict:
         """The headline numbers as a JSON-ready dict."""
         q = [float(v) for v in self.corner_gradients]
-        return dict(status=self.status, steady=self.steady, nusselt_top=self.nusselt_top,
-                    nusselt_bottom=self.nusselt_bottom, vrms=self.vrms,
-                    surface_vrms=self.surface_vrms, mean_temperature=self.mean_temperature,
+        return dict(status=self.status, steady=self.steady, **self.diagnostics,
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
                     output=self.output, message=self.message, settled=self.settled,
@@ -137,9 +136,8 @@ class Series:
     def record(self, report, rayleigh: float) -> None:
         if report.step % self.every:
             return
-        row = (report.time, report.step, report.dt, rayleigh, report.nusselt_top,
-               report.nusselt_bottom, report.vrms, report.surface_vrms, report.mean_temperature,
-               report.energy_residual, report.tendency_max, report.stokes_iterations)
+        row = (report.time, report.step, report.dt, rayleigh,
+               *(getattr(report, name) for name in diag.DIAGNOSTICS))
         self.new_rows.append(row)
         self.all_rows.append(row)
 
@@ -161,7 +159,7 @@ def snapshot_fields(model, state) -> dict:
     eta_c = model.viscosities(state.temperature, state.psi)[1]
     u, w = face_velocities(grid, state.psi)
     q = diag.corner_gradients(grid, state.temperature, model.thermal)
-    return dict(temperature=state.temperature, viscosity=eta_c, streamfunction=state.psi,
+    return dict(state.fields, viscosity=eta_c, streamfunction=state.psi,
                 velocity_x=u, velocity_z=w,
                 temperature_profile=diag.horizontal_mean(state.temperature),
                 viscosity_profile=diag.horizontal_mean(eta_c),
@@ -171,14 +169,13 @@ def snapshot_fields(model, state) -> dict:
 def final_result(model, state, decision, wall: float, series: dict, phase: dict) -> RunResult:
     """The ``RunResult`` of a run that ended in ``state`` for the reason ``decision``."""
     grid = model.grid
-    nu_top, nu_bottom = diag.nusselt_numbers(grid, state.temperature, model.thermal)
+    values = model.diagnostics(state)
     return RunResult(
         status=decision.status, message=decision.message, time=state.time, steps=state.step,
-        wall_seconds=wall, nusselt_top=nu_top, nusselt_bottom=nu_bottom,
-        vrms=diag.rms_velocity(grid, state.psi),
-        surface_vrms=diag.surface_rms_velocity(grid, state.psi),
-        mean_temperature=float(state.temperature.mean()),
+        wall_seconds=wall, nusselt_top=values["nusselt_top"],
+        nusselt_bottom=values["nusselt_bottom"], vrms=values["vrms"],
+        surface_vrms=values["surface_vrms"], mean_temperature=values["mean_temperature"],
         corner_gradients=diag.corner_gradients(grid, state.temperature, model.thermal),
         temperature=state.temperature, psi=state.psi,
         viscosity=model.viscosities(state.temperature, state.psi)[1], grid=grid, series=series,
-        phase_seconds=phase)
+        phase_seconds=phase, diagnostics=values)

@@ -1,40 +1,35 @@
 """The model state as the flat record a run file's ``restart`` group holds, and back.
 
-The one place that knows which parts of ``ModelState`` a restart needs, so a new
-piece of state is added here once.  Records hold arrays and plain numbers; None
-(no SBDF2 history yet) is left out by the writer and reads back as None.
+The model owns the layout (``convsim.model.state``: every advected field with its
+SBDF2 history, the flow, and the Stokes solver's cache as opaque ``solver_*``
+keys); the controller goes through these three functions.  Records hold arrays
+and plain numbers; None (no SBDF2 history yet) is left out by the writer and
+reads back as missing.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from convsim.model.timestepping import ModelState
+from convsim.model.state import ModelState, to_record
 
 __all__ = ["state_record", "state_from_record", "fresh_state"]
 
 
 def state_record(state: ModelState) -> dict:
     """What of ``state`` a bit-for-bit restart needs, as a flat dict."""
-    return dict(temperature=state.temperature, psi=state.psi,
-                previous_temperature=state.previous_temperature,
-                previous_tendency=state.previous_tendency,
-                factor_weights=state.factor_weights, time=state.time, step=state.step,
-                previous_dt=state.previous_dt)
+    return to_record(state)
 
 
-def state_from_record(record: dict) -> ModelState:
-    """The ``ModelState`` saved by ``state_record`` (as read back from a run file)."""
-    return ModelState(time=float(record["time"]), step=int(record["step"]),
-                      temperature=np.array(record["temperature"]), psi=np.array(record["psi"]),
-                      previous_temperature=record.get("previous_temperature"),
-                      previous_tendency=record.get("previous_tendency"),
-                      previous_dt=float(record["previous_dt"]),
-                      factor_weights=record.get("factor_weights"))
+def state_from_record(model, record: dict) -> ModelState:
+    """The ``ModelState`` saved by ``state_record``, with the model's Stokes solver cache
+    rebuilt from it (so the continued run repeats the uninterrupted one bit for bit)."""
+    return model.resume(record)
 
 
-def fresh_state(model, state: ModelState, temperature: np.ndarray, psi: np.ndarray) -> ModelState:
-    """A state at the time and step of ``state`` with new fields and no SBDF2 history
-    (after a jump: a Newton finish or a new continuation stage)."""
-    return ModelState(time=state.time, step=state.step, temperature=temperature, psi=psi,
-                      factor_weights=model.factor_weights)
+def fresh_state(model, state: ModelState, temperature: np.ndarray | None = None,
+                psi: np.ndarray | None = None) -> ModelState:
+    """A state at the time and step of ``state`` with no SBDF2 history (after a jump: a
+    Newton finish or a new continuation stage); the other advected fields carried over,
+    the flow re-solved unless given."""
+    return model.jump(state, temperature, psi)

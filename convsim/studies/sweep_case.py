@@ -136,10 +136,9 @@ def _result_columns(cfg: Config, result) -> dict:
     law = ViscosityLaw.from_table(cfg.viscosity)
     eta = np.asarray(result.viscosity)
     return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
-                nusselt_top=float(result.nusselt_top), nusselt_bottom=float(result.nusselt_bottom),
-                vrms=float(result.vrms), surface_vrms=float(result.surface_vrms),
+                **{k: float(v) for k, v in result.diagnostics.items()},
                 interior_vrms=interior_rms_velocity(result.grid, result.psi),
-                mean_temperature=float(result.mean_temperature), steps=int(result.steps),
+                steps=int(result.steps),
                 time=float(result.time), wall_seconds=float(result.wall_seconds),
                 viscosity_contrast=law_viscosity_contrast(law, t_low, t_high),
                 viscosity_contrast_field=float(eta.max() / eta.min()))

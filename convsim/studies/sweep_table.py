@@ -30,6 +30,7 @@ import numpy as np
 from convsim.errors import ConfigError, SnapshotError
 from convsim.files.atomic import atomic_path
 from convsim.files.jsonio import write_json
+from convsim.model.diagnostics import DIAGNOSTICS
 
 __all__ = ["COLUMNS", "FAILED", "write_record", "read_record",
            "table_columns", "write_table", "read_table"]
@@ -49,12 +50,10 @@ COLUMNS = {
     "viscosity_law": ("s", "1", "viscosity law"),
     "viscosity_contrast": ("f", "1", "max/min of the viscosity law over the box's T and z range"),
     "viscosity_contrast_field": ("f", "1", "max/min of the final viscosity field"),
-    "nusselt_top": ("f", "1", "final Nusselt number at the top"),
-    "nusselt_bottom": ("f", "1", "final Nusselt number at the bottom"),
-    "vrms": ("f", "1", "final rms velocity of the whole box, units kappa/d"),
-    "surface_vrms": ("f", "1", "final rms horizontal velocity at the top, units kappa/d"),
+    # every declared diagnostic of the final state (model.diagnostics.DIAGNOSTICS)
+    **{name: ("f", d.units, f"final {d.long_name}") for name, d in DIAGNOSTICS.items()
+       if d.of_state},
     "interior_vrms": ("f", "1", "final rms velocity of the interior band, units kappa/d"),
-    "mean_temperature": ("f", "1", "final mean temperature"),
     "settled": ("s", "1", "steady, statistically-steady or unfinished (README: time means)"),
     "regime": ("s", "1", "mobile, sluggish, stagnant-lid, conductive or unclassified"),
     "from_time": ("f", "1", "start of the averaging window (end of the spin-up), units d^2/kappa"),

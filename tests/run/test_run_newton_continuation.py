@@ -55,7 +55,7 @@ def test_continuation_stages_and_the_flow_at_the_new_rayleigh_number():
     assert model2.rayleigh == 3e3 and stages.stage == 1
     # the Stokes problem is linear in Ra: the streamfunction scales with it (constant viscosity)
     np.testing.assert_allclose(state2.psi, 3.0 * state.psi, rtol=1e-12, atol=1e-12)
-    assert state2.previous_temperature is None
+    assert state2.previous is None
     again = Continuation.from_config(cfg)
     again.restore(stages.restart_state())
     assert again.rayleigh == 3e3
