@@ -187,7 +187,7 @@ class Numerics:
 
 @dataclass(frozen=True)
 class Stop:
-    """When a run ends: the first of end time, step limit, or steady state."""
+    """When a run ends: the first of end time, step limit, steady state, or mean precision."""
 
     end_time: float = _key("nondimensional end time (0: none)", "d^2/kappa", default=0.0, ge=0.0,
                            le=1.0e6)
@@ -209,6 +209,9 @@ class Stop:
     newton_decay: float = _key(
         "also try Newton once max|dT/dt| has decayed to this fraction of its peak in the "
         "stage (0: off)", default=0.1, ge=0.0, lt=1.0)
+    mean_precision: float = _key(
+        "stop when the time means of Nu at top and bottom are known to this relative 95 % "
+        "half-width, after the spin-up (0: off)", default=0.0, ge=0.0, le=1.0)
 
 
 @dataclass(frozen=True)

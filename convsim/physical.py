@@ -79,8 +79,9 @@ def physical_quantities(values: dict, scales: Scales, boundaries=None) -> dict:
               "temperature": lambda d: d * scales.temperature_contrast,
               "heat_flow": scales.heat_flux_to_mw_m2}         # half-widths: linear parts only
     stats = values.get("statistics") or {}
-    if values.get("settled") in (None, "steady"):
-        stats = {}                      # a steady run: its final values are the answer
+    if values.get("settled") != "statistically-steady":
+        stats = {}                      # steady: its final values are the answer; unfinished:
+                                        # its means are not yet settled, so neither are answers
 
     def entry(kind, value, doc, half=None, start=None):
         out = {"value": float(convert[kind](value)), "units": PHYSICAL_UNITS[kind], "doc": doc}

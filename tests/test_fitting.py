@@ -99,13 +99,13 @@ def test_regimes_by_mobility_and_contrast():
     interior = [192.1, 100.0, 100.0, 100.0, 0.0, 1.0]
     contrast = [1.0, 1e2, 1e5, 10.0, 1e5, 1e5]
     regimes, ratio = classify_regimes(surface, interior, contrast)
-    assert list(regimes) == ["mobile", "transitional", "stagnant", "transitional",
+    assert list(regimes) == ["mobile", "sluggish", "stagnant-lid", "sluggish",
                              "unclassified", "unclassified"]
     assert ratio[0] == pytest.approx(213.6 / 192.1)
     # thresholds are parameters
     strict = RegimeThresholds(mobile_ratio=1.2, stagnant_ratio=0.3, stagnant_contrast=50.0)
     regimes, _ = classify_regimes(surface, interior, contrast, strict)
-    assert list(regimes[:4]) == ["transitional", "stagnant", "stagnant", "transitional"]
+    assert list(regimes[:4]) == ["sluggish", "stagnant-lid", "stagnant-lid", "sluggish"]
     # below onset (Nu = 1) there is no lid to classify
     regimes, _ = classify_regimes([1e-3, 50.0], [1e-3, 40.0], [1e3, 1e3], nusselt=[1.0, 5.0])
     assert list(regimes) == ["conductive", "mobile"]
@@ -121,7 +121,7 @@ def _published_table():
             # Blankenbach et al. (1989) Table 9 vrms (quoted from memory): 42.864947, 193.21454,
             # 833.98977
             "vrms": np.array([42.864947, 193.21454, 833.98977, np.nan]),
-            "surface_vrms": np.array([1.0, 1.0, 1.0, np.nan]),
+            "surface_vrms": np.array([40.0, 200.0, 800.0, np.nan]),
             "interior_vrms": np.array([1.0, 1.0, 1.0, np.nan]),
             "viscosity_contrast": np.array([1.0, 1.0, 1.0, 1.0])}
 
@@ -162,3 +162,60 @@ def test_fit_command_writes_report_and_figures(tmp_path, capsys):
     assert main(["fit", str(path), "--overwrite", "--y", "nusselt_top"]) == 0
     assert main(["fit", str(path), "--x", "ra"]) == 2
     assert "--x = 'ra'" in capsys.readouterr().err
+
+
+# -- time means, weights, conductive rows, stagnant-lid theory ---------------------------------
+def _means_table():
+    """Nu = 0.3 Ra^0.3 at five Rayleigh numbers, plus an outlier (twice the law) whose wide
+    interval says it is poorly known, and a conductive row (Nu = 1)."""
+    ra = np.array([1e4, 3e4, 1e5, 3e5, 1e6, 2e5, 1e3])
+    nu = 0.3 * ra ** 0.3 * np.array([1.0, 1.01, 0.99, 1.0, 1.005, 2.0, 1.0])
+    nu[-1] = 1.0
+    ci = np.array([0.01, 0.01, 0.02, 0.02, 0.03, 5.0, 0.0]) * nu
+    n = ra.size
+    return {"case_id": np.array([f"c{i}" for i in range(n)], dtype=object),
+            "status": np.array(["mean-precision"] * 5 + ["end-time", "steady"], dtype=object),
+            "settled": np.array(["statistically-steady"] * 6 + ["steady"], dtype=object),
+            "rayleigh": ra, "nusselt_top_mean": nu, "nusselt_top_ci95": ci, "nusselt_top": nu,
+            "surface_vrms_mean": np.full(n, 50.0), "vrms_mean": np.full(n, 40.0),
+            "surface_vrms": np.full(n, 50.0), "vrms": np.full(n, 40.0),
+            "viscosity_contrast": np.ones(n)}
+
+
+def test_fit_weights_each_mean_by_its_interval_and_leaves_conductive_rows_out():
+    table = _means_table()
+    report = fit_report(table, ys=("nusselt_top",))
+    (entry,) = report["fits"]
+    assert entry["column"] == "nusselt_top_mean" and entry["fit"]["weighted"]
+    assert [x["case_id"] for x in report["excluded"]] == ["c6"]
+    assert "c6" not in entry["case_ids"] and len(entry["case_ids"]) == 6
+    # the same weighted least squares by numpy (sigma of ln y: ci / (1.96 y) with the floor)
+    used = np.arange(6)
+    sigma = np.hypot(table["nusselt_top_ci95"][used] / (1.96 * table["nusselt_top_mean"][used]),
+                     1e-3)
+    beta, _ = np.polyfit(np.log(table["rayleigh"][used]),
+                         np.log(table["nusselt_top_mean"][used]), 1, w=1.0 / sigma)
+    assert entry["fit"]["exponent"] == pytest.approx(beta, rel=1e-8)
+    assert entry["fit"]["exponent"] == pytest.approx(0.3, abs=0.01)   # the outlier hardly counts
+    unweighted = np.polyfit(np.log(table["rayleigh"][used]),
+                            np.log(table["nusselt_top_mean"][used]), 1)[0]
+    assert abs(unweighted - 0.3) > 0.03
+
+
+def test_stagnant_lid_fit_is_compared_with_the_one_third_law():
+    # Nu = 0.5 theta^(-4/3) Ra_i^(1/3) (Solomatov & Moresi 2000, quoted from memory), with
+    # small deterministic scatter; the fit must recover 1/3 and say it lies in its interval
+    ra_i = np.array([1e5, 3e5, 1e6, 3e6, 1e7])
+    theta = np.array([9.2, 11.5, 13.8, 9.2, 13.8])
+    nu = 0.5 * theta ** (-4.0 / 3.0) * ra_i ** (1.0 / 3.0) * np.array([1, 1.01, 0.99, 1.005, 1])
+    n = ra_i.size
+    table = {"case_id": np.array([f"s{i}" for i in range(n)], dtype=object),
+             "status": np.array(["steady"] * n, dtype=object),
+             "settled": np.array(["steady"] * n, dtype=object),
+             "rayleigh": ra_i / 10, "nusselt_top": nu, "surface_vrms": np.full(n, 0.1),
+             "vrms": np.full(n, 100.0), "viscosity_contrast": np.exp(theta),
+             "rayleigh_interior": ra_i, "rheological_temperature_scale": 1.0 / theta}
+    lid = fit_report(table, ys=("nusselt_top",))["stagnant_lid"]
+    assert lid["case_ids"] == list(table["case_id"])
+    assert lid["fit"]["exponent"] == pytest.approx(1.0 / 3.0, abs=0.01)
+    assert lid["theory_within_interval"] and lid["fit"]["prefactor"] == pytest.approx(0.5, rel=0.1)

@@ -78,7 +78,7 @@ BUILDERS = {
         excluded=([1e7], [30.0])),
     "regime map": lambda onset: figures_sweep.regime_map_plot(
         [1e4, 1e5, 1e6, 1e5], [1.0, 1e3, 1e5, 10.0],
-        ["mobile", "transitional", "stagnant", "unclassified"], thresholds_text="M >= 0.6"),
+        ["mobile", "sluggish", "stagnant-lid", "unclassified"], thresholds_text="M >= 0.6"),
 }
 
 

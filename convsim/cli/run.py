@@ -63,6 +63,41 @@ def _add_run(p):
     p.set_defaults(handler=_run)
 
 
+_STAT_LABELS = (("nusselt_top", "Nu top"), ("nusselt_bottom", "Nu bottom"), ("vrms", "vrms"),
+                ("surface_vrms", "surface vrms"), ("interior_temperature", "interior T"),
+                ("lid_thickness", "lid thickness"))
+
+
+def _g(value, digits: int = 5) -> str:
+    """A number to ``digits`` significant digits; None (NaN or inf in JSON) as 'n/a'."""
+    return "n/a" if value is None else f"{value:.{digits}g}"
+
+
+def statistics_lines(summary: dict) -> list[str]:
+    """The time means, the settled word and the lid diagnostics of a summary, as text lines."""
+    stats, lid = summary.get("statistics") or {}, summary.get("lid") or {}
+    if not stats:
+        return []
+    first = next(iter(stats.values()))
+    lines = [f"{summary.get('settled')}: means from t = {_g(first['from_time'], 6)} "
+             f"(+- 95 % half-width)"]
+    parts = [f"{label} {_g(stats[k]['mean'])} +- {_g(stats[k]['ci95'], 2)}"
+             for k, label in _STAT_LABELS if k in stats]
+    lines += ["  " + "  ".join(parts[:3]), "  " + "  ".join(parts[3:])]
+    hb = summary.get("heat_balance") or {}
+    if hb.get("gap") is not None:
+        lines.append(f"  Nu top - Nu bottom - H = {_g(hb['gap'], 3)} +- {_g(hb['ci95'], 2)} "
+                     f"({'agree' if hb['agree'] else 'do not agree'} within the intervals)")
+    if lid:
+        ups = ", ".join(_g(x, 3) for x in lid.get("upwellings", []))
+        lines.append(f"regime {lid['regime']}: mobility {_g(lid['mobility'], 3)}, viscosity "
+                     f"contrast {_g(lid['viscosity_contrast'], 3)} (across the lid "
+                     f"{_g(lid['lid_viscosity_contrast'], 3)}), dT_rh "
+                     f"{_g(lid['rheological_temperature_scale'], 3)}, {lid['cells']} cell(s), "
+                     f"upwellings at x = {ups or 'none'}")
+    return lines
+
+
 def _run(args):
     from pathlib import Path
     from convsim import api
@@ -101,6 +136,8 @@ def _run(args):
               f"time {result.time:.6g}  wall {result.wall_seconds:.2f} s")
         for line in physical_lines(result.physical):
             print("  " + line)
+        for line in statistics_lines(summary):
+            print(f"  {line}")
         print(f"  run file {result.output}")
     if result.status == "diverged":
         print(f"convsim: run diverged: {result.message}; the last good state is in "

@@ -84,23 +84,27 @@ def _add_fit(p):
     p.add_argument("--x", default="rayleigh", help="column of x (default: rayleigh)")
     p.add_argument("--y", default="nusselt_top,vrms",
                    help="column(s) of y, comma-separated (default: nusselt_top,vrms)")
-    p.add_argument("--status", default="steady",
-                   help="statuses of the rows to fit, comma-separated, or 'all' (default: steady)")
+    p.add_argument("--status", default="all",
+                   help="statuses of the rows to fit, comma-separated, or 'all' (default: all)")
+    p.add_argument("--settled", default="steady,statistically-steady",
+                   help="settled words of the rows to fit, comma-separated, or 'all' "
+                        "(default: steady,statistically-steady)")
     p.add_argument("--group", metavar="COLUMN", help="fit separately for each value of COLUMN")
     p.add_argument("--confidence", type=float, default=0.95,
                    help="confidence of the intervals (default: 0.95)")
     p.add_argument("--mobile-ratio", type=float, default=0.6,
-                   help="mobility v_surface/v_interior at or above which a lid is mobile "
+                   help="mobility M = v_surface/v_rms at or above which a lid is mobile "
                         "(default: 0.6)")
     p.add_argument("--stagnant-ratio", type=float, default=0.1,
-                   help="mobility below which a lid is stagnant, given the contrast "
+                   help="mobility below which a lid is a stagnant lid, given the contrast "
                         "(default: 0.1)")
     p.add_argument("--stagnant-contrast", type=float, default=1.0e3,
                    help="viscosity contrast a stagnant lid needs at least (default: 1e3)")
     p.add_argument("--conductive-nusselt", type=float, default=1.01,
                    help="Nusselt number below which a case counts as conductive (default: 1.01)")
-    p.add_argument("--interior-column", default="interior_vrms",
-                   help="the interior velocity: interior_vrms (default) or vrms (whole box)")
+    p.add_argument("--interior-column", default="vrms",
+                   help="the velocity M divides by: vrms (whole layer, Tackley 2000; default) "
+                        "or interior_vrms (the band 0.2 <= z <= 0.8)")
     p.add_argument("--contrast-column", default="viscosity_contrast",
                    help="viscosity_contrast (of the law, default) or viscosity_contrast_field")
     p.add_argument("--out", help="folder of fit.json, regimes.csv and the figures "
@@ -131,7 +135,9 @@ def _run_fit(args) -> int:
         s.strip() for s in args.status.split(",") if s.strip())
     thresholds = RegimeThresholds(args.mobile_ratio, args.stagnant_ratio, args.stagnant_contrast,
                                   args.conductive_nusselt)
-    report = fit_report(table, args.x, ys, statuses=statuses, group=args.group,
+    settled = None if args.settled.strip() == "all" else tuple(
+        s.strip() for s in args.settled.split(",") if s.strip())
+    report = fit_report(table, args.x, ys, statuses=statuses, settled=settled, group=args.group,
                         confidence=args.confidence, thresholds=thresholds,
                         interior=args.interior_column, contrast=args.contrast_column)
     out = Path(args.out) if args.out else Path(args.table).parent / "fit"
@@ -184,12 +190,9 @@ def _draw_regimes(rows: list, out, thresholds, contrast_column: str) -> None:
     from convsim.figures import sweep as figures_sweep
     if figures_sweep.varies([r["viscosity_contrast"] for r in rows]):  # isoviscous: no map
         figures_sweep.regime_map_figure(
-            out / "regime_map.png", [r["rayleigh"] for r in rows],
+            out / "regime_map.png", [r["rayleigh_bottom"] for r in rows],
             [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
-            thresholds_text=(f"mobile: M >= {thresholds.mobile_ratio:g}; stagnant: M < "
-                             f"{thresholds.stagnant_ratio:g} and contrast >= "
-                             f"{thresholds.stagnant_contrast:g}; conductive: Nu < "
-                             f"{thresholds.conductive_nusselt:g}"),
+            thresholds_text=thresholds.text(), x_label="Rayleigh number at the bottom wall",
             y_label=f"viscosity contrast ({contrast_column})")
     with atomic_path(out / "regimes.csv") as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
         writer = csv.DictWriter(fh, fieldnames=list(rows[0]) if rows else ["case_id"])
@@ -214,6 +217,18 @@ def _print_fits(report: dict, out) -> None:
                      f"line through {f['n']} points, intervals are not available)")
         print(f"{e['y']} = a {e['x']}^beta{where}: {intervals}"
               + (f"; boundary-layer theory {ref:.4f}" if ref else ""))
+    for x in report.get("excluded", []):
+        print(f"excluded {x['case_id']}: {x['reason']}")
+    lid = report.get("stagnant_lid") or {}
+    if "fit" in lid:
+        f = lid["fit"]
+        lo, hi = f["exponent_interval"]
+        print(f"stagnant lid: Nu theta^(4/3) = a Ra_i^beta: beta = {f['exponent']:.4f} "
+              f"[{lo:.4f}, {hi:.4f}] (n = {f['n']}); theory {lid['equation']}, beta = 1/3 "
+              f"{'inside' if lid['theory_within_interval'] else 'outside'} the interval "
+              f"({lid['source']})")
+    elif lid:
+        print(f"stagnant lid: {lid.get('error')}")
     counts: dict = {}
     for r in report["regimes"]:
         counts[r["regime"]] = counts.get(r["regime"], 0) + 1

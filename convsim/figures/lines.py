@@ -95,7 +95,10 @@ def draw_profiles(ax_t, ax_2, run: RunFile, pres: Presentation, config=None, sta
         ax.set_ylim(pres.length(run.z_node[0]), pres.length(run.z_node[-1]))
         ax.grid(True, linewidth=0.3, color="0.85")
     ax_2.tick_params(labelleft=False)
-    stats = run_statistics(run) if statistics is None else statistics
+    if statistics is None:          # the mean profile of an unfinished run is still moving
+        settled = (getattr(run, "statistics", None) or {}).get("settled")
+        statistics = run_statistics(run) if settled == "statistically-steady" else {}
+    stats = statistics
     ax_t.set_title("horizontal means at " + pres.time_text(run.times[run.snapshot])
                    + ("; dashed: time means" if _draw_mean_profiles(ax_t, ax_2, run, pres, stats)
                       else ""), loc="left")

@@ -192,6 +192,22 @@ def _final(run: RunFile, key: str):
     return value
 
 
+def _statistics_lines(run: RunFile, num) -> list[tuple[str, str]]:
+    """The settled word, the mean Nu with its interval and the lid regime (finished runs)."""
+    stats = getattr(run, "statistics", None) or {}
+    if not stats.get("statistics"):
+        return []
+    top = stats["statistics"].get("nusselt_top", {})
+    lid = stats.get("lid", {})
+    out = [("settled", f"{stats.get('settled')}; mean Nu top {num(top.get('mean'), '.5g')} "
+                       f"+- {num(top.get('ci95'), '.2g')} from t = {num(top.get('from_time'), '.4g')}")]
+    if lid:
+        out.append(("lid", f"{lid.get('regime')}, mobility {num(lid.get('mobility'), '.3g')}, "
+                           f"thickness {num(lid.get('lid_thickness'), '.3g')}, "
+                           f"{lid.get('cells')} cell(s)"))
+    return out
+
+
 def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple[str, str]]:
     """The run's key parameters as (name, value) text pairs for the summary sheet."""
     cfg = run_config(run) if config is None else config
@@ -233,6 +249,7 @@ def parameter_lines(run: RunFile, pres: Presentation, config=None) -> list[tuple
         ("snapshot shown", f"{run.snapshot} of {len(run.times)}, "
                            f"{pres.time_text(run.times[run.snapshot])}"),
     ]
+    lines += _statistics_lines(run, num)
     if pres.physical:
         sc = pres.scales
         lines += [

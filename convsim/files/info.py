@@ -13,7 +13,7 @@ from pathlib import Path
 
 from convsim.errors import SnapshotError
 from convsim.files.jsonio import plain
-from convsim.files.runfile import FIELDS, SERIES, open_run_file
+from convsim.files.runfile import FIELDS, SERIES, open_run_file, read_statistics
 from convsim.model.diagnostics import DIAGNOSTICS
 
 __all__ = ["describe_run", "format_info"]
@@ -38,10 +38,11 @@ def _read(path: Path):
             records = int(f["series_time"].shape[0])
             last = {name: plain(f[name][-1]) for name in SERIES if records and name in f}
             first_time = plain(f["series_time"][0]) if records else None
+            statistics = read_statistics(f)
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
                             f"({exc})") from None
-    return attrs, x_node, z_node, times, steps, fields, records, last, first_time
+    return attrs, x_node, z_node, times, steps, fields, records, last, first_time, statistics
 
 
 def describe_run(path: str | Path) -> dict:
@@ -56,12 +57,16 @@ def describe_run(path: str | Path) -> dict:
         (count, times, steps), ``series`` (records, first_time, last_time, names),
         ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
         ``final_*`` attributes, or the last series row while the run is not
-        finished), ``physical`` (with a [body] table: the final numbers in physical units,
-        ``{name: {"value", "units", "doc"}}``, see ``convsim.physical.physical_quantities``;
-        else None) and ``config`` (the stored TOML as a nested dict).
+        finished), ``settled``, ``statistics`` (per quantity mean, ci95, from_time),
+        ``lid`` and ``heat_balance`` (empty for an unfinished run; see
+        ``runfile.write_statistics``), ``physical`` (with a [body] table: the final numbers in
+        physical units, ``{name: {"value", "units", "doc"}}``, see
+        ``convsim.physical.physical_quantities``; else None) and ``config`` (the stored TOML as
+        a nested dict).
     """
     path = Path(path)
-    attrs, x_node, z_node, times, steps, fields, records, last, first_time = _read(path)
+    attrs, x_node, z_node, times, steps, fields, records, last, first_time, statistics = \
+        _read(path)
     try:
         config = tomllib.loads(attrs.get("config", ""))
     except tomllib.TOMLDecodeError:
@@ -87,7 +92,13 @@ def describe_run(path: str | Path) -> dict:
                    "units": {name: SERIES[name][0] for name in SERIES}},
         "fields": fields,
         "final": final,
-        "physical": _physical(final, config),
+        "settled": statistics.get("settled"),
+        "statistics": {k: {p: plain(v) for p, v in e.items()}
+                       for k, e in statistics.get("statistics", {}).items()},
+        "lid": {k: plain(v) for k, v in statistics.get("lid", {}).items()},
+        "heat_balance": {k: plain(v) for k, v in statistics.get("heat_balance", {}).items()},
+        "physical": _physical(dict(final, settled=statistics.get("settled"),
+                                   statistics=statistics.get("statistics")), config),
         "config": config,
     }
 
@@ -112,6 +123,10 @@ def _short(values, keep=4):
     if len(text) > 2 * keep:
         text = text[:keep] + [f"... ({len(values) - 2 * keep} more) ..."] + text[-keep:]
     return ", ".join(text)
+
+
+def _num(value, digits: int = 6) -> str:
+    return f"{value:.{digits}g}" if isinstance(value, (int, float)) else str(value)
 
 
 def format_info(info: dict) -> str:
@@ -147,6 +162,18 @@ def format_info(info: dict) -> str:
         lines.append("  final       " + ", ".join(
             f"{k} = {fin[k]:.6g}" if isinstance(fin[k], float) else f"{k} = {fin[k]}"
             for k in keys))
+    stats = info.get("statistics") or {}
+    scalars = [(k, e) for k, e in stats.items() if not isinstance(e.get("mean"), list)]
+    if scalars:
+        lines.append(f"  settled     {info.get('settled')}: time means from t = "
+                     f"{scalars[0][1]['from_time']:.6g}, +- 95 % half-width")
+        for k, e in scalars:
+            lines.append(f"              {k} = {_num(e['mean'])} +- {_num(e['ci95'], 2)}")
+    lid = info.get("lid") or {}
+    if lid:
+        lines.append(f"  lid         regime {lid.get('regime')}, mobility {_num(lid.get('mobility'))}, "
+                     f"thickness {_num(lid.get('lid_thickness'))}, T_i "
+                     f"{_num(lid.get('interior_temperature'))}, {lid.get('cells')} cell(s)")
     physical = info.get("physical") or {}
     if physical:
         rows = list(physical.items())

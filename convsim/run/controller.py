@@ -32,6 +32,7 @@ from convsim.config import Config, to_toml
 from convsim.model.grid import Grid
 from convsim.model.timestepping import Model, ModelState, StepFailed
 from convsim.run import layer
+from convsim.run.averages import RunAverages, finish_statistics, step_quantities, wall_contrast
 from convsim.run.build import build_model
 from convsim.run.continuation import Continuation
 from convsim.run.initial import initial_temperature
@@ -60,14 +61,15 @@ class RunProgress:
     newton: NewtonFinish | None
     schedule: SnapshotSchedule
     series: Series
+    averages: RunAverages
     wall0: float
     phase: dict
     last_snapshot_step: int = -1
 
     def parts(self) -> list:
         """The objects that keep restart state."""
-        return [p for p in (self.continuation, self.schedule, self.newton, *self.rules)
-                if p is not None]
+        return [p for p in (self.continuation, self.schedule, self.newton, self.averages,
+                            *self.rules) if p is not None]
 
 
 class Simulation:
@@ -119,6 +121,7 @@ class Simulation:
         result = final_result(p.model, p.state, decision, time.perf_counter() - p.wall0,
                               Series.columns(p.series.all_rows), p.phase)
         result.rayleigh_numbers = layer.rayleigh_numbers(self.config)
+        finish_statistics(result, p.averages, p.model, p.state, self.config.stop.steady_tolerance)
         if decision.status == "diverged":
             log.warning("run diverged: %s; the last good state is kept", decision.message)
         self._emit("on_finish", result)
@@ -134,8 +137,13 @@ class Simulation:
                         rules=rules_from_config(cfg.stop), newton=newton,
                         schedule=SnapshotSchedule(cfg.output.snapshot_interval,
                                                   cfg.output.snapshot_steps),
-                        series=Series(cfg.output.series_every), wall0=time.perf_counter(),
+                        series=Series(cfg.output.series_every),
+                        averages=RunAverages(self.grid.nz, self.model.internal_heating,
+                                             wall_contrast(self.model)),
+                        wall0=time.perf_counter(),
                         phase=dict(advect=0.0, diffuse=0.0, stokes=0.0, factor=0.0, diagnose=0.0))
+        for rule in p.rules:
+            rule.watch(p.averages)
         if resume is None:
             p.model = p.continuation.model(self.model)
             p.state = p.model.initial_state(self.temperature0)
@@ -200,6 +208,8 @@ class Simulation:
         for k, v in report.seconds.items():
             p.phase[k] = p.phase.get(k, 0.0) + v
         p.series.record(report, p.model.rayleigh)
+        p.averages.record(new.time, lambda: step_quantities(
+            self.grid, new.temperature, new.psi, p.model.viscosities(new.temperature)[1], report))
         self._emit("on_step", report)
         return report, None
 
@@ -209,8 +219,10 @@ class Simulation:
 
     @staticmethod
     def _jump(p: RunProgress, state: ModelState) -> None:
-        """The state jumped (Newton finish, new stage): rules forget their history."""
+        """The state jumped (Newton finish, new stage): rules and time means forget their
+        history."""
         p.state = state
+        p.averages.clear()
         for rule in p.rules:
             rule.reset()
 

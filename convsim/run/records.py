@@ -57,7 +57,7 @@ class ResumePoint:
 class RunResult:
     """What a run produced: status, final diagnostics and fields."""
 
-    status: str                   # steady | end-time | step-limit | diverged | interrupted
+    status: str                   # one of run.stops.run_statuses()
     message: str
     time: float
     steps: int
@@ -75,6 +75,10 @@ class RunResult:
     series: dict = field(default_factory=dict)
     phase_seconds: dict = field(default_factory=dict)
     output: str | None = None
+    statistics: dict = field(default_factory=dict)   # quantity -> mean, ci95, from_time, ...
+    settled: str = "unfinished"                      # steady | statistically-steady | unfinished
+    lid: dict = field(default_factory=dict)          # stagnant-lid diagnostics and regime
+    heat_balance: dict = field(default_factory=dict)  # <Nu_top> - <Nu_bottom> - H / dT
     diagnostics: dict = field(default_factory=dict)   # every declared diagnostic of the state
     rayleigh_numbers: dict = field(default_factory=dict)   # Ra at top, bottom, interior
     scales: object = None          # convsim.units.Scales of the config's [body], or None
@@ -95,9 +99,26 @@ class RunResult:
         return dict(status=self.status, steady=self.steady, **self.diagnostics,
                     q1=q[0], q2=q[1], q3=q[2], q4=q[3], time=self.time, steps=self.steps,
                     wall_seconds=self.wall_seconds, nx=self.grid.nx, nz=self.grid.nz,
-                    output=self.output, message=self.message,
+                    output=self.output, message=self.message, settled=self.settled,
+                    regime=self.lid.get("regime"), statistics=_finite(self.statistics),
+                    lid=_finite(self.lid), heat_balance=_finite(self.heat_balance),
                     **{f"rayleigh_{k}": v for k, v in self.rayleigh_numbers.items()},
                     **({"physical": self.physical} if self.physical else {}))
+
+
+def _finite(value):
+    """Nested dicts and lists with NaN and inf as None (JSON has neither)."""
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if isinstance(value, (float, np.floating)):
+        return float(value) if np.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
 
 
 class Series:

@@ -27,7 +27,8 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["Decision", "StopRule", "RULES", "register", "rules_from_config", "run_statuses",
-           "EndTime", "StepLimit", "SteadyState", "Interrupted", "runaway", "SETTLE_STEPS"]
+           "EndTime", "StepLimit", "SteadyState", "MeanPrecision", "Interrupted", "runaway",
+           "SETTLE_STEPS"]
 
 SETTLE_STEPS = 20
 TIME_ROUNDING = 1e-12      # relative: a time this close to a target has reached it
@@ -68,6 +69,9 @@ class StopRule:
     def reached(self, state) -> Decision | None:
         """The decision when a restored run has met this rule already (no step taken then)."""
         return None
+
+    def watch(self, averages) -> None:
+        """Receive the run's time means (``run.averages.RunAverages``), for rules that read them."""
 
 
 RULES: list = []
@@ -140,6 +144,34 @@ class SteadyState(StopRule):
             return Decision(self.status, f"already steady at step {state.step} before this "
                                          f"restart; nothing to do", ends_stage=True)
         return None
+
+
+@register
+class MeanPrecision(StopRule):
+    """Stop a statistically steady run once both Nu means are known to a relative 95 %
+    half-width ``precision`` (``stop.mean_precision``; ``RunAverages.precision_met``).
+    Checked every ``every`` steps; all its state lives in the averages, which the run
+    keeps in the restart record, so a restart takes the same decision at the same step."""
+
+    status = "mean-precision"
+
+    def __init__(self, precision: float, every: int = 100):
+        self.precision, self.every = float(precision), int(every)
+        self.averages = None
+
+    @classmethod
+    def from_config(cls, stop):
+        return cls(stop.mean_precision) if stop.mean_precision > 0 else None
+
+    def watch(self, averages) -> None:
+        self.averages = averages
+
+    def observe(self, report) -> Decision | None:
+        if (self.averages is None or report.step % self.every
+                or not self.averages.precision_met(self.precision)):
+            return None
+        return Decision(self.status, f"mean Nu known to {100 * self.precision:g} % (95 %) at "
+                                     f"step {report.step}")
 
 
 @register

@@ -10,6 +10,7 @@ velocity of the interior band and the viscosity contrast of the case.
 from __future__ import annotations
 
 import hashlib
+import math
 import logging
 import os
 import socket
@@ -22,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from convsim.config import Config, parse_config, to_dict, to_toml
+from convsim.model.lid import law_viscosity_contrast
 from convsim.studies.sweep_table import FAILED
 
 __all__ = ["CaseTask", "run_case", "case_config", "config_digest", "interior_rms_velocity",
@@ -60,18 +62,6 @@ def interior_rms_velocity(grid, psi: np.ndarray, band=INTERIOR_BAND) -> float:
     if not rows.any():
         return float("nan")
     return float(np.sqrt(np.mean(u[rows] ** 2 + w[rows] ** 2)))
-
-
-def law_viscosity_contrast(law, t_low: float, t_high: float, samples: int = 65) -> float:
-    """max / min of eta(T, z) over t_low <= T <= t_high, 0 <= z <= 1 (sampled, corners included).
-
-    Rounded to 12 significant digits, so that a contrast of 1e3 set in the config is
-    1000.0 here and not 999.9999999999998 (thresholds compare against it).
-    """
-    from convsim.model.rheology import viscosity
-    T, z = np.meshgrid(np.linspace(t_low, t_high, samples), np.linspace(0.0, 1.0, samples))
-    eta = viscosity(law, T, z)
-    return float(f"{eta.max() / eta.min():.12g}")
 
 
 @dataclass(frozen=True)
@@ -145,10 +135,46 @@ def _result_columns(cfg: Config, result) -> dict:
         t_low, t_high = float(result.temperature.min()), float(result.temperature.max())
     law = ViscosityLaw.from_table(cfg.viscosity)
     eta = np.asarray(result.viscosity)
-    return dict(status=result.status, message=result.message,
+    return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
                 **{k: float(v) for k, v in result.diagnostics.items()},
                 interior_vrms=interior_rms_velocity(result.grid, result.psi),
                 steps=int(result.steps),
                 time=float(result.time), wall_seconds=float(result.wall_seconds),
                 viscosity_contrast=law_viscosity_contrast(law, t_low, t_high),
                 viscosity_contrast_field=float(eta.max() / eta.min()))
+
+
+#: time-averaged quantities of a run that get ``<q>_mean`` and ``<q>_ci95`` columns
+MEAN_QUANTITIES = ("nusselt_top", "nusselt_bottom", "vrms", "surface_vrms",
+                   "interior_temperature", "lid_thickness")
+LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contrast", "cells")
+
+
+def _statistics_columns(result, law, boundaries) -> dict:
+    """Time means, intervals, settled word, regime and lid diagnostics as table columns.
+
+    ``rayleigh_bottom`` and ``rayleigh_interior`` restate the run's Rayleigh number
+    (defined with eta = 1) with the viscosity at the bottom wall (its temperature,
+    z = 0) and at the time-mean interior temperature (z = 1/2): Ra / eta there.
+    """
+    stats, lid = result.statistics or {}, result.lid or {}
+    out = {"settled": result.settled, "regime": lid.get("regime", "")}
+    for q in MEAN_QUANTITIES:
+        est = stats.get(q, {})
+        out[f"{q}_mean"] = _float(est.get("mean"))
+        out[f"{q}_ci95"] = _float(est.get("ci95"))
+    out["from_time"] = _float(stats.get("nusselt_top", {}).get("from_time"))
+    for key in LID_COLUMNS:
+        out[key] = _float(lid.get(key)) if key != "cells" else int(lid.get(key, -1))
+    ra = float(result.series["rayleigh"][-1]) if len(result.series.get("rayleigh", ())) else \
+        math.nan
+    t_bottom = boundaries.bottom_value if boundaries.bottom_heat == "temperature" else \
+        float(result.temperature[0].mean())
+    out["rayleigh_bottom"] = ra / float(law(t_bottom, 0.0))
+    t_i = out["interior_temperature_mean"]
+    out["rayleigh_interior"] = ra / float(law(t_i, 0.5)) if math.isfinite(t_i) else math.nan
+    return out
+
+
+def _float(value) -> float:
+    return math.nan if value is None else float(value)

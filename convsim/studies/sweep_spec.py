@@ -150,8 +150,9 @@ def _flatten(table: dict, prefix: str = "") -> dict:
     return out
 
 
-def _parse_axes(raw_axes, fixed: dict, source: str) -> list:
-    """The [[axis]] tables: a config key each (not also in [fixed], not twice) and its values."""
+def _parse_axes(raw_axes, fixed: dict, source: str, repeats: bool = False) -> list:
+    """The [[axis]] tables: a config key each (not also in [fixed], not twice) and its values
+    (a value twice only with ``repeats``: zipped axes, whose cases must still differ)."""
     if not isinstance(raw_axes, list) or not raw_axes:
         raise ConfigError(f"{source}: expected at least one [[axis]] table")
     axes = []
@@ -167,7 +168,7 @@ def _parse_axes(raw_axes, fixed: dict, source: str) -> list:
         if any(a.key == key for a in axes):
             raise ConfigError(f"{where}.key = {key!r}: used by two axes")
         values = _axis_values(raw, field, where)
-        if len({json.dumps(v, sort_keys=True) for v in values}) != len(values):
+        if not repeats and len({json.dumps(v, sort_keys=True) for v in values}) != len(values):
             raise ConfigError(f"{where}.values = {list(values)!r}: repeated values")
         axes.append(Axis(key, values))
     return axes
@@ -221,7 +222,7 @@ def parse_sweep(data: dict, *, folder: str | Path = ".", source: str = "sweep") 
     fixed = _flatten(fixed_raw)
     for key in fixed:
         _config_field(key, "fixed key")
-    axes = _parse_axes(data.get("axis", []), fixed, source)
+    axes = _parse_axes(data.get("axis", []), fixed, source, repeats=(combine == "zip"))
     if combine == "zip" and len({len(a.values) for a in axes}) > 1:
         raise ConfigError(f"{source}: combine = 'zip' needs axes of equal length, got "
                           + ", ".join(f"{a.key}: {len(a.values)}" for a in axes))

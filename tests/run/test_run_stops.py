@@ -110,5 +110,6 @@ def test_a_new_rule_is_one_registered_class(monkeypatch):
 
 
 def test_every_status_is_declared_once_by_its_rule():
-    assert stops.run_statuses() == ("steady", "end-time", "step-limit", "interrupted", "diverged")
+    assert stops.run_statuses() == ("steady", "mean-precision", "end-time", "step-limit",
+                                    "interrupted", "diverged")
     assert all(cls.status for cls in stops.RULES)

@@ -1,0 +1,221 @@
+"""Stagnant-lid diagnostics and the lid regime of one run: pure functions over arrays.
+
+Nondimensional throughout: heights z in layer depths d (z = 1 the surface),
+temperatures in units of the contrast dT, velocities in kappa / d, viscosity over
+the reference viscosity.
+
+- Horizontal velocity profile: U(z) = rms over x of u(x, z) on the vertical faces
+  (``horizontal_velocity_profile``).
+- Lid thickness (``lid_thickness``): the definition of Moresi & Solomatov (1995,
+  Phys. Fluids 7, 2154-2162) used again by Solomatov & Moresi (2000, JGR 105,
+  21795-21817) (quoted from memory): the base of the lid is the depth where the
+  tangent to U(z), taken at the steepest point of the decrease of U between its
+  maximum in the upper half of the layer and the surface, crosses U = 0.
+  delta_lid = 1 - z_0; 0 where U has its maximum at the surface (a mobile lid).
+- Interior temperature T_i (``interior_temperature``): mean of the horizontally
+  averaged temperature over the cells with 0.2 <= z <= min(0.8, 1 - delta_lid)
+  (below the lid, above the bottom boundary layer; our choice, common practice).
+- Rheological temperature scale (``rheological_temperature_scale``):
+  dT_rh = -1 / (d ln eta / dT) at T_i and mid-depth; 1 / ln(thermal_contrast) for
+  Frank-Kamenetskii, (T_i + T0)^2 / E for Arrhenius (Solomatov 1995, Phys. Fluids
+  7, 266-274, quoted from memory).
+- Surface mobility (``surface_mobility``): M = v_surface,rms / v_rms, the surface
+  rms velocity over the rms velocity of the whole layer, the definition of
+  Tackley (2000, Geochem. Geophys. Geosyst. 1, 2000GC000036; quoted from memory).
+- Viscosity contrast across the lid (``lid_viscosity_contrast``): horizontally
+  averaged viscosity of the top cell row over its mean in the interior band.
+- Convection cells (``convection_cells``): the vertical velocity at mid-depth
+  w(x, 1/2) changes sign once between two neighbouring cells (and once per cell
+  around a periodic box); the upwellings are where w(x, 1/2) peaks in each
+  rising segment.  Sign changes of segments weaker than 10 % of max |w| are
+  ignored (noise).
+- Regime (``regime``), from M and the viscosity contrast of the law over the
+  layer's temperature range Delta eta (``law_viscosity_contrast``):
+  ``conductive`` when Nu < 1.01 (no convection to classify); ``mobile`` when
+  M >= 0.6; ``stagnant-lid`` when M < 0.1 and Delta eta >= 1e3; ``sluggish``
+  between them; ``unclassified`` where M is undefined.  The contrast bound
+  follows Solomatov (1995) and Moresi & Solomatov (1995), who find the
+  stagnant-lid regime above contrasts of about 1e3 to 1e4 (quoted from
+  memory); the mobility bounds are our choice, after common practice (a
+  stagnant lid moves at a few per cent of the interior or less).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from convsim.errors import ConfigError
+from convsim.model.grid import Grid
+from convsim.model.stokes import face_velocities
+
+__all__ = ["REGIMES", "RegimeThresholds", "regime", "horizontal_velocity_profile",
+           "lid_thickness", "interior_temperature", "rheological_temperature_scale",
+           "surface_mobility", "lid_viscosity_contrast", "convection_cells",
+           "law_viscosity_contrast", "INTERIOR_BAND"]
+
+REGIMES = ("mobile", "sluggish", "stagnant-lid", "conductive", "unclassified")
+INTERIOR_BAND = (0.2, 0.8)
+
+
+@dataclass(frozen=True)
+class RegimeThresholds:
+    """Bounds of the regime rule (module doc): mobility M = v_surface / v_rms (``*_ratio``),
+    viscosity contrast, conductive Nu."""
+
+    mobile_ratio: float = 0.6
+    stagnant_ratio: float = 0.1
+    stagnant_contrast: float = 1.0e3
+    conductive_nusselt: float = 1.01
+
+    def __post_init__(self):
+        for name in ("mobile_ratio", "stagnant_ratio", "stagnant_contrast",
+                     "conductive_nusselt"):
+            value = getattr(self, name)
+            if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
+                raise ConfigError(f"{name} = {value!r}: expected a positive number")
+        if self.stagnant_ratio > self.mobile_ratio:
+            raise ConfigError(f"stagnant_ratio = {self.stagnant_ratio!r}: must not exceed "
+                              f"mobile_ratio = {self.mobile_ratio!r}")
+
+    def text(self) -> str:
+        """The rule in one line, for reports and figures."""
+        return (f"mobile: M >= {self.mobile_ratio:g}; stagnant-lid: M < "
+                f"{self.stagnant_ratio:g} and contrast >= {self.stagnant_contrast:g}; "
+                f"sluggish: between; conductive: Nu < {self.conductive_nusselt:g}")
+
+
+def regime(mobility, viscosity_contrast, nusselt=None,
+           thresholds: RegimeThresholds = RegimeThresholds()) -> np.ndarray:
+    """Regime word of each case (module doc), broadcast over the inputs; object array of str."""
+    m = np.atleast_1d(np.asarray(mobility, float))
+    dc = np.atleast_1d(np.asarray(viscosity_contrast, float))
+    m, dc = np.broadcast_arrays(m, dc)
+    ok = np.isfinite(m) & (m >= 0)
+    out = np.full(m.shape, "unclassified", dtype=object)
+    out[ok] = "sluggish"
+    out[ok & (m >= thresholds.mobile_ratio)] = "mobile"
+    out[ok & (m < thresholds.stagnant_ratio) & (dc >= thresholds.stagnant_contrast)] = \
+        "stagnant-lid"
+    if nusselt is not None:
+        nu = np.broadcast_to(np.atleast_1d(np.asarray(nusselt, float)), m.shape)
+        out[np.isfinite(nu) & (nu < thresholds.conductive_nusselt)] = "conductive"
+    return out
+
+
+def horizontal_velocity_profile(grid: Grid, psi: np.ndarray) -> np.ndarray:
+    """U(z): rms over x of the horizontal velocity at each cell-centre height, (nz,).
+
+    u lives on the vertical faces; the side faces count half (reflecting walls) and
+    the repeated periodic face not at all.
+    """
+    u, _ = face_velocities(grid, psi)
+    wx = np.ones(grid.nx + 1)
+    if grid.periodic:
+        wx[-1] = 0.0
+    else:
+        wx[[0, -1]] = 0.5
+    return np.sqrt((u * u) @ wx / wx.sum())
+
+
+def lid_thickness(z: np.ndarray, profile: np.ndarray) -> float:
+    """Lid thickness from the horizontal velocity profile U(z) (module doc), in layer depths.
+
+    Parameters
+    ----------
+    z : (nz,) increasing heights of the profile values
+    profile : (nz,) U(z) >= 0
+    """
+    z, u = np.asarray(z, float), np.asarray(profile, float)
+    upper = z >= 0.5
+    if not np.any(upper) or not np.all(np.isfinite(u)):
+        return math.nan
+    iu = np.flatnonzero(upper)
+    top = iu[np.argmax(u[upper])]
+    if top >= z.size - 1 or u[top] <= 0.0:
+        return 0.0
+    slopes = np.diff(u[top:]) / np.diff(z[top:])          # between neighbouring heights
+    k = int(np.argmin(slopes))
+    if slopes[k] >= 0.0:
+        return 0.0
+    zs = 0.5 * (z[top + k] + z[top + k + 1])
+    us = 0.5 * (u[top + k] + u[top + k + 1])
+    z0 = zs - us / slopes[k]
+    return float(np.clip(1.0 - z0, 0.0, 1.0 - z[top]))
+
+
+def _interior_rows(z: np.ndarray, lid: float) -> np.ndarray:
+    hi = min(INTERIOR_BAND[1], 1.0 - lid) if np.isfinite(lid) else INTERIOR_BAND[1]
+    rows = (z >= INTERIOR_BAND[0]) & (z <= hi)
+    if not rows.any():
+        rows = np.abs(z - 0.5) == np.min(np.abs(z - 0.5))
+    return rows
+
+
+def interior_temperature(z: np.ndarray, temperature_profile: np.ndarray,
+                         lid: float = 0.0) -> float:
+    """T_i: mean of the horizontally averaged temperature in the interior band (module doc)."""
+    z = np.asarray(z, float)
+    return float(np.mean(np.asarray(temperature_profile, float)[_interior_rows(z, lid)]))
+
+
+def lid_viscosity_contrast(z: np.ndarray, viscosity_profile: np.ndarray,
+                           lid: float = 0.0) -> float:
+    """Horizontally averaged viscosity of the top row over its interior mean (module doc)."""
+    z, eta = np.asarray(z, float), np.asarray(viscosity_profile, float)
+    return float(eta[np.argmax(z)] / np.mean(eta[_interior_rows(z, lid)]))
+
+
+def rheological_temperature_scale(law, temperature: float, z: float = 0.5) -> float:
+    """dT_rh = -1 / (d ln eta / dT) at (temperature, z), in units of dT; inf for constant eta.
+
+    ``law(T, z) -> eta`` (a ``ViscosityLaw`` or any callable); the derivative is a
+    central difference with step 1e-4 dT.
+    """
+    h = 1e-4
+    lo, hi = float(law(temperature - h, z)), float(law(temperature + h, z))
+    slope = (math.log(hi) - math.log(lo)) / (2.0 * h)
+    return math.inf if slope == 0.0 else -1.0 / slope
+
+
+def surface_mobility(surface_vrms: float, vrms: float) -> float:
+    """M = v_surface,rms / v_rms (Tackley 2000); NaN where v_rms is not positive."""
+    return float(surface_vrms / vrms) if vrms > 0 and np.isfinite(vrms) else math.nan
+
+
+def convection_cells(grid: Grid, psi: np.ndarray, floor: float = 0.1) -> tuple[int, np.ndarray]:
+    """(number of cells, x of the upwellings) from w(x, 1/2) (module doc).
+
+    w on the horizontal faces is interpolated to mid-depth; segments with
+    |w| < floor * max|w| are ignored.  No flow gives (0, empty).
+    """
+    _, w = face_velocities(grid, psi)
+    zf = grid.z_node
+    wm = np.array([np.interp(0.5, zf, w[:, i]) for i in range(grid.nx)])
+    peak = np.max(np.abs(wm)) if wm.size else 0.0
+    if not np.isfinite(peak) or peak == 0.0:
+        return 0, np.zeros(0)
+    strong = np.flatnonzero(np.abs(wm) >= floor * peak)
+    signs = np.sign(wm[strong])
+    starts = np.concatenate([[0], np.flatnonzero(np.diff(signs) != 0) + 1])
+    segments = [strong[s:e] for s, e in zip(starts, np.append(starts[1:], strong.size))]
+    if grid.periodic and len(segments) > 1 and signs[0] == signs[-1]:
+        segments[0] = np.concatenate([segments.pop(), segments[0]])
+    cells = len(segments) - 1 if not grid.periodic else (len(segments) if len(segments) > 1 else 0)
+    x = grid.x_cell
+    ups = np.array(sorted(float(x[seg[np.argmax(wm[seg])]]) for seg in segments
+                          if wm[seg[0]] > 0))
+    return int(cells), ups
+
+
+def law_viscosity_contrast(law, t_low: float, t_high: float, samples: int = 65) -> float:
+    """max / min of eta(T, z) over t_low <= T <= t_high, 0 <= z <= 1 (sampled, corners included).
+
+    Rounded to 12 significant digits, so that a contrast of 1e3 set in the config is
+    1000.0 here and not 999.9999999999998 (thresholds compare against it).
+    """
+    T, z = np.meshgrid(np.linspace(t_low, t_high, samples), np.linspace(0.0, 1.0, samples))
+    eta = law(T, z)
+    return float(f"{eta.max() / eta.min():.12g}")

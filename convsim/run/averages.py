@@ -1,0 +1,274 @@
+"""Time means of a run: what each step records, and what the run reports at its end.
+
+Each step offers one row to a bounded ``SeriesBuffer`` (``convsim.run.statistics``):
+the time, the scalar ``QUANTITIES`` and the horizontally averaged temperature
+and viscosity profiles.  From the buffer:
+
+- the spin-up ends at the latest MSER truncation of Nu top, Nu bottom and vrms,
+  and the series counts as settled when those pass the drift test
+  (``statistics.spin_up_time``); every quantity is averaged from that time on
+  (``from_time``), its time mean weighted by the step lengths and its 95 %
+  half-width ``ci95`` from the integrated autocorrelation time;
+- ``settled`` says how the run ended: ``steady`` (the steady-state rule fired:
+  the final state is the answer, ci95 = 0), ``statistically-steady`` (spin-up
+  over, no drift in Nu, vrms and the heat content, the Nu intervals reliable:
+  the window spans at least ``statistics.MIN_TAUS`` autocorrelation times, and
+  the heat balance below holds within the intervals), or ``unfinished``;
+- the heat balance of the means: with fixed wall temperatures (contrast dT = 1
+  nondimensional), the time mean of the energy equation over the window gives
+
+      <Nu_top> - <Nu_bottom> - H / dT = -(E(t_1) - E(t_0)) / ((t_1 - t_0) A dT)
+
+  (E the heat content, A the box width): the difference of the means minus H
+  is the (vanishing) rate of heat storage, so at statistical steady state
+  <Nu_top> = <Nu_bottom> + H, within their intervals.
+
+The mean-precision stop rule (``precision_met``) asks for a statistically
+steady series and both Nu means known to a relative half-width of ``stop.mean_precision``; the
+rule (``run.stops.MeanPrecision``) asks every 100 steps, so that it costs
+nothing per step and a restart takes the same decisions.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from convsim.model import diagnostics as diag
+from convsim.model import lid
+from convsim.run import statistics as st
+
+__all__ = ["RunAverages", "QUANTITIES", "SETTLED_WORDS", "step_quantities",
+           "run_statistics", "lid_report", "heat_balance", "finish_statistics", "wall_contrast"]
+
+#: scalar quantities averaged over time, with their long names (units: see README)
+QUANTITIES = {
+    "nusselt_top": "Nusselt number at the top",
+    "nusselt_bottom": "Nusselt number at the bottom",
+    "vrms": "rms velocity of the layer, kappa/d",
+    "surface_vrms": "rms horizontal velocity at the surface, kappa/d",
+    "mean_temperature": "mean temperature of the layer (its heat content), dT",
+    "interior_temperature": "interior temperature T_i, dT",
+    "lid_thickness": "lid thickness (velocity tangent), d",
+}
+SPIN_UP_COLUMNS = ("nusselt_top", "nusselt_bottom", "vrms", "mean_temperature")
+SETTLED_WORDS = ("steady", "statistically-steady", "unfinished")
+CAPACITY = 2048
+
+
+def step_quantities(grid, temperature, psi, eta_cells, report) -> dict:
+    """The scalar QUANTITIES and the two profiles of one state (pure function)."""
+    u_profile = lid.horizontal_velocity_profile(grid, psi)
+    z = grid.z_cell
+    thickness = lid.lid_thickness(z, u_profile)
+    t_profile = diag.horizontal_mean(temperature)
+    return dict(nusselt_top=report.nusselt_top, nusselt_bottom=report.nusselt_bottom,
+                vrms=report.vrms, surface_vrms=report.surface_vrms,
+                mean_temperature=report.mean_temperature,
+                interior_temperature=lid.interior_temperature(z, t_profile, thickness),
+                lid_thickness=thickness, temperature_profile=t_profile,
+                viscosity_profile=diag.horizontal_mean(eta_cells))
+
+
+class RunAverages:
+    """Records a run's quantities every step and turns them into time means.
+
+    Parameters
+    ----------
+    nz : int
+        Cells through the depth (length of the profiles).
+    heating, contrast : float
+        Internal heating H and wall temperature contrast dT (NaN: fixed flux, no balance
+        of the means), for the heat balance of the means.
+    """
+
+    def __init__(self, nz: int, heating: float = 0.0, contrast: float = 1.0,
+                 capacity: int = CAPACITY):
+        self.nz = int(nz)
+        self.heating, self.contrast = float(heating), float(contrast)
+        self.names = tuple(QUANTITIES)
+        self.buffer = st.SeriesBuffer(1 + len(self.names) + 2 * self.nz, capacity)
+
+    # -- recording -------------------------------------------------------------------------------
+    def record(self, time: float, quantities) -> None:
+        """Offer one step; ``quantities()`` (see ``step_quantities``) is called only when the
+        thinned buffer keeps the row."""
+        if not self.buffer.wants_next():
+            self.buffer.skip()
+            return
+        q = quantities()
+        row = np.concatenate([[time], [q[n] for n in self.names],
+                              q["temperature_profile"], q["viscosity_profile"]])
+        self.buffer.add(row)
+
+    def clear(self) -> None:
+        """Forget everything (a new continuation stage starts)."""
+        self.buffer.clear()
+
+    def restart_state(self) -> dict:
+        """Plain data for the restart group (arrays and numbers)."""
+        s = self.buffer.state()
+        return dict(averages_rows=s["rows"], averages_stride=s["stride"],
+                    averages_count=s["count"], averages_capacity=s["capacity"])
+
+    def restore(self, saved: dict) -> None:
+        if "averages_rows" not in saved:
+            return                 # a file from before the averages: start afresh
+        rows = np.asarray(saved["averages_rows"], float).reshape(-1, self.buffer.rows.shape[1])
+        self.buffer = st.SeriesBuffer.from_state(dict(
+            rows=rows, stride=saved["averages_stride"], count=saved["averages_count"],
+            capacity=saved["averages_capacity"]))
+
+    # -- reading ---------------------------------------------------------------------------------
+    def _columns(self):
+        rows = self.buffer.rows
+        t = rows[:, 0]
+        k = 1 + len(self.names)
+        scalars = {n: rows[:, 1 + i] for i, n in enumerate(self.names)}
+        return t, scalars, rows[:, k:k + self.nz], rows[:, k + self.nz:]
+
+    def spin_up(self) -> tuple[float, bool]:
+        """(from_time, settled) of the recorded series (module doc)."""
+        t, scalars, _, _ = self._columns()
+        if t.size < 4 * st.MSER_BATCH:
+            return (float(t[0]) if t.size else math.nan), False
+        y = np.column_stack([scalars[n] for n in SPIN_UP_COLUMNS])
+        return st.spin_up_time(t, y)
+
+    def estimates(self) -> tuple[dict, bool]:
+        """({quantity: Estimate}, settled) from the end of the spin-up."""
+        t, scalars, _, _ = self._columns()
+        from_time, settled = self.spin_up()
+        if not np.isfinite(from_time):
+            return {}, False
+        return {n: st.estimate(t, scalars[n], from_time) for n in self.names}, settled
+
+    def statistically_steady(self, est: dict, settled: bool) -> bool:
+        """Spin-up over, no drift, Nu intervals reliable, heat balance within them (module doc)."""
+        if not settled or not est:
+            return False
+        if not all(est[n].reliable for n in ("nusselt_top", "nusselt_bottom")):
+            return False
+        if not math.isfinite(self.contrast):
+            return True
+        stats = {n: e.to_dict() for n, e in est.items()}
+        return heat_balance(stats, self.heating, self.contrast)["agree"]
+
+    def precision_met(self, precision: float) -> bool:
+        """The mean-precision stop rule (module doc)."""
+        if precision <= 0.0:
+            return False
+        est, settled = self.estimates()
+        if not self.statistically_steady(est, settled):
+            return False
+        return all(est[n].relative_ci95 <= precision for n in ("nusselt_top", "nusselt_bottom"))
+
+    def profile_means(self, from_time: float) -> dict:
+        """Time means and half-widths of the two profiles over t >= from_time."""
+        t, _, tp, ep = self._columns()
+        keep = t >= from_time
+        out = {}
+        for name, data in (("temperature_profile", tp), ("viscosity_profile", ep)):
+            if keep.sum() < 2:
+                out[name] = dict(mean=data[keep].mean(axis=0) if keep.any() else
+                                 np.full(self.nz, np.nan), ci95=np.full(self.nz, np.inf))
+                continue
+            est = [st.estimate(t[keep], data[keep, j], from_time) for j in range(self.nz)]
+            out[name] = dict(mean=np.array([e.mean for e in est]),
+                             ci95=np.array([e.ci95 for e in est]))
+        return out
+
+
+def _fixed(value: float, time: float) -> dict:
+    return dict(mean=float(value), ci95=0.0, from_time=float(time))
+
+
+def run_statistics(averages: RunAverages, status: str, final: dict, time: float) -> tuple[dict, str]:
+    """(statistics, settled) of a finished run.
+
+    ``final`` holds the QUANTITIES and profiles of the last state
+    (``step_quantities``).  A steady run reports its final state (ci95 = 0);
+    any other run the time means after its spin-up (module doc).
+    """
+    if status == "steady" or averages.buffer.size < 2:
+        stats = {n: _fixed(final[n], time) for n in QUANTITIES}
+        for name in ("temperature_profile", "viscosity_profile"):
+            stats[name] = dict(mean=np.asarray(final[name], float).tolist(),
+                               ci95=[0.0] * averages.nz, from_time=float(time))
+        return stats, ("steady" if status == "steady" else "unfinished")
+    est, settled = averages.estimates()
+    stats = {n: e.to_dict() for n, e in est.items()}
+    from_time = next(iter(est.values())).from_time
+    for name, value in averages.profile_means(from_time).items():
+        stats[name] = dict(mean=value["mean"].tolist(), ci95=value["ci95"].tolist(),
+                           from_time=from_time)
+    steady = averages.statistically_steady(est, settled)
+    return stats, ("statistically-steady" if steady else "unfinished")
+
+
+def heat_balance(stats: dict, heating: float, contrast: float, tolerance: float = 1e-9) -> dict:
+    """<Nu_top> - <Nu_bottom> - H / dT with its 95 % half-width (module doc).
+
+    ``agree`` when |gap| <= ci95 + tolerance max(|<Nu_top>|, 1) (the tolerance serves
+    steady runs, whose intervals are 0: pass their steady tolerance).
+    """
+    top, bottom = stats["nusselt_top"], stats["nusselt_bottom"]
+    gap = top["mean"] - bottom["mean"] - (heating / contrast if contrast else math.nan)
+    half = math.hypot(top["ci95"], bottom["ci95"])
+    slack = tolerance * max(abs(top["mean"]), 1.0)
+    return dict(gap=float(gap), ci95=float(half), agree=bool(abs(gap) <= half + slack))
+
+
+def lid_report(stats: dict, law, grid, psi, law_contrast: float,
+               thresholds: lid.RegimeThresholds = lid.RegimeThresholds()) -> dict:
+    """The stagnant-lid diagnostics of a run from its means (and its last flow field)."""
+    z = grid.z_cell
+    t_i = stats["interior_temperature"]["mean"]
+    thickness = stats["lid_thickness"]["mean"]
+    mobility = lid.surface_mobility(stats["surface_vrms"]["mean"], stats["vrms"]["mean"])
+    cells, ups = lid.convection_cells(grid, psi)
+    word = lid.regime(mobility, law_contrast, stats["nusselt_top"]["mean"], thresholds)[0]
+    eta = np.asarray(stats["viscosity_profile"]["mean"], float)
+    return dict(regime=str(word), mobility=mobility, lid_thickness=thickness,
+                interior_temperature=t_i,
+                rheological_temperature_scale=lid.rheological_temperature_scale(
+                    law, t_i, 0.5) if np.isfinite(t_i) else math.nan,
+                lid_viscosity_contrast=lid.lid_viscosity_contrast(z, eta, thickness),
+                viscosity_contrast=law_contrast, cells=cells, upwellings=ups.tolist(),
+                regime_rule=thresholds.text())
+
+
+def _law_contrast(model, temperature: np.ndarray) -> float:
+    th = model.thermal
+    if th.top_heat == "temperature" and th.bottom_heat == "temperature":
+        lo, hi = sorted((th.top_value, th.bottom_value))
+    else:
+        lo, hi = float(temperature.min()), float(temperature.max())
+    return lid.law_viscosity_contrast(model.law, lo, hi)
+
+
+def wall_contrast(model) -> float:
+    """Bottom minus top wall temperature; NaN with a fixed-flux wall (the contrast varies)."""
+    th = model.thermal
+    if th.top_heat == "temperature" and th.bottom_heat == "temperature":
+        return th.bottom_value - th.top_value
+    return math.nan
+
+
+def finish_statistics(result, averages: RunAverages, model, state, steady_tolerance: float):
+    """Fill a ``RunResult``'s statistics, settled word, lid diagnostics and heat balance
+    (``steady_tolerance``: the heat-balance slack of a steady run)."""
+    from types import SimpleNamespace
+    report = SimpleNamespace(nusselt_top=result.nusselt_top, nusselt_bottom=result.nusselt_bottom,
+                             vrms=result.vrms, surface_vrms=result.surface_vrms,
+                             mean_temperature=result.mean_temperature)
+    final = step_quantities(model.grid, state.temperature, state.psi, result.viscosity, report)
+    result.statistics, result.settled = run_statistics(averages, result.status, final,
+                                                       state.time)
+    result.lid = lid_report(result.statistics, model.law, model.grid, state.psi,
+                            _law_contrast(model, state.temperature))
+    tolerance = steady_tolerance if result.status == "steady" else 1e-9
+    result.heat_balance = heat_balance(result.statistics, model.internal_heating,
+                                       wall_contrast(model), tolerance)
+    return result

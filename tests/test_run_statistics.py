@@ -1,0 +1,130 @@
+"""Time means of real runs: the statistical stop, the heat balance of the means, restarts.
+
+The run: constant viscosity, Ra = 1e7, periodic sides, seeded noise start, 16 x 16
+cells: coarse, but time-dependent (chaotic) and cheap, which is what these checks
+need.  Independent references: numpy's trapezoid rule for the time means; the
+energy equation for the balance of the means (Nu_top = Nu_bottom + H at
+statistical steady state, see convsim.run.averages).
+"""
+
+import json
+
+import numpy as np
+import pytest
+
+from convsim import api
+from convsim.config import parse_config
+from convsim.files.runfile import read_run
+
+CHAOTIC = {"domain": {"nx": 16, "nz": 16}, "physics": {"rayleigh": 1e7},
+           "boundaries": {"sides": "periodic"}, "start": {"perturbation": "noise", "seed": 3},
+           "stop": {"mean_precision": 0.02, "max_steps": 30000, "newton": False},
+           "output": {"snapshot_steps": 2000}}
+
+
+def _config(**stop):
+    data = json.loads(json.dumps(CHAOTIC))
+    data["stop"].update(stop)
+    return parse_config(data, source="test")
+
+
+@pytest.fixture(scope="module")
+def chaotic(tmp_path_factory):
+    path = tmp_path_factory.mktemp("chaotic") / "run.h5"
+    return api.run(_config(), path), path
+
+
+def test_statistical_stop_fires_at_the_requested_precision(chaotic):
+    result, path = chaotic
+    assert result.status == "mean-precision" and result.settled == "statistically-steady"
+    stats = result.statistics
+    for name in ("nusselt_top", "nusselt_bottom"):
+        assert 0 < stats[name]["ci95"] <= 0.02 * stats[name]["mean"]
+    # the time mean is the trapezoidal mean of the recorded series over the window (numpy)
+    s = read_run(path).series
+    keep = s["series_time"] >= stats["nusselt_top"]["from_time"]
+    t, nu = s["series_time"][keep], s["nusselt_top"][keep]
+    assert stats["nusselt_top"]["mean"] == pytest.approx(np.trapezoid(nu, t) / (t[-1] - t[0]),
+                                                         rel=2e-3)
+    assert 0.0 < stats["nusselt_top"]["from_time"] < result.time
+    assert np.ptp(nu) > 0.005 * nu.mean()                    # really time-dependent
+
+
+def test_top_and_bottom_means_agree_within_their_intervals(chaotic):
+    result, _ = chaotic
+    s = result.statistics
+    gap = s["nusselt_top"]["mean"] - s["nusselt_bottom"]["mean"]     # H = 0
+    assert abs(gap) <= np.hypot(s["nusselt_top"]["ci95"], s["nusselt_bottom"]["ci95"])
+    assert result.heat_balance["agree"]
+
+
+def test_statistics_reach_json_and_the_run_file(chaotic):
+    from convsim.files.info import describe_run
+    result, path = chaotic
+    summary = json.loads(json.dumps(result.summary()))
+    for name in ("nusselt_top", "nusselt_bottom", "vrms", "surface_vrms",
+                 "interior_temperature", "lid_thickness", "temperature_profile",
+                 "viscosity_profile"):
+        assert {"mean", "ci95", "from_time"} <= set(summary["statistics"][name])
+    assert summary["settled"] == "statistically-steady" and summary["regime"] == "mobile"
+    info = describe_run(path)
+    assert info["settled"] == "statistically-steady"
+    assert info["statistics"]["nusselt_top"]["mean"] == summary["statistics"]["nusselt_top"]["mean"]
+    assert len(info["statistics"]["temperature_profile"]["mean"]) == 16
+
+
+def test_statistical_stop_survives_a_restart_bit_for_bit(chaotic, tmp_path):
+    result, _ = chaotic
+    part = tmp_path / "part.h5"
+    first = api.run(_config(max_steps=3000), part)
+    assert first.status == "step-limit"
+    resumed = api.run(_config(), restart=part)
+    assert resumed.status == "mean-precision" and resumed.steps == result.steps
+    assert np.array_equal(resumed.temperature, result.temperature)
+    assert resumed.statistics == result.statistics
+
+
+def test_a_steady_run_with_internal_heating_balances_nu_top_with_nu_bottom_plus_h():
+    # energy equation at steady state, unit contrast: Nu_top = Nu_bottom + H (README)
+    cfg = parse_config({"domain": {"nx": 16, "nz": 16}, "physics": {"rayleigh": 1e5,
+                                                                  "internal_heating": 10.0}},
+                       source="test")
+    result = api.run(cfg)
+    assert result.status == "steady" and result.settled == "steady"
+    s = result.statistics
+    assert s["nusselt_top"]["ci95"] == 0.0
+    assert s["nusselt_top"]["mean"] == pytest.approx(s["nusselt_bottom"]["mean"] + 10.0,
+                                                     abs=1e-4)
+    assert result.heat_balance["agree"] and abs(result.heat_balance["gap"]) < 1e-4
+    assert result.lid["regime"] == "mobile" and result.lid["cells"] >= 1
+
+
+def test_precision_rule_fires_exactly_when_the_interval_is_narrow_enough():
+    # RunAverages fed with a stationary AR(1) "Nu" (mean 10, tau 19) at uneven steps: the rule
+    # holds for a precision at or above the relative half-width and not below it
+    from scipy.signal import lfilter
+    from convsim.run.averages import RunAverages
+    from convsim.run.stops import MeanPrecision
+    rng = np.random.default_rng(7)
+    n = 1500
+    nu = 10.0 + lfilter([1.0], [1.0, -0.9], rng.normal(0.0, 0.1, n))
+    t = np.cumsum(rng.uniform(0.5, 1.5, n)) * 1e-4
+    avg = RunAverages(nz=4, heating=0.0, contrast=1.0)
+    for k in range(n):
+        avg.record(t[k], lambda k=k: dict(
+            nusselt_top=nu[k], nusselt_bottom=nu[k], vrms=100.0 + nu[k], surface_vrms=90.0,
+            mean_temperature=0.5 + 1e-3 * (nu[k] - 10.0), interior_temperature=0.5,
+            lid_thickness=0.0, temperature_profile=np.full(4, 0.5),
+            viscosity_profile=np.ones(4)))
+    est, settled = avg.estimates()
+    assert settled and est["nusselt_top"].reliable
+    rel = est["nusselt_top"].relative_ci95
+    assert avg.precision_met(1.01 * rel) and not avg.precision_met(0.99 * rel)
+    rule = MeanPrecision(1.01 * rel)
+    rule.watch(avg)
+
+    class Report:
+        step = 1500
+    assert rule.observe(Report()).status == "mean-precision"
+    Report.step = 1501                    # checked every 100 steps only
+    assert rule.observe(Report()) is None
