@@ -40,6 +40,8 @@ def measure(law, n, steps):
 
 
 def main():
+    from convsim.threads import limit_threads
+    limit_threads()          # as a run does: one thread in every pool unless asked
     parser = argparse.ArgumentParser()
     parser.add_argument("--grids", default="32,64,128,256,512")
     parser.add_argument("--steps", type=int, default=50)
