@@ -35,7 +35,7 @@ import numpy as np
 
 from convsim.config import Config
 from convsim.model.grid import Grid, interpolate_cells
-from convsim.model.linsolve import make_factorizer, limit_blas_threads
+from convsim.model.linsolve import _pcg, limit_blas_threads, make_factorizer
 from convsim.run.controller import build_model, initial_temperature
 
 RTOL = 1e-10
@@ -74,27 +74,8 @@ def record_sequence(n: int, contrast: float, steps: int, coarse):
 
 
 def pcg(A, b, precondition, x0, max_iterations, rtol=RTOL):
-    """Preconditioned CG to rtol; returns (x, iterations, converged)."""
-    RTOL = rtol
-    bnorm = np.linalg.norm(b)
-    x = precondition(b) if x0 is None else x0.copy()
-    r = b - A @ x
-    if np.linalg.norm(r) <= RTOL * bnorm:
-        return x, 0, True
-    z = precondition(r)
-    p, rz = z.copy(), r @ z
-    for k in range(1, max_iterations + 1):
-        Ap = A @ p
-        alpha = rz / (p @ Ap)
-        x += alpha * p
-        r -= alpha * Ap
-        if np.linalg.norm(r) <= RTOL * bnorm:
-            return x, k, True
-        z = precondition(r)
-        rz_new = r @ z
-        p = z + (rz_new / rz) * p
-        rz = rz_new
-    return x, max_iterations, False
+    """Preconditioned CG to rtol (convsim's own); returns (x, iterations, converged)."""
+    return _pcg(A, b, precondition, x0, rtol, max_iterations)
 
 
 def factor_policy(mats, rhss, limit, amortised=False, floor=False):
