@@ -51,7 +51,8 @@ their sources are in that module's doc) from its surface mobility
 
 (surface rms velocity over the rms velocity of the whole layer, Tackley 2000)
 and the viscosity contrast Delta eta of the law over the layer: ``mobile``,
-``sluggish``, ``stagnant-lid``, ``conductive`` (Nu below 1.01) or
+``sluggish``, ``stagnant-lid``, ``episodic`` (the table's ``switches``: the lid
+broke and re-formed during the run), ``conductive`` (Nu below 1.01) or
 ``unclassified`` (missing or non-positive velocities, a failed case).
 """
 
@@ -161,11 +162,15 @@ def fit_power_law(x, y, confidence: float = 0.95, rel_sigma=None) -> PowerLawFit
 
 
 def classify_regimes(surface_velocity, interior_velocity, viscosity_contrast,
-                     thresholds: RegimeThresholds = RegimeThresholds(), nusselt=None):
+                     thresholds: RegimeThresholds = RegimeThresholds(), nusselt=None,
+                     switches=None):
     """Regime of each case from M = v_surface / v_rms and the viscosity contrast, eq. (3).
 
     ``nusselt`` (optional, one per case) marks the cases with Nu below
-    ``thresholds.conductive_nusselt`` as conductive.
+    ``thresholds.conductive_nusselt`` as conductive; ``switches`` (optional, the
+    table's column: changes of the lid decision along each run's mobility series,
+    counted with the run's default bounds) marks two or more as episodic
+    (``convsim.model.lid.regime``).
 
     Returns
     -------
@@ -179,7 +184,7 @@ def classify_regimes(surface_velocity, interior_velocity, viscosity_contrast,
     ok = np.isfinite(vs) & np.isfinite(vi) & (vi > 0) & (vs >= 0)
     ratio = np.full(vs.shape, np.nan)
     ratio[ok] = vs[ok] / vi[ok]
-    regimes = regime(ratio, dc, thresholds=thresholds)
+    regimes = regime(ratio, dc, thresholds=thresholds, switches=switches)
     if nusselt is not None:
         nu = np.broadcast_to(np.atleast_1d(np.asarray(nusselt, float)), vs.shape)
         regimes[ok & np.isfinite(nu) & (nu < thresholds.conductive_nusselt)] = "conductive"
@@ -332,7 +337,8 @@ def fit_report(table: dict, x: str = "rayleigh", ys=("nusselt_top", "vrms"), *,
     dc = _column(table, contrast, "--contrast-column")
     nu = value_column(table, "nusselt_top", "nusselt_top")[1] if "nusselt_top" in table \
         else None
-    regimes, ratio = classify_regimes(vs, vi, dc, thresholds, nu)
+    switches = _column(table, "switches", "switches") if "switches" in table else None
+    regimes, ratio = classify_regimes(vs, vi, dc, thresholds, nu, switches)
     accepted = accepted_rows(table, statuses, settled)
     conductive = accepted & (regimes == "conductive")
     mask = accepted & ~conductive
@@ -353,12 +359,14 @@ def fit_report(table: dict, x: str = "rayleigh", ys=("nusselt_top", "vrms"), *,
     n = len(ids)
     ra = _column(table, "rayleigh", "rayleigh") if "rayleigh" in table else np.full(n, np.nan)
     ra_b = _column(table, "rayleigh_bottom", "x") if "rayleigh_bottom" in table else ra
+    ys_ = _column(table, "yield_stress", "yield_stress") if "yield_stress" in table \
+        else np.zeros(n)
     status = table.get("status", np.full(n, "", dtype=object))
     settled_col = table.get("settled", np.full(n, "", dtype=object))
     rows = [{"case_id": str(ids[i]), "status": str(status[i]), "settled": str(settled_col[i]),
              "rayleigh": float(ra[i]), "rayleigh_bottom": float(ra_b[i]),
              "viscosity_contrast": float(dc[i]), "mobility": float(ratio[i]),
-             "regime": str(regimes[i])} for i in range(n)]
+             "yield_stress": float(ys_[i]), "regime": str(regimes[i])} for i in range(n)]
     theory = stagnant_lid_theory(table, mask & (regimes == "stagnant-lid"), ids, confidence)
     return {"statuses": None if statuses is None else list(statuses),
             "settled": None if settled is None else list(settled), "confidence": confidence,

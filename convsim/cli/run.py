@@ -95,6 +95,11 @@ def statistics_lines(summary: dict) -> list[str]:
                      f"{_g(lid['lid_viscosity_contrast'], 3)}), dT_rh "
                      f"{_g(lid['rheological_temperature_scale'], 3)}, {lid['cells']} cell(s), "
                      f"upwellings at x = {ups or 'none'}")
+        if lid.get("switches"):
+            times = ", ".join(_g(t, 4) for t in lid.get("breaking_times", [])[:8])
+            lines.append(f"  lid breaks {lid.get('breaking_events')} time(s) at t = {times}; "
+                         f"{lid['switches']} switches, open {_g(lid['open_fraction'], 3)} of "
+                         f"the time")
     return lines
 
 

@@ -144,8 +144,9 @@ def _run_fit(args) -> int:
     figures = {y: out / f"{y}_against_{args.x}.png" for y in ys}
     from convsim.figures.sweep import varies
     mapped = varies([r["viscosity_contrast"] for r in report["regimes"]])   # not isoviscous
+    yielding = _yield_stresses_vary(report["regimes"])
     paths = [out / "fit.json", out / "regimes.csv", *([out / "regime_map.png"] if mapped else []),
-             *figures.values()]
+             *([out / "regime_map_yield_stress.png"] if yielding else []), *figures.values()]
     existing = [str(p) for p in paths if p.exists()]
     if existing and not args.overwrite:
         raise OutputExistsError(f"output {existing[0]!r}: exists; pass --overwrite to replace it "
@@ -194,10 +195,22 @@ def _draw_regimes(rows: list, out, thresholds, contrast_column: str) -> None:
             [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
             thresholds_text=thresholds.text(), x_label="Rayleigh number at the bottom wall",
             y_label=f"viscosity contrast ({contrast_column})")
+    if _yield_stresses_vary(rows):      # a yielding sweep: the yield stress / Ra diagram
+        figures_sweep.regime_map_figure(
+            out / "regime_map_yield_stress.png", [r["rayleigh"] for r in rows],
+            [r["yield_stress"] for r in rows], [r["regime"] for r in rows],
+            thresholds_text=thresholds.text(), x_label="Rayleigh number Ra (as stated)",
+            y_label=r"yield stress $\sigma_y$ ($\eta_{ref}\,\kappa/d^2$)")
     with atomic_path(out / "regimes.csv") as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
         writer = csv.DictWriter(fh, fieldnames=list(rows[0]) if rows else ["case_id"])
         writer.writeheader()
         writer.writerows(rows)
+
+
+def _yield_stresses_vary(rows: list) -> bool:
+    """Whether the cases span two or more positive yield stresses (a yielding sweep)."""
+    values = {r.get("yield_stress") for r in rows}
+    return len({v for v in values if v is not None and math.isfinite(v) and v > 0}) >= 2
 
 
 def _print_fits(report: dict, out) -> None:

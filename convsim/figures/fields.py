@@ -416,14 +416,30 @@ def save_figures(figures: dict, out_dir: str | Path, formats=style.FORMATS, *,
     return written
 
 
+def _yielding_makers(run: RunFile, first: RunFile, stem: str, tag: str, pres, shading) -> dict:
+    """The figures of a lid that can yield (``convsim.figures.plates``): the yield fields and
+    surface velocity where the law yields, the mobility series where it yields or the lid
+    history switched."""
+    from convsim.figures import plates
+    makers = {}
+    if plates.has_yield_fields(run):
+        makers[f"{stem}_yielding{tag}"] = lambda: plates.yielding_figure(run, pres=pres,
+                                                                         shading=shading)
+    lid = (first.statistics or {}).get("lid") or {}
+    if "mobility" in first.series and (plates.has_yield_fields(run) or lid.get("switches")):
+        makers[f"{stem}_mobility"] = lambda: plates.mobility_figure(first, pres=pres)
+    return makers
+
+
 def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_dir=None,
              formats=style.FORMATS, arrows: bool = False, overwrite: bool = False,
              units: str = "auto", shading: str = "smooth") -> list[Path]:
     """All figures of one run file (the ``convsim plot`` command); returns the paths written.
 
     Files are ``<stem>_temperature``, ``_viscosity`` (only when the viscosity
-    varies), one per further advected field (``_dye``), ``_profiles``, ``_series``
-    and ``_summary`` in ``out_dir`` (default:
+    varies), one per further advected field (``_dye``), ``_yielding`` and
+    ``_mobility`` (a law that yields: ``convsim.figures.plates``), ``_profiles``,
+    ``_series`` and ``_summary`` in ``out_dir`` (default:
     beside the run file); when a snapshot or time is chosen the snapshot
     figures carry ``_sNNNN``.
     """
@@ -449,6 +465,7 @@ def plot_run(path: str | Path, *, snapshot: int | None = None, time=None, out_di
                  run.fields["viscosity"].flat[0])
     for name in run.advected[1:]:                # the dye and any other advected field
         makers[f"{stem}_{name}{tag}"] = lambda name=name: advected_figure(run, name, pres=pres)
+    makers.update(_yielding_makers(run, first, stem, tag, pres, shading))
     makers[f"{stem}_profiles{tag}"] = lambda: profiles_figure(run, pres=pres, statistics=stats)
     makers[f"{stem}_series"] = lambda: series_figure(run, pres=pres, statistics=stats)
     makers[f"{stem}_summary{tag}"] = lambda: summary_figure(run, arrows=arrows, pres=pres,

@@ -81,7 +81,10 @@ VISCOSITY_DECADES = 4.0
 #: Sequential map for passive fields, a dye (Crameri's batlow).  Each advected field names its
 #: map in its declaration (``convsim.model.fields``), looked up in :data:`FIELD_CMAPS`.
 DYE_CMAP = "cmc.batlow"
-FIELD_CMAPS = {"temperature": TEMPERATURE_CMAP, "viscosity": VISCOSITY_CMAP, "dye": DYE_CMAP}
+#: Strain rate and stress of a yielding flow (log scales; ``convsim.figures.plates``).
+STRAIN_CMAP = "cmc.batlow"
+FIELD_CMAPS = {"temperature": TEMPERATURE_CMAP, "viscosity": VISCOSITY_CMAP, "dye": DYE_CMAP,
+               "strain": STRAIN_CMAP}
 #: Line colours, in order: blue, vermillion, bluish green, orange, reddish purple, sky blue,
 #: black from matplotlib's ``okabe_ito`` map (its yellow is left out: too light on white).
 LINE_COLORS = tuple(matplotlib.colors.to_hex(matplotlib.colormaps["okabe_ito"].colors[i])

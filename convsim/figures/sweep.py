@@ -23,7 +23,8 @@ __all__ = ["REGIMES", "SYMBOLS", "group_label", "scaling_plot", "regime_map_plot
 
 #: Regimes of the map in legend order (the words of ``convsim.model.lid.REGIMES``), with the
 #: index of their colour and marker in the style (unclassified: black crosses).
-REGIMES = {"mobile": 0, "sluggish": 3, "stagnant-lid": 1, "conductive": 2, "unclassified": 6}
+REGIMES = {"mobile": 0, "sluggish": 3, "stagnant-lid": 1, "episodic": 4, "conductive": 2,
+           "unclassified": 6}
 _HEIGHT = 2.6            # [in] of the axes part; legend rows below add to it
 _ROW = 0.16              # [in] per legend row
 _TITLE_CHARS = 62        # wrap width of a title at 7 pt in one column

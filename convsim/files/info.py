@@ -174,6 +174,11 @@ def format_info(info: dict) -> str:
         lines.append(f"  lid         regime {lid.get('regime')}, mobility {_num(lid.get('mobility'))}, "
                      f"thickness {_num(lid.get('lid_thickness'))}, T_i "
                      f"{_num(lid.get('interior_temperature'))}, {lid.get('cells')} cell(s)")
+        if lid.get("switches"):
+            times = ", ".join(f"{t:.4g}" for t in lid.get("breaking_times", ())[:8])
+            lines.append(f"              lid breaks {len(lid.get('breaking_times', ()))} time(s)"
+                         f" (t = {times}), {lid.get('switches')} switches, open "
+                         f"{_num(lid.get('open_fraction'))} of the time")
     physical = info.get("physical") or {}
     if physical:
         rows = list(physical.items())

@@ -13,12 +13,15 @@ Layout (root group):
   coordinate, so that ``ds.nusselt_top.plot()`` draws against time);
 - snapshot fields over (time, ...): every advected field of the run (``temperature``,
   and ``dye`` where [tracer] is enabled; declared in ``convsim.model.fields.ADVECTED``,
-  named in the root attribute ``advected_fields``), ``viscosity`` (cells),
+  named in the root attribute ``advected_fields``), the derived fields that apply to the
+  run (``strain_rate``, ``stress`` and the 0/1 flag ``yielded`` where the law yields;
+  ``convsim.model.fields.DERIVED``), ``viscosity`` (cells),
   ``streamfunction`` (corners), ``velocity_x`` (vertical faces: z, x_node),
   ``velocity_z`` (horizontal faces: z_node, x), profiles over (time, z), corner
   gradients ``q1`` .. ``q4`` and ``step`` over (time,);
 - time series over (series_time,): ``record`` (the row index), ``series_step`` and
-  every declared diagnostic (``convsim.model.diagnostics.DIAGNOSTICS``);
+  every declared diagnostic that applies to the run
+  (``convsim.model.diagnostics.DIAGNOSTICS``; the yielding ones where the law yields);
 - units: strings that udunits and pint read; nondimensional numbers have units
   ``"1"`` and name their scale in the attribute ``nondimensional_scale`` (and in
   ``comment``), e.g. ``"kappa/d"`` for a velocity; ``long_name`` says what it is;
@@ -54,7 +57,7 @@ import numpy as np
 from convsim.errors import DiskFullError, OutputExistsError, SnapshotError
 from convsim.files.commit import commit, fault_point, is_disk_full
 from convsim.model.diagnostics import DIAGNOSTICS
-from convsim.model.fields import ADVECTED
+from convsim.model.fields import ADVECTED, DERIVED
 
 __all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
            "check_writable", "check_output_folder", "snapshot_bytes", "RECORD_BYTES",
@@ -74,6 +77,8 @@ FIELDS = {
     "q3": ((), "1", "-dT/dz at corner (aspect, 0)"),
     "q4": ((), "1", "-dT/dz at corner (0, 0)"),
     "step": ((), "1", "time step number of the snapshot"),
+    # derived fields of the runs they apply to (a law that yields: model.fields.DERIVED)
+    **{name: (("z", "x"), d.units, d.long_name) for name, d in DERIVED.items()},
 }
 
 # the step's own columns, then every declared diagnostic (units, long_name, CF attributes)
@@ -124,7 +129,8 @@ def cf_attributes(name: str, units: str, long_name: str) -> dict:
 def snapshot_bytes(nx: int, nz: int) -> int:
     """Bytes one snapshot adds to a run file (float64 fields, uncompressed)."""
     sizes = {"z": nz, "x": nx, "z_node": nz + 1, "x_node": nx + 1}
-    return sum(8 * int(np.prod([sizes[d] for d in dims])) for dims, _, _ in FIELDS.values())
+    return sum(8 * int(np.prod([sizes[d] for d in dims])) for name, (dims, _, _) in FIELDS.items()
+               if name not in DERIVED)
 
 
 #: Bytes one row of the diagnostic series adds to a run file.
@@ -198,18 +204,24 @@ class RunFileWriter:
 
     # -- creation -----------------------------------------------------------------------------
     def create(self, grid, config_text: str, title: str, version: str,
-               advected=("temperature",)) -> None:
+               advected=("temperature",), derived=(), diagnostics=None) -> None:
         """Prepare a new file with the grid and metadata, as ``RUN.h5.part``: it replaces an
         old file (checked before) together with the first snapshot, in one commit.
 
-        ``advected``: names of the run's advected fields (``ADVECTED``); the others get no
-        dataset.
+        ``advected``: names of the run's advected fields (``ADVECTED``); ``derived``: names
+        of the derived fields that apply to the run (``DERIVED``); ``diagnostics``: names
+        of the declared diagnostics that apply (None: those every run has); the others get
+        no dataset.
         """
         if self.append:
             return
         tmp = self.path.with_name(self.path.name + ".part")
+        if diagnostics is None:
+            diagnostics = [n for n, d in DIAGNOSTICS.items() if d.needs == ""]
+        skip = ({n for n in ADVECTED if n not in advected} | {n for n in DERIVED if n not in derived}
+                | {n for n in DIAGNOSTICS if n not in diagnostics})
         try:
-            self._create(tmp, grid, config_text, title, version, advected)
+            self._create(tmp, grid, config_text, title, version, advected, skip)
             self._fresh = True
         except OSError as exc:
             tmp.unlink(missing_ok=True)
@@ -218,7 +230,8 @@ class RunFileWriter:
                                     f"written ({exc.strerror or exc})") from None
             raise SnapshotError(f"run file {str(self.path)!r}: cannot be written ({exc})") from None
 
-    def _create(self, tmp, grid, config_text, title, version, advected=("temperature",)):
+    def _create(self, tmp, grid, config_text, title, version, advected=("temperature",),
+                skip=frozenset()):
         fault_point("create")
         with h5py.File(tmp, "w", locking=False) as f:
             f.attrs["Conventions"] = "CF-1.8"
@@ -249,16 +262,18 @@ class RunFileWriter:
                                  chunks=(4096,))
             self._attach(f, d, ("series_time",), "1", COORDINATES["record"])
             for name, (dims, units, long_name) in FIELDS.items():
-                if name in ADVECTED and name not in advected:
+                if name in skip or (name in ADVECTED and name not in advected):
                     continue
                 shape = tuple(len(f[d]) for d in dims)
                 d = f.create_dataset(name, shape=(0,) + shape, maxshape=(None,) + shape,
-                                     dtype="i8" if name == "step" else "f8",
+                                     dtype="i8" if name == "step" else
+                                     DERIVED[name].dtype if name in DERIVED else "f8",
                                      chunks=(1,) + shape if shape else (256,))
                 self._attach(f, d, ("time",) + dims, units, long_name)
-                d.attrs.update(ADVECTED[name].cf if name in ADVECTED else {})
+                d.attrs.update(ADVECTED[name].cf if name in ADVECTED else
+                               DERIVED[name].cf if name in DERIVED else {})
             for name, (units, long_name) in SERIES.items():
-                if name == "series_time":
+                if name == "series_time" or name in skip:
                     continue
                 kind = DIAGNOSTICS[name].dtype if name in DIAGNOSTICS else "f8"
                 d = f.create_dataset(name, shape=(0,), maxshape=(None,),
@@ -396,7 +411,7 @@ def _physical_coordinates(f, config_text: str) -> None:
         dims = FIELDS[name][0]
         f[name].attrs["coordinates"] = " ".join(physical[d] for d in ("time",) + tuple(dims))
     for name in SERIES:
-        if name != "series_time":
+        if name != "series_time" and name in f:
             f[name].attrs["coordinates"] = "series_time_myr"
 
 
@@ -510,8 +525,12 @@ class RunFileObserver:
     def on_start(self, simulation, resumed: bool) -> None:
         from convsim import __version__
         if not resumed:
+            model = simulation.model
             self.writer.create(simulation.grid, simulation.config_text, simulation.config.title,
-                               __version__, [f.name for f in simulation.model.fields])
+                               __version__, [f.name for f in model.fields],
+                               derived=[n for n, d in DERIVED.items() if d.needs == "yielding"
+                                        and model.yields],
+                               diagnostics=model.diagnostic_names())
 
     def on_step(self, report) -> None:
         pass
@@ -526,6 +545,10 @@ class RunFileObserver:
 
 
 PROFILE_STATISTICS = ("temperature_profile", "viscosity_profile")
+#: lists of the lid diagnostics, stored as variables of the group ``statistics/lid``
+LID_ARRAYS = {"upwellings": "x of the upwellings at the end of the run, units d",
+              "breaking_times": "times of the lid-breaking events (mobility crossing the "
+                                "mobile bound upward), units d^2/kappa"}
 
 
 def write_statistics(f, summary: dict) -> None:
@@ -534,7 +557,8 @@ def write_statistics(f, summary: dict) -> None:
     Attributes ``settled`` and, per scalar quantity q, ``q_mean``, ``q_ci95`` (95 %
     half-width), ``q_from_time``; the profiles as variables ``<profile>_mean`` and
     ``<profile>_ci95`` over z; the lid diagnostics as attributes of the subgroup ``lid``
-    (the upwellings as its variable ``upwellings``); the heat balance as
+    (the upwellings and the lid-breaking times as its variables ``upwellings`` and
+    ``breaking_times``); the heat balance as
     ``heat_balance_<name>``.  Replaced when a restarted run finishes again.
     """
     if "statistics" in f:
@@ -555,8 +579,9 @@ def write_statistics(f, summary: dict) -> None:
             g.attrs[f"{name}_{part}"] = _number(est[part])
     lid = g.create_group("lid")
     for key, value in (summary.get("lid") or {}).items():
-        if key == "upwellings":
-            lid.create_dataset("upwellings", data=np.asarray(value, float))
+        if key in LID_ARRAYS:
+            d = lid.create_dataset(key, data=np.asarray(value, float).reshape(-1))
+            d.attrs.update(units="1", long_name=LID_ARRAYS[key])
         else:
             lid.attrs[key] = _number(value) if value is None else value
     for key, value in (summary.get("heat_balance") or {}).items():
@@ -588,8 +613,9 @@ def read_statistics(f) -> dict:
     lid = {}
     if "lid" in g:
         lid = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g["lid"].attrs.items()}
-        if "upwellings" in g["lid"]:
-            lid["upwellings"] = g["lid"]["upwellings"][:]
+        for key in LID_ARRAYS:
+            if key in g["lid"]:
+                lid[key] = g["lid"][key][:]
     return dict(settled=attrs.get("settled"), statistics=stats, lid=lid,
                 heat_balance={k[13:]: v for k, v in attrs.items()
                               if k.startswith("heat_balance_")})

@@ -17,6 +17,7 @@ Layout (XDMF 3)::
             Attribute temperature    Center="Cell" -> hyperslab of /temperature
             Attribute viscosity      Center="Cell" -> hyperslab of /viscosity
             Attribute streamfunction Center="Node" -> hyperslab of /streamfunction
+            Attribute strain_rate, stress, yielded  Center="Cell" (where the law yields)
 
 The structured-mesh ``Dimensions`` count points, slowest index first (z, then
 x), matching the [z, x] layout of the arrays; the model's z is the viewer's y.
@@ -45,19 +46,21 @@ from convsim.errors import DiskFullError, SnapshotError
 from convsim.files.atomic import atomic_write_text
 from convsim.files.commit import fault_point, is_disk_full
 from convsim.files.runfile import check_writable, open_run_file
-from convsim.model.fields import ADVECTED
+from convsim.model.fields import ADVECTED, DERIVED
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
 
-#: Snapshot fields described in the sidecar: name -> XDMF centre (and every advected field
-#: the run file holds, at the cells: ``convsim.model.fields.ADVECTED``).
+#: Snapshot fields described in the sidecar: name -> XDMF centre (and every advected or
+#: derived field the run file holds, at the cells: ``convsim.model.fields.ADVECTED``,
+#: ``DERIVED``: the strain rate, stress and yielded flag of a law that yields).
 XDMF_FIELDS = {"temperature": "Cell", "viscosity": "Cell", "streamfunction": "Node"}
 
 
 def _described(f) -> dict:
     """The fields of an open run file the sidecar describes: name -> centre."""
     advected = {name: "Cell" for name in ADVECTED if name in f}
-    return {**advected, **{k: v for k, v in XDMF_FIELDS.items() if k in f}}
+    derived = {name: "Cell" for name in DERIVED if name in f}
+    return {**advected, **{k: v for k, v in XDMF_FIELDS.items() if k in f}, **derived}
 
 
 def sidecar_path(run_path: str | Path) -> Path:

@@ -24,6 +24,9 @@ long_name, CF attributes, the function that computes it from a ``Sample``): the
 step report (``timestepping.StepReport`` has one attribute per declaration), the
 time series and its run-file variables, ``--json``, ``convsim info`` and the run
 result read that table.  A new diagnostic is one ``Diagnostic(...)`` line there.
+A declaration with ``needs = "yielding"`` applies only to runs whose law yields
+(``convsim.model.plates``): elsewhere it is NaN in the step report and absent from
+the run file's series and the final diagnostics.
 """
 
 from __future__ import annotations
@@ -41,7 +44,10 @@ from convsim.model.stokes import face_velocities
 
 __all__ = ["wall_temperatures", "nusselt_numbers", "rms_velocity", "surface_rms_velocity",
            "corner_gradients", "heat_content", "horizontal_mean", "heat_budget", "Sample",
-           "Diagnostic", "DIAGNOSTICS", "evaluate"]
+           "Diagnostic", "DIAGNOSTICS", "evaluate", "applicable", "NEEDS"]
+
+#: What a diagnostic may need beyond the temperature and the flow ("": every run).
+NEEDS = ("", "yielding")
 
 
 def wall_temperatures(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tuple[np.ndarray, np.ndarray]:
@@ -161,15 +167,40 @@ class Sample:
     heat_rate : d/dt of the heat content as the time stepper computed it (0: no step).
     solve : the step's Stokes ``SolveReport`` (iterations, residual, nonlinear iterations),
         or None.
+    plates : callable or None
+        For a law that yields: ``() -> convsim.model.plates.YieldFields`` of the state
+        (called once, on first use); None: the law does not yield.
     """
 
     def __init__(self, grid: Grid, thermal: ThermalBoundaries, heating: float, T: np.ndarray,
                  psi: np.ndarray, previous_T: np.ndarray | None = None, dt: float = 0.0,
-                 heat_rate: float = 0.0, solve=None):
+                 heat_rate: float = 0.0, solve=None, plates=None):
         self.grid, self.thermal, self.heating = grid, thermal, float(heating)
         self.T, self.psi, self.previous_T = T, psi, previous_T
         self.dt, self.heat_rate = dt, heat_rate
         self.solve = solve if solve is not None else SolveReport()
+        self._plates = plates
+
+    def has(self, need: str) -> bool:
+        """Whether the sample provides what a diagnostic ``needs`` ("" always)."""
+        return need == "" or (need == "yielding" and self._plates is not None)
+
+    @cached_property
+    def plates(self):
+        """The yield fields of the state (``convsim.model.plates.YieldFields``)."""
+        return self._plates()
+
+    @cached_property
+    def vrms(self) -> float:
+        return rms_velocity(self.grid, self.psi)
+
+    @cached_property
+    def surface_vrms(self) -> float:
+        return surface_rms_velocity(self.grid, self.psi)
+
+    def mobility(self) -> float:
+        """M = surface vrms / vrms (Tackley 2000, quoted from memory); NaN without flow."""
+        return self.surface_vrms / self.vrms if self.vrms > 0.0 else float("nan")
 
     @cached_property
     def nusselt(self) -> tuple[float, float]:
@@ -192,6 +223,7 @@ class Diagnostic:
 
     ``of_state``: it depends on the state alone (so it is also computed for the final
     state of a run); otherwise it measures the step that reached the state.
+    ``needs``: one of ``NEEDS``; the runs it applies to (``applicable``).
     """
 
     name: str
@@ -201,6 +233,7 @@ class Diagnostic:
     of_state: bool = True
     dtype: str = "f8"
     cf: dict = field(default_factory=dict)
+    needs: str = ""
 
 
 DIAGNOSTICS = {d.name: d for d in (
@@ -208,9 +241,11 @@ DIAGNOSTICS = {d.name: d for d in (
                "conductive one)", lambda s: s.nusselt[0]),
     Diagnostic("nusselt_bottom", "1", "Nusselt number at the bottom", lambda s: s.nusselt[1]),
     Diagnostic("vrms", "1", "root-mean-square velocity of the box, units kappa/d",
-               lambda s: rms_velocity(s.grid, s.psi)),
+               lambda s: s.vrms),
     Diagnostic("surface_vrms", "1", "rms horizontal velocity at the top, units kappa/d",
-               lambda s: surface_rms_velocity(s.grid, s.psi)),
+               lambda s: s.surface_vrms),
+    Diagnostic("mobility", "1", "surface mobility M = surface_vrms / vrms (Tackley 2000)",
+               Sample.mobility),
     Diagnostic("mean_temperature", "1", "mean temperature of the box",
                lambda s: float(s.T.mean())),
     Diagnostic("heat_imbalance", "1", "bottom inflow + heating - top outflow over the largest "
@@ -228,10 +263,34 @@ DIAGNOSTICS = {d.name: d for d in (
                of_state=False, dtype="i8"),
     Diagnostic("nonlinear_residual", "1", "final ||R|| / ||b|| of that iteration",
                lambda s: float(s.solve.nonlinear_residual), of_state=False),
+    # a law that yields (convsim.model.plates): the lid's plates and the stresses
+    Diagnostic("yielded_fraction", "1", "area fraction of the yielded cells (plastic viscosity "
+               "below the linear law's)", lambda s: float(np.mean(s.plates.yielded)),
+               needs="yielding"),
+    Diagnostic("plateness", "1", "plateness P = 1 - f80 / 0.6 of the surface velocity "
+               "(Tackley 2000; near 1: rigid plates)", lambda s: _plateness(s),
+               needs="yielding"),
+    Diagnostic("stress_max", "1", "largest stress invariant 2 eta e_II of the cells, units "
+               "eta_ref kappa/d^2", lambda s: float(np.max(s.plates.stress)), needs="yielding"),
+    Diagnostic("viscosity_min", "1", "smallest viscosity of the cells, units eta_ref",
+               lambda s: float(np.min(s.plates.viscosity)), needs="yielding"),
+    Diagnostic("viscosity_max", "1", "largest viscosity of the cells, units eta_ref",
+               lambda s: float(np.max(s.plates.viscosity)), needs="yielding"),
 )}
 
 
+def _plateness(sample: Sample) -> float:
+    from convsim.model.plates import plateness
+    return plateness(sample.grid, sample.psi)
+
+
+def applicable(yielding: bool) -> list[str]:
+    """Names of the declared diagnostics of a run (whose law yields or not)."""
+    return [name for name, d in DIAGNOSTICS.items() if d.needs == "" or yielding]
+
+
 def evaluate(sample: Sample, state_only: bool = False) -> dict:
-    """{name: value} of every declared diagnostic (of the state alone if ``state_only``)."""
+    """{name: value} of every declared diagnostic the sample provides (of the state alone
+    if ``state_only``)."""
     return {name: d.compute(sample) for name, d in DIAGNOSTICS.items()
-            if d.of_state or not state_only}
+            if (d.of_state or not state_only) and sample.has(d.needs)}

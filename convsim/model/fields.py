@@ -31,7 +31,7 @@ from convsim.model.energy import ThermalBoundaries
 from convsim.model.grid import Grid
 
 __all__ = ["FieldDeclaration", "ADVECTED", "INSULATED", "declared", "temperature_field",
-           "dye_field"]
+           "dye_field", "DerivedField", "DERIVED"]
 
 #: No flux through the top and bottom (side walls follow the box: insulating or periodic).
 INSULATED = ThermalBoundaries("flux", 0.0, "flux", 0.0)
@@ -128,3 +128,47 @@ def dye_field(diffusivity: float = 0.0, start: Callable | None = None) -> FieldD
     """The passive dye with a run's diffusivity and start (insulating walls: the total dye
     is conserved); ``start`` from ``convsim.model.dye`` (a layer, a blob, an expression)."""
     return ADVECTED["dye"].replace(diffusivity=float(diffusivity), start=start)
+
+
+@dataclass(frozen=True)
+class DerivedField:
+    """A snapshot field computed from the state (not advected), written only by the runs it
+    applies to.
+
+    Attributes
+    ----------
+    name, units, long_name, cf : as in ``FieldDeclaration`` (a long_name ending in
+        ", units S" names the nondimensional scale S of the run file's attributes).
+    needs : str
+        What a run must have for the field to exist: "yielding" (a law whose yielding
+        modifier is active, ``convsim.model.plates.yields``).
+    dtype : str
+        numpy dtype of the stored values ("f8"; "i1" for a 0/1 flag).
+    colormap : str
+        House colour map of the figures (``convsim.figures.style``).
+    """
+
+    name: str
+    units: str
+    long_name: str
+    needs: str
+    cf: dict = field(default_factory=dict)
+    dtype: str = "f8"
+    colormap: str = "strain"
+
+
+#: Derived cell fields of a run whose law yields (values: ``convsim.model.plates.yield_fields``);
+#: the viscosity itself is a snapshot field of every run.
+DERIVED = {
+    "strain_rate": DerivedField(
+        "strain_rate", "1", "strain-rate invariant e_II = sqrt(e_ij e_ij / 2), cell centres, "
+        "units kappa/d^2", needs="yielding"),
+    "stress": DerivedField(
+        "stress", "1", "deviatoric stress invariant sigma_II = 2 eta e_II, cell centres, "
+        "units eta_ref kappa/d^2", needs="yielding"),
+    "yielded": DerivedField(
+        "yielded", "1", "yielded cells: the plastic viscosity below the linear law's, cell "
+        "centres", needs="yielding", dtype="i1",
+        cf={"flag_values": np.array([0, 1], dtype="i1"),
+            "flag_meanings": "not_yielded yielded"}),
+}

@@ -38,6 +38,18 @@ the reference viscosity.
   stagnant-lid regime above contrasts of about 1e3 to 1e4 (quoted from
   memory); the mobility bounds are our choice, after common practice (a
   stagnant lid moves at a few per cent of the interior or less).
+- Lid history (``lid_history``), from the time series of the mobility M(t): a
+  decision per time with hysteresis between the same two bounds (our choice,
+  common practice): the lid is *closed* once M < stagnant_ratio and stays so
+  until M >= mobile_ratio, when it *breaks* (a lid-breaking event, at the time
+  of that upward crossing, interpolated linearly between the samples) and is
+  *open* until M falls below stagnant_ratio again (the lid re-forms).  A series
+  that starts between the bounds is undecided until it first reaches one.
+  ``episodic`` (``regime`` with ``switches``): the lid breaks and re-forms at
+  least once in the averaging window (two or more changes of the decision),
+  given a viscosity contrast that makes a lid (>= stagnant_contrast); it takes
+  precedence over the rule of the means above, which would call such a run
+  sluggish or mobile.  Runs that do not switch keep the rule of the means.
 """
 
 from __future__ import annotations
@@ -54,9 +66,9 @@ from convsim.model.stokes import face_velocities
 __all__ = ["REGIMES", "RegimeThresholds", "regime", "horizontal_velocity_profile",
            "lid_thickness", "interior_temperature", "rheological_temperature_scale",
            "surface_mobility", "lid_viscosity_contrast", "convection_cells",
-           "law_viscosity_contrast", "INTERIOR_BAND"]
+           "law_viscosity_contrast", "INTERIOR_BAND", "LidHistory", "lid_history"]
 
-REGIMES = ("mobile", "sluggish", "stagnant-lid", "conductive", "unclassified")
+REGIMES = ("mobile", "sluggish", "stagnant-lid", "episodic", "conductive", "unclassified")
 INTERIOR_BAND = (0.2, 0.8)
 
 
@@ -84,12 +96,17 @@ class RegimeThresholds:
         """The rule in one line, for reports and figures."""
         return (f"mobile: M >= {self.mobile_ratio:g}; stagnant-lid: M < "
                 f"{self.stagnant_ratio:g} and contrast >= {self.stagnant_contrast:g}; "
-                f"sluggish: between; conductive: Nu < {self.conductive_nusselt:g}")
+                f"sluggish: between; episodic: M(t) crosses both; "
+                f"conductive: Nu < {self.conductive_nusselt:g}")
 
 
 def regime(mobility, viscosity_contrast, nusselt=None,
-           thresholds: RegimeThresholds = RegimeThresholds()) -> np.ndarray:
-    """Regime word of each case (module doc), broadcast over the inputs; object array of str."""
+           thresholds: RegimeThresholds = RegimeThresholds(), switches=None) -> np.ndarray:
+    """Regime word of each case (module doc), broadcast over the inputs; object array of str.
+
+    ``switches`` (optional, per case): changes of the lid decision of ``lid_history`` in the
+    averaging window; two or more (with a contrast that makes a lid) give ``episodic``.
+    """
     m = np.atleast_1d(np.asarray(mobility, float))
     dc = np.atleast_1d(np.asarray(viscosity_contrast, float))
     m, dc = np.broadcast_arrays(m, dc)
@@ -99,10 +116,72 @@ def regime(mobility, viscosity_contrast, nusselt=None,
     out[ok & (m >= thresholds.mobile_ratio)] = "mobile"
     out[ok & (m < thresholds.stagnant_ratio) & (dc >= thresholds.stagnant_contrast)] = \
         "stagnant-lid"
+    if switches is not None:
+        sw = np.broadcast_to(np.atleast_1d(np.asarray(switches, float)), m.shape)
+        out[np.isfinite(sw) & (sw >= 2) & (dc >= thresholds.stagnant_contrast)] = "episodic"
     if nusselt is not None:
         nu = np.broadcast_to(np.atleast_1d(np.asarray(nusselt, float)), m.shape)
         out[np.isfinite(nu) & (nu < thresholds.conductive_nusselt)] = "conductive"
     return out
+
+
+@dataclass(frozen=True)
+class LidHistory:
+    """What the mobility series says about the lid (module doc, "Lid history").
+
+    Attributes
+    ----------
+    breaking_times : tuple of float
+        Times of the lid-breaking events (upward crossings of mobile_ratio from a closed lid).
+    switches : int
+        Changes of the decision (closed -> open and open -> closed).
+    open_fraction, closed_fraction : float
+        Share of the time (weighted by the sample spacing) with the lid open or closed
+        (the rest: undecided at the start of the series).
+    """
+
+    breaking_times: tuple = ()
+    switches: int = 0
+    open_fraction: float = math.nan
+    closed_fraction: float = math.nan
+
+    def to_dict(self) -> dict:
+        return dict(breaking_times=list(self.breaking_times), breaking_events=len(
+            self.breaking_times), switches=self.switches, open_fraction=self.open_fraction,
+            closed_fraction=self.closed_fraction)
+
+
+def lid_history(times, mobility, thresholds: RegimeThresholds = RegimeThresholds()) -> LidHistory:
+    """The lid decision along a mobility series M(t) (module doc); non-finite M are skipped."""
+    t, m = np.asarray(times, float), np.asarray(mobility, float)
+    keep = np.isfinite(t) & np.isfinite(m)
+    t, m = t[keep], m[keep]
+    if t.size < 2:
+        return LidHistory()
+    hi, lo = thresholds.mobile_ratio, thresholds.stagnant_ratio
+    state = np.zeros(t.size, dtype=int)          # +1 open, -1 closed, 0 undecided
+    current, breaks, switches = 0, [], 0
+    for i, value in enumerate(m):
+        if value >= hi and current != 1:
+            if current == -1:
+                breaks.append(_crossing(t, m, i, hi))
+                switches += 1
+            current = 1
+        elif value < lo and current != -1:
+            switches += current == 1
+            current = -1
+        state[i] = current
+    weight = np.gradient(t) if t.size > 1 else np.ones(1)
+    total = float(weight.sum())
+    return LidHistory(tuple(breaks), int(switches), float(weight[state == 1].sum() / total),
+                      float(weight[state == -1].sum() / total))
+
+
+def _crossing(t: np.ndarray, m: np.ndarray, i: int, level: float) -> float:
+    """Time where M reaches ``level`` between samples i - 1 and i (linear)."""
+    if i == 0 or m[i] == m[i - 1]:
+        return float(t[i])
+    return float(t[i - 1] + (level - m[i - 1]) * (t[i] - t[i - 1]) / (m[i] - m[i - 1]))
 
 
 def horizontal_velocity_profile(grid: Grid, psi: np.ndarray) -> np.ndarray:

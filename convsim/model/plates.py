@@ -21,6 +21,8 @@ eta_ref kappa/d^2, lengths in layer depths.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from convsim.model.grid import Grid
@@ -31,7 +33,8 @@ from convsim.model.laws import LawInputs
 from convsim.model.stokes import StokesOperator
 
 __all__ = ["strain_rate_field", "stress_field", "yielded_mask", "yielded_fraction",
-           "surface_velocity", "mobility", "plateness", "ISOVISCOUS_F80"]
+           "surface_velocity", "mobility", "plateness", "ISOVISCOUS_F80", "yields",
+           "YieldFields", "yield_fields", "top_velocity"]
 
 ISOVISCOUS_F80 = 0.6      # f80 of isoviscous convection (Tackley 2000, quoted from memory)
 
@@ -46,11 +49,16 @@ def stress_field(eta_cell: np.ndarray, strain_rate: np.ndarray) -> np.ndarray:
     return 2.0 * eta_cell * strain_rate
 
 
+def yields(law: ViscosityLaw) -> bool:
+    """Whether the law's yielding modifier is active (a yield stress or its gradient > 0)."""
+    from convsim.model.laws import MODIFIERS
+    return bool(MODIFIERS["yielding"].active(law))
+
+
 def yielded_mask(law: ViscosityLaw, T: np.ndarray, z: np.ndarray,
                  strain_rate: np.ndarray) -> np.ndarray:
     """Cells where eta_plast < eta_lin (all False for a law without yielding)."""
-    from convsim.model.laws import MODIFIERS
-    if not MODIFIERS["yielding"].active(law):
+    if not yields(law):
         return np.zeros(np.shape(T), dtype=bool)
     lin = viscosity(law, T, z, modifiers=False)
     plast = plastic_viscosity(LawInputs(np.asarray(T), np.asarray(z), strain_rate), law)
@@ -64,7 +72,13 @@ def yielded_fraction(mask: np.ndarray) -> float:
 
 def surface_velocity(grid: Grid, psi: np.ndarray) -> np.ndarray:
     """u on the top wall at the node columns x_node, shape (nx + 1,)."""
-    return (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * grid.dz)
+    return top_velocity(psi, grid.dz)
+
+
+def top_velocity(psi: np.ndarray, dz: float) -> np.ndarray:
+    """u = dpsi/dz on the top wall, one-sided second order: (3 psi_n - 4 psi_n-1 +
+    psi_n-2) / (2 dz), at the node columns, shape (nx + 1,)."""
+    return (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * dz)
 
 
 def mobility(surface_vrms: float, vrms: float) -> float:
@@ -82,3 +96,23 @@ def plateness(grid: Grid, psi: np.ndarray, share: float = 0.8) -> float:
     ordered = np.sort(deformation)[::-1]
     cells = int(np.searchsorted(np.cumsum(ordered), share * total) + 1)
     return 1.0 - (cells / grid.nx) / ISOVISCOUS_F80
+
+
+@dataclass(frozen=True)
+class YieldFields:
+    """The cell fields of a yielding flow, each (nz, nx): e_II, sigma_II = 2 eta e_II, eta
+    and the yielded mask (see the module docstring)."""
+
+    strain_rate: np.ndarray
+    stress: np.ndarray
+    viscosity: np.ndarray
+    yielded: np.ndarray
+
+
+def yield_fields(op: StokesOperator, law: ViscosityLaw, T: np.ndarray, z_cell: np.ndarray,
+                 psi: np.ndarray) -> YieldFields:
+    """e_II of psi, eta = law(T, z, e_II) at the cells (the viscosity the Stokes operator
+    uses there), the stress 2 eta e_II and the yielded mask."""
+    rate = strain_rate_field(op, psi)
+    eta = viscosity(law, T, z_cell, rate)
+    return YieldFields(rate, stress_field(eta, rate), eta, yielded_mask(law, T, z_cell, rate))

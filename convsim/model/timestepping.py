@@ -45,6 +45,7 @@ from convsim.model.fields import FieldDeclaration, temperature_field
 from convsim.model.grid import Grid
 from convsim.model.linsolve import SolveReport
 from convsim.model.nonlinear import strain_rate_invariants
+from convsim.model.plates import yield_fields, yields
 from convsim.model.rheology import ViscosityLaw, viscosity
 from convsim.model.solvers import StokesProblem, make_stokes_solver
 from convsim.model.state import ModelState, from_record, to_record
@@ -59,13 +60,14 @@ MAX_REJECTIONS = 6
 StepReport = make_dataclass(
     "StepReport",
     [("step", int), ("time", float), ("dt", float)]
-    + [(name, float) for name in diag.DIAGNOSTICS]
+    + [(name, float, field(default=float("nan"))) for name in diag.DIAGNOSTICS]
     + [("rejections", int, 0), ("refactored", bool, False),
        ("seconds", dict, field(default_factory=dict))])
 StepReport.__doc__ = """Diagnostics of the state reached by one step, and what the step cost.
 
 Fields: ``step``, ``time``, ``dt``; one per declared diagnostic
-(``convsim.model.diagnostics.DIAGNOSTICS``: nusselt_top, nusselt_bottom, vrms, ...);
+(``convsim.model.diagnostics.DIAGNOSTICS``: nusselt_top, nusselt_bottom, vrms, ...; NaN
+where a declaration does not apply to the run, e.g. the yielding ones);
 ``rejections`` (halvings of dt), ``refactored`` (the Stokes factor was renewed) and
 ``seconds`` (wall time per phase: advect, diffuse, stokes, factor, diagnose).
 """
@@ -340,15 +342,32 @@ class Model:
         solve = solve or SolveReport()
         previous = None if state.previous is None else state.previous["temperature"]
         sample = diag.Sample(self.grid, self.thermal, self.internal_heating, state.temperature,
-                             state.psi, previous, dt, heat_rate, solve)
+                             state.psi, previous, dt, heat_rate, solve, self._plates_of(state))
         return StepReport(step=state.step, time=state.time, dt=dt, **diag.evaluate(sample),
                           rejections=rejections, refactored=solve.refactored)
 
     def diagnostics(self, state: ModelState) -> dict:
         """The declared diagnostics that depend on the state alone (a final state, a jump)."""
         sample = diag.Sample(self.grid, self.thermal, self.internal_heating, state.temperature,
-                             state.psi)
+                             state.psi, plates=self._plates_of(state))
         return diag.evaluate(sample, state_only=True)
+
+    @property
+    def yields(self) -> bool:
+        """Whether the law yields (its yielding modifier is active)."""
+        return yields(self.law)
+
+    def diagnostic_names(self) -> list[str]:
+        """The declared diagnostics that apply to this model (``diagnostics.applicable``)."""
+        return diag.applicable(self.yields)
+
+    def yield_fields(self, state: ModelState):
+        """Strain rate, stress, viscosity and yielded mask of the state, at the cells
+        (``convsim.model.plates.YieldFields``)."""
+        return yield_fields(self.stokes, self.law, state.temperature, self._z_cell, state.psi)
+
+    def _plates_of(self, state: ModelState):
+        return (lambda: self.yield_fields(state)) if self.yields else None
 
     def with_rayleigh(self, rayleigh: float) -> "Model":
         """The same model at another Rayleigh number (for continuation)."""

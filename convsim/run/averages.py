@@ -164,6 +164,17 @@ class RunAverages:
             return False
         return all(est[n].relative_ci95 <= precision for n in ("nusselt_top", "nusselt_bottom"))
 
+    def lid_history(self, from_time: float,
+                    thresholds: lid.RegimeThresholds = lid.RegimeThresholds()) -> lid.LidHistory:
+        """The lid decision of the mobility series M = surface vrms / vrms over t >= from_time
+        (``convsim.model.lid.lid_history``; the recorded rows, thinned as the buffer is)."""
+        t, scalars, _, _ = self._columns()
+        keep = t >= from_time
+        vrms = scalars["vrms"][keep]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            m = np.where(vrms > 0, scalars["surface_vrms"][keep] / vrms, np.nan)
+        return lid.lid_history(t[keep], m, thresholds)
+
     def profile_means(self, from_time: float) -> dict:
         """Time means and half-widths of the two profiles over t >= from_time."""
         t, _, tp, ep = self._columns()
@@ -221,16 +232,20 @@ def heat_balance(stats: dict, heating: float, contrast: float, tolerance: float 
 
 
 def lid_report(stats: dict, law, grid, psi, law_contrast: float,
-               thresholds: lid.RegimeThresholds = lid.RegimeThresholds()) -> dict:
-    """The stagnant-lid diagnostics of a run from its means (and its last flow field)."""
+               thresholds: lid.RegimeThresholds = lid.RegimeThresholds(),
+               history: lid.LidHistory = lid.LidHistory()) -> dict:
+    """The stagnant-lid diagnostics of a run from its means (and its last flow field), with
+    the lid history of its mobility series (breaking events, switches: episodic)."""
     z = grid.z_cell
     t_i = stats["interior_temperature"]["mean"]
     thickness = stats["lid_thickness"]["mean"]
     mobility = lid.surface_mobility(stats["surface_vrms"]["mean"], stats["vrms"]["mean"])
     cells, ups = lid.convection_cells(grid, psi)
-    word = lid.regime(mobility, law_contrast, stats["nusselt_top"]["mean"], thresholds)[0]
+    word = lid.regime(mobility, law_contrast, stats["nusselt_top"]["mean"], thresholds,
+                      history.switches)[0]
     eta = np.asarray(stats["viscosity_profile"]["mean"], float)
-    return dict(regime=str(word), mobility=mobility, lid_thickness=thickness,
+    return dict(regime=str(word), mobility=mobility, **history.to_dict(),
+                lid_thickness=thickness,
                 interior_temperature=t_i,
                 rheological_temperature_scale=lid.rheological_temperature_scale(
                     law, t_i, 0.5) if np.isfinite(t_i) else math.nan,
@@ -266,8 +281,11 @@ def finish_statistics(result, averages: RunAverages, model, state, steady_tolera
     final = step_quantities(model.grid, state.temperature, state.psi, result.viscosity, report)
     result.statistics, result.settled = run_statistics(averages, result.status, final,
                                                        state.time)
+    history = lid.LidHistory()
+    if result.status != "steady" and averages.buffer.size >= 2:     # a series to judge
+        history = averages.lid_history(result.statistics["nusselt_top"]["from_time"])
     result.lid = lid_report(result.statistics, model.law, model.grid, state.psi,
-                            _law_contrast(model, state.temperature))
+                            _law_contrast(model, state.temperature), history=history)
     tolerance = steady_tolerance if result.status == "steady" else 1e-9
     result.heat_balance = heat_balance(result.statistics, model.internal_heating,
                                        wall_contrast(model), tolerance)

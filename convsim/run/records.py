@@ -159,11 +159,16 @@ def snapshot_fields(model, state) -> dict:
     eta_c = model.viscosities(state.temperature, state.psi)[1]
     u, w = face_velocities(grid, state.psi)
     q = diag.corner_gradients(grid, state.temperature, model.thermal)
+    derived = {}
+    if model.yields:               # the derived fields of model.fields.DERIVED
+        y = model.yield_fields(state)
+        derived = dict(strain_rate=y.strain_rate, stress=y.stress,
+                       yielded=y.yielded.astype(np.int8))
     return dict(state.fields, viscosity=eta_c, streamfunction=state.psi,
                 velocity_x=u, velocity_z=w,
                 temperature_profile=diag.horizontal_mean(state.temperature),
                 viscosity_profile=diag.horizontal_mean(eta_c),
-                q1=q[0], q2=q[1], q3=q[2], q4=q[3], step=state.step)
+                q1=q[0], q2=q[1], q3=q[2], q4=q[3], step=state.step, **derived)
 
 
 def final_result(model, state, decision, wall: float, series: dict, phase: dict) -> RunResult:

@@ -108,7 +108,7 @@ def run_case(task: CaseTask) -> dict:
         cfg = case_config(base, task.params, task.fixed)
         rec.update(rayleigh=cfg.physics.rayleigh, nx=cfg.domain.nx, nz=cfg.domain.nz,
                    aspect=cfg.domain.aspect, top_flow=cfg.boundaries.top_flow,
-                   viscosity_law=cfg.viscosity.law)
+                   viscosity_law=cfg.viscosity.law, yield_stress=cfg.viscosity.yield_stress)
         if task.start_file:
             cfg = cfg.replace(start__kind="snapshot", start__file=task.start_file,
                               start__continuation=())
@@ -135,8 +135,9 @@ def _result_columns(cfg: Config, result) -> dict:
         t_low, t_high = float(result.temperature.min()), float(result.temperature.max())
     law = ViscosityLaw.from_table(cfg.viscosity)
     eta = np.asarray(result.viscosity)
-    return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
-                **{k: float(v) for k, v in result.diagnostics.items()},
+    final = {k: float(v) for k, v in result.diagnostics.items()}   # the final state's ...
+    final.update(_statistics_columns(result, law, b))   # ... and the means' mobility wins
+    return dict(final, status=result.status, message=result.message,
                 interior_vrms=interior_rms_velocity(result.grid, result.psi),
                 steps=int(result.steps),
                 time=float(result.time), wall_seconds=float(result.wall_seconds),
@@ -147,7 +148,8 @@ def _result_columns(cfg: Config, result) -> dict:
 #: time-averaged quantities of a run that get ``<q>_mean`` and ``<q>_ci95`` columns
 MEAN_QUANTITIES = ("nusselt_top", "nusselt_bottom", "vrms", "surface_vrms",
                    "interior_temperature", "lid_thickness")
-LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contrast", "cells")
+LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contrast", "cells",
+               "switches", "breaking_events")          # the last two: the lid history
 
 
 def _statistics_columns(result, law, boundaries) -> dict:
@@ -165,7 +167,8 @@ def _statistics_columns(result, law, boundaries) -> dict:
         out[f"{q}_ci95"] = _float(est.get("ci95"))
     out["from_time"] = _float(stats.get("nusselt_top", {}).get("from_time"))
     for key in LID_COLUMNS:
-        out[key] = _float(lid.get(key)) if key != "cells" else int(lid.get(key, -1))
+        out[key] = (int(lid.get(key, -1)) if key in ("cells", "switches", "breaking_events")
+                    else _float(lid.get(key)))
     ra = float(result.series["rayleigh"][-1]) if len(result.series.get("rayleigh", ())) else \
         math.nan
     t_bottom = boundaries.bottom_value if boundaries.bottom_heat == "temperature" else \

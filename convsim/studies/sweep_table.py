@@ -55,7 +55,7 @@ COLUMNS = {
        if d.of_state},
     "interior_vrms": ("f", "1", "final rms velocity of the interior band, units kappa/d"),
     "settled": ("s", "1", "steady, statistically-steady or unfinished (README: time means)"),
-    "regime": ("s", "1", "mobile, sluggish, stagnant-lid, conductive or unclassified"),
+    "regime": ("s", "1", "mobile, sluggish, stagnant-lid, episodic, conductive or unclassified"),
     "from_time": ("f", "1", "start of the averaging window (end of the spin-up), units d^2/kappa"),
     "nusselt_top_mean": ("f", "1", "time-mean Nusselt number at the top"),
     "nusselt_top_ci95": ("f", "1", "95 % half-width of nusselt_top_mean"),
@@ -73,6 +73,12 @@ COLUMNS = {
     "rheological_temperature_scale": ("f", "1", "-1 / (d ln eta / dT) at the interior temperature"),
     "lid_viscosity_contrast": ("f", "1", "viscosity of the top row over the interior's"),
     "cells": ("i", "1", "convection cells at the end of the run"),
+    "switches": ("i", "1", "changes of the lid decision along the mobility series (2 or more: "
+                 "episodic)"),
+    "breaking_events": ("i", "1", "lid-breaking events (mobility crossing the mobile bound "
+                        "upward) in the averaging window"),
+    "yield_stress": ("f", "1", "yield stress sigma_y at the surface (0: no yielding), units "
+                     "eta_ref kappa/d^2"),
     "rayleigh_bottom": ("f", "1", "Rayleigh number with the viscosity at the bottom wall"),
     "rayleigh_interior": ("f", "1", "Rayleigh number with the viscosity at the interior temperature"),
     "steps": ("i", "1", "time steps taken"),

@@ -70,7 +70,9 @@ def test_the_step_report_carries_every_declared_diagnostic():
     assert report.nusselt_top == diag.nusselt_numbers(g, state.temperature, m.thermal)[0]
     assert report.vrms == diag.rms_velocity(g, state.psi)
     assert report.tendency_max > 0 and abs(report.energy_residual) < 1e-10
-    assert set(m.diagnostics(state)) == {n for n, d in diag.DIAGNOSTICS.items() if d.of_state}
+    assert set(m.diagnostics(state)) == {n for n, d in diag.DIAGNOSTICS.items()
+                                         if d.of_state and d.needs == ""}   # no yielding law
+    assert np.isnan(report.yielded_fraction)         # declared, not applicable: NaN
 
 
 def test_every_diagnostic_reaches_the_run_file_json_and_info(case_config, tmp_path):
@@ -78,8 +80,11 @@ def test_every_diagnostic_reaches_the_run_file_json_and_info(case_config, tmp_pa
     path = tmp_path / "run.h5"
     result = api.run(case_config("1a", "domain.nx=8", "domain.nz=8", "stop.max_steps=12"), path)
     summary = result.summary()
+    applicable = diag.applicable(yielding=False)          # constant viscosity
     with h5py.File(path, "r") as f:
-        for name, d in diag.DIAGNOSTICS.items():
+        assert not {n for n in diag.DIAGNOSTICS if n not in applicable} & set(f)
+        for name in applicable:
+            d = diag.DIAGNOSTICS[name]
             assert f[name].shape == (12,), name
             expected = cf_attributes(name, d.units, d.long_name)   # the declared text, CF form
             assert f[name].attrs["units"] == d.units
@@ -89,5 +94,5 @@ def test_every_diagnostic_reaches_the_run_file_json_and_info(case_config, tmp_pa
                 assert name in summary and f.attrs[f"final_{name}"] == summary[name], name
         np.testing.assert_array_equal(f["heat_imbalance"][:], result.series["heat_imbalance"])
     info = describe_run(path)
-    assert set(diag.DIAGNOSTICS) <= set(info["series"]["names"])
-    assert {n for n, d in diag.DIAGNOSTICS.items() if d.of_state} <= set(info["final"])
+    assert set(applicable) <= set(info["series"]["names"])
+    assert {n for n in applicable if diag.DIAGNOSTICS[n].of_state} <= set(info["final"])
