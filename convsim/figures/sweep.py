@@ -29,6 +29,7 @@ _HEIGHT = 2.6            # [in] of the axes part; legend rows below add to it
 _ROW = 0.16              # [in] per legend row
 _TITLE_CHARS = 62        # wrap width of a title at 7 pt in one column
 _LEGEND_CHARS = 50       # wrap width of a legend entry at 7 pt, beside its handle
+_RULE_CHARS = 56         # wrap width of the regime rule over a map (7 pt, one column)
 
 
 def _figure(legend_rows: int) -> tuple[Figure, object]:
@@ -181,7 +182,7 @@ def regime_map_plot(rayleigh, contrast, regimes, *, thresholds_text: str = "",
         ax.set_xlabel(x_label)
         ax.set_ylabel(y_label)
         if thresholds_text:
-            ax.set_title(textwrap.fill(thresholds_text, _TITLE_CHARS),
+            ax.set_title(textwrap.fill(thresholds_text, _RULE_CHARS),
                          fontsize=style.RC["legend.fontsize"])
         if present:
             fig.legend(loc="outside lower center", ncols=len(present), columnspacing=1.2,
