@@ -174,11 +174,7 @@ def format_info(info: dict) -> str:
         lines.append(f"  lid         regime {lid.get('regime')}, mobility {_num(lid.get('mobility'))}, "
                      f"thickness {_num(lid.get('lid_thickness'))}, T_i "
                      f"{_num(lid.get('interior_temperature'))}, {lid.get('cells')} cell(s)")
-        if lid.get("switches"):
-            times = ", ".join(f"{t:.4g}" for t in lid.get("breaking_times", ())[:8])
-            lines.append(f"              lid breaks {len(lid.get('breaking_times', ()))} time(s)"
-                         f" (t = {times}), {lid.get('switches')} switches, open "
-                         f"{_num(lid.get('open_fraction'))} of the time")
+        lines += _lid_history_lines(lid)
     physical = info.get("physical") or {}
     if physical:
         rows = list(physical.items())
@@ -191,3 +187,13 @@ def format_info(info: dict) -> str:
     if info["file"]["xdmf"]:
         lines.append(f"  xdmf        {info['file']['xdmf']}")
     return "\n".join(lines)
+
+
+def _lid_history_lines(lid: dict) -> list[str]:
+    """The lid-breaking events of a run whose lid switched (``convsim.model.lid``), or none."""
+    if not lid.get("switches"):
+        return []
+    times = ", ".join(f"{t:.4g}" for t in lid.get("breaking_times", ())[:8])
+    return [f"              lid breaks {len(lid.get('breaking_times', ()))} time(s) (t = "
+            f"{times}), {lid.get('switches')} switches, open {_num(lid.get('open_fraction'))} "
+            f"of the time"]
