@@ -171,3 +171,35 @@ values = [100.0, 120.0]
     assert (tmp_path / "fit" / "regime_map_yield_stress.png").is_file()
     rows = (tmp_path / "fit" / "regimes.csv").read_text().splitlines()
     assert [r.split(",")[-1] for r in rows[1:]] == ["mobile", "stagnant-lid"]
+
+
+def test_the_lid_history_reaches_the_report_and_the_statistics_group(tmp_path):
+    """The bursts series above, recorded row by row into the run's averages (vrms 50, surface
+    vrms 50 M), gives the same events as lid_history on the series itself; the lid report
+    calls the run episodic and the run file's group statistics/lid keeps the events."""
+    from convsim.files.runfile import read_statistics, write_statistics
+    from convsim.run.averages import RunAverages, lid_report
+    t = np.linspace(0.0, 10.0, 1001)
+    m = _bursts(t, [1.0, 4.0, 7.5])
+    averages = RunAverages(nz=4)
+    for when, value in zip(t, m):
+        averages.record(when, lambda v=value: dict(
+            nusselt_top=3.0, nusselt_bottom=3.0, vrms=50.0, surface_vrms=50.0 * v,
+            mean_temperature=0.5, interior_temperature=0.6, lid_thickness=0.1,
+            temperature_profile=np.full(4, 0.5), viscosity_profile=np.ones(4)))
+    history = averages.lid_history(0.0)
+    assert history == lid.lid_history(t, m)
+    stats = {name: dict(mean=value, ci95=0.0, from_time=0.0) for name, value in dict(
+        nusselt_top=3.0, vrms=50.0, surface_vrms=50.0 * float(np.mean(m)),
+        interior_temperature=0.6, lid_thickness=0.1).items()}
+    stats["viscosity_profile"] = dict(mean=[1.0] * 4, ci95=[0.0] * 4, from_time=0.0)
+    law = ViscosityLaw("frank-kamenetskii", thermal_contrast=1e5)
+    grid = Grid(4, 4)
+    report = lid_report(stats, law, grid, np.zeros(grid.node_shape), 1e5, history=history)
+    assert report["regime"] == "episodic" and report["breaking_events"] == 3
+    with h5py.File(tmp_path / "s.h5", "w") as f:
+        f.create_dataset("z", data=grid.z_cell)
+        write_statistics(f, dict(settled="unfinished", statistics={}, lid=report))
+        back = read_statistics(f)["lid"]
+    np.testing.assert_array_equal(back["breaking_times"], history.breaking_times)
+    assert back["regime"] == "episodic" and back["switches"] == 6
