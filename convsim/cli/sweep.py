@@ -142,8 +142,7 @@ def _run_fit(args) -> int:
                         interior=args.interior_column, contrast=args.contrast_column)
     out = Path(args.out) if args.out else Path(args.table).parent / "fit"
     figures = {y: out / f"{y}_against_{args.x}.png" for y in ys}
-    from convsim.figures.sweep import varies
-    mapped = varies([r["viscosity_contrast"] for r in report["regimes"]])   # not isoviscous
+    mapped = _contrast_map(report["regimes"])
     yielding = _yield_stresses_vary(report["regimes"])
     paths = [out / "fit.json", out / "regimes.csv", *([out / "regime_map.png"] if mapped else []),
              *([out / "regime_map_yield_stress.png"] if yielding else []), *figures.values()]
@@ -189,7 +188,7 @@ def _draw_regimes(rows: list, out, thresholds, contrast_column: str) -> None:
     import csv
     from convsim.files.atomic import atomic_path
     from convsim.figures import sweep as figures_sweep
-    if figures_sweep.varies([r["viscosity_contrast"] for r in rows]):  # isoviscous: no map
+    if _contrast_map(rows):
         figures_sweep.regime_map_figure(
             out / "regime_map.png", [r["rayleigh_bottom"] for r in rows],
             [r["viscosity_contrast"] for r in rows], [r["regime"] for r in rows],
@@ -205,6 +204,16 @@ def _draw_regimes(rows: list, out, thresholds, contrast_column: str) -> None:
         writer = csv.DictWriter(fh, fieldnames=list(rows[0]) if rows else ["case_id"])
         writer.writeheader()
         writer.writerows(rows)
+
+
+def _contrast_map(rows: list) -> bool:
+    """Whether to draw the viscosity-contrast / Ra map: not for an isoviscous sweep, nor for a
+    yield-stress sweep at one contrast (its diagram is over the yield stress)."""
+    from convsim.figures.sweep import varies
+    contrasts = [r["viscosity_contrast"] for r in rows]
+    if not varies(contrasts):
+        return False
+    return not (_yield_stresses_vary(rows) and len({c for c in contrasts if math.isfinite(c)}) == 1)
 
 
 def _yield_stresses_vary(rows: list) -> bool:
@@ -246,6 +255,9 @@ def _print_fits(report: dict, out) -> None:
     for r in report["regimes"]:
         counts[r["regime"]] = counts.get(r["regime"], 0) + 1
     print("regimes: " + ", ".join(f"{n} {k}" for k, n in counts.items()))
-    if not any(str(p).endswith("regime_map.png") for p in report.get("outputs", ())):
+    outputs = [str(p) for p in report.get("outputs", ())]
+    if any(p.endswith("regime_map_yield_stress.png") for p in outputs):
+        print("  regime diagram over yield stress and Ra: regime_map_yield_stress.png")
+    elif not any(p.endswith("regime_map.png") for p in outputs):
         print("  no regime map: every case is isoviscous (viscosity contrast 1)")
     print(f"  outputs in {out}")
