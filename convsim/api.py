@@ -41,17 +41,10 @@ def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
 def check_restart_config(path: str | Path, config: Config) -> None:
     """A restart may change only [stop] and [output]: refuse a file whose stored config is
     missing or unreadable, or differs elsewhere (it would not continue the same run)."""
-    import tomllib
     from convsim.config import to_dict
-    text = read_run(path).config_text
-    if not text.strip():
-        raise ConfigError(f"--restart {str(path)!r}: the file holds no stored config, so the "
-                          f"restart cannot be checked against the run; start a new run instead")
-    try:
-        saved = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"--restart {str(path)!r}: the stored config is not valid TOML "
-                          f"({exc}); the file cannot be continued") from None
+    from convsim.files.stored_config import stored_config
+    saved = stored_config(path, "the restart cannot be checked against the run; start a new run "
+                                "instead")
     new = to_dict(config)
     for table in saved:
         if table in ("stop", "output", "title"):
