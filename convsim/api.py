@@ -56,6 +56,22 @@ def check_restart_config(path: str | Path, config: Config) -> None:
                               f"config ({', '.join(keys)}); only [stop] and [output] may change")
 
 
+def _open_output(config: Config, output, restart, overwrite: bool):
+    """The run-file writer (None without output), the restart point (None for a new run) and
+    the output path: a restart appends to its own file after checking its stored config."""
+    if restart is not None:
+        check_restart_config(restart, config)
+        saved = read_run(restart, restart=True)
+        if not saved.restart:
+            raise ConfigError(f"--restart {str(restart)!r}: the file holds no restart state")
+        return RunFileWriter(restart, append=True), ResumePoint(saved.restart), restart
+    if output is None:
+        return None, None, None
+    writer = RunFileWriter(output, overwrite=overwrite)
+    check_writable(sidecar_path(output), overwrite)
+    return writer, None, output
+
+
 def _check_resources(config: Config, grid: Grid | None, output: Path | None) -> None:
     """Refuse a grid the machine's memory cannot hold; warn when the disk may fill up."""
     from convsim.files.commit import format_bytes, free_bytes
@@ -123,18 +139,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     if progress:
         from convsim.run.progress import ProgressDisplay
         observers.append(ProgressDisplay(config, always=True))
-    resume = None
-    if restart is not None:
-        check_restart_config(restart, config)
-        saved = read_run(restart, restart=True)
-        if not saved.restart:
-            raise ConfigError(f"--restart {str(restart)!r}: the file holds no restart state")
-        resume = ResumePoint(saved.restart)
-        writer = RunFileWriter(restart, append=True)
-        output = restart
-    elif output is not None:
-        writer = RunFileWriter(output, overwrite=overwrite)
-        check_writable(sidecar_path(output), overwrite)
+    writer, resume, output = _open_output(config, output, restart, overwrite)
     _check_resources(config, grid, None if output is None else Path(output))
     if output is not None:
         observers.insert(0, RunFileObserver(writer))
