@@ -106,7 +106,9 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     config : Config or path
         A config, or the path of a TOML config file (read with ``load_config``).
     output : path, optional
-        Run file to write (HDF5), with its XDMF sidecar.  None keeps everything in memory.
+        Run file to write (HDF5), with its XDMF sidecar.  The series rows are streamed to it
+        (memory does not grow with the steps) and the result's ``series`` is read back from
+        it (after a restart: every row of the file).  None keeps everything in memory.
     overwrite : bool
         Replace an existing output file and sidecar.
     restart : path, optional
@@ -144,9 +146,12 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     if output is not None:
         observers.insert(0, RunFileObserver(writer))
     model = build_model(config, grid)
-    sim = Simulation(config, model, start_temperature(config, model.grid), observers)
+    sim = Simulation(config, model, start_temperature(config, model.grid), observers,
+                     keep_series=output is None)
     result = sim.run(resume)
     result.output = None if output is None else str(output)
+    if output is not None:       # the rows were streamed to the file, not kept: read them back
+        result.series = read_run(output).series
     if scales is not None:
         from convsim.physical import physical_quantities
         result.scales = scales
