@@ -20,11 +20,17 @@ from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable, read_run
 from convsim.files.xdmf import sidecar_path, write_xdmf
 from convsim.threads import limit_threads
-from convsim.views import open_run
 
 __all__ = ["load_config", "run", "open_run", "start_temperature", "check_restart_config"]
 
 log = logging.getLogger(__name__)
+
+
+def open_run(path: str | Path, *, physical: bool = True):
+    """A run file as an ``xarray.Dataset`` (``convsim.views.open_run``; xarray and the
+    unit library are imported on first use, not at start-up)."""
+    from convsim.views import open_run as open_view
+    return open_view(path, physical=physical)
 
 
 def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:

@@ -372,13 +372,13 @@ def _physical_coordinates(f, config_text: str) -> None:
     series_time_myr (Myr) that :func:`_append_physical_times` keeps in step."""
     import tomllib
     from convsim.config import parse_config
-    from convsim.units import scales_from_body
     try:
         body = parse_config(tomllib.loads(config_text)).body
     except Exception:       # a config the run accepted; anything else: no physical coordinates
         return
     if body is None:
         return
+    from convsim.units import scales_from_body      # the unit library only when needed
     scales = scales_from_body(body)
     for name in ("x", "z", "x_node", "z_node"):
         d = f.create_dataset(f"{name}_km", data=scales.length_to_km(f[name][:]))
