@@ -17,7 +17,8 @@ from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.run.layer import resolve
-from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable, read_run
+from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable
+from convsim.files.reader import read_run
 from convsim.files.xdmf import sidecar_path, write_xdmf
 from convsim.threads import limit_threads
 

@@ -11,7 +11,7 @@ import tomllib
 from pathlib import Path
 
 from convsim.errors import ConfigError
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 
 __all__ = ["stored_config"]
 

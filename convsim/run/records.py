@@ -49,7 +49,7 @@ class Observer:
 
 @dataclass
 class ResumePoint:
-    """The restart group of a run file, as plain data (see ``convsim.files.runfile.read_run``)."""
+    """The restart group of a run file, as plain data (see ``convsim.files.reader.read_run``)."""
 
     state: dict
 

@@ -7,7 +7,7 @@ import numpy as np
 
 from convsim import api
 from convsim.config import Config
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 from convsim.model import diagnostics
 from convsim.run.build import build_model
 from convsim.run.interrupt import DeferredInterrupt
