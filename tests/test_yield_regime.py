@@ -21,7 +21,7 @@ import pytest
 from convsim import api
 from convsim.config import load_config
 from convsim.files.info import describe_run
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 from convsim.files.xdmf import xdmf_text
 from convsim.model import lid
 from convsim.model.diagnostics import DIAGNOSTICS, applicable
@@ -177,7 +177,7 @@ def test_the_lid_history_reaches_the_report_and_the_statistics_group(tmp_path):
     """The bursts series above, recorded row by row into the run's averages (vrms 50, surface
     vrms 50 M), gives the same events as lid_history on the series itself; the lid report
     calls the run episodic and the run file's group statistics/lid keeps the events."""
-    from convsim.files.runfile import read_statistics, write_statistics
+    from convsim.files.statistics_group import read_statistics, write_statistics
     from convsim.run.averages import RunAverages, lid_report
     t = np.linspace(0.0, 10.0, 1001)
     m = _bursts(t, [1.0, 4.0, 7.5])

@@ -25,7 +25,7 @@ from matplotlib import colors as mcolors
 from convsim.figures import style
 from convsim.figures.fields import _colorbar, _field_axes, draw_field, draw_streamlines
 from convsim.figures.presentation import Presentation, presentation_for
-from convsim.files.runfile import RunFile
+from convsim.files.reader import RunFile
 from convsim.model.fields import DERIVED
 from convsim.model.lid import RegimeThresholds, lid_history
 from convsim.model.plates import ISOVISCOUS_F80, top_velocity
