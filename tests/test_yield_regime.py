@@ -136,6 +136,18 @@ def test_episodic_label_on_a_series_with_known_switches():
     h = lid.lid_history(t, wander)
     assert h.switches == 0 and h.breaking_times == ()
     assert h.open_fraction > 0.9                     # open from the first crossing of 0.6
+    # counted from start = 3.0 (an averaging window): the first burst is before it; the lid is
+    # closed when the window opens, so the burst at 4 still counts, and the window's share
+    window = lid.lid_history(t, _bursts(t, starts), start=3.0)
+    np.testing.assert_allclose(window.breaking_times, [s + crossing for s in starts[1:]],
+                               atol=1e-12)
+    assert window.switches == 4
+    assert window.open_fraction == pytest.approx(open_time * 2 / 3 / 7.0, abs=2 * 0.005)
+    # a window that opens between the bounds on the way up: the break counts only when the
+    # samples before it say the lid was closed
+    cut = t >= 4.05
+    assert lid.lid_history(t[cut], _bursts(t, [4.0])[cut]).breaking_times == ()
+    assert len(lid.lid_history(t, _bursts(t, [4.0]), start=4.05).breaking_times) == 1
 
 
 def test_yield_stress_diagram_classifies_a_tiny_sweep(tmp_path):

@@ -12,9 +12,10 @@ Drawn in the house style (:mod:`convsim.figures.style`) from a
   of the surface deformation are shaded, so narrow shaded zones between flat
   stretches of u are plates, and a profile shaded all over is not plate-like.
 - ``mobility_figure``: the mobility M(t) = surface vrms / vrms of the series with
-  the two bounds of the lid decision (``convsim.model.lid``), the lid-breaking
-  events the run recorded (group ``statistics/lid``, over its averaging window)
-  or, for an unfinished run, those of the whole series, and the regime word.
+  the two bounds of the lid decision (``convsim.model.lid``), the start of the
+  averaging window, the lid-breaking events the run recorded (group
+  ``statistics/lid``, over that window) or, for a file without them, those of the
+  whole series, and the regime word.
 """
 
 from __future__ import annotations
@@ -160,6 +161,11 @@ def draw_mobility(ax, run: RunFile, pres: Presentation,
     if not len(times):
         ax.plot([], [], color=style.LINE_COLORS[1], linewidth=0.8,
                 label=f"no lid break ({where})")
+    window = ((run.statistics or {}).get("statistics") or {}).get("nusselt_top") or {}
+    start = window.get("from_time")
+    if start is not None and np.isfinite(start) and len(t) and start > s["series_time"][0]:
+        ax.axvline(pres.time(start), color=style.GUIDE_COLOR, linewidth=0.7, linestyle="-.",
+                   label="averaging window starts")
     lid = (run.statistics or {}).get("lid") or {}
     word = lid.get("regime")
     ax.set_title(f"regime: {word}" if word else "regime: (run unfinished)", loc="left")

@@ -44,7 +44,9 @@ the reference viscosity.
   until M >= mobile_ratio, when it *breaks* (a lid-breaking event, at the time
   of that upward crossing, interpolated linearly between the samples) and is
   *open* until M falls below stagnant_ratio again (the lid re-forms).  A series
-  that starts between the bounds is undecided until it first reaches one.
+  that starts between the bounds is undecided until it first reaches one; a run
+  counts events in its averaging window, with the decision the samples before the
+  window reached.
   ``episodic`` (``regime`` with ``switches``): the lid breaks and re-forms at
   least once in the averaging window (two or more changes of the decision),
   given a viscosity contrast that makes a lid (>= stagnant_contrast); it takes
@@ -151,27 +153,35 @@ class LidHistory:
             closed_fraction=self.closed_fraction)
 
 
-def lid_history(times, mobility, thresholds: RegimeThresholds = RegimeThresholds()) -> LidHistory:
-    """The lid decision along a mobility series M(t) (module doc); non-finite M are skipped."""
+def lid_history(times, mobility, thresholds: RegimeThresholds = RegimeThresholds(),
+                start: float | None = None) -> LidHistory:
+    """The lid decision along a mobility series M(t) (module doc); non-finite M are skipped.
+
+    ``start``: count events, switches and time shares only from this time on (the
+    averaging window); the samples before it still set the decision the window opens with.
+    """
     t, m = np.asarray(times, float), np.asarray(mobility, float)
     keep = np.isfinite(t) & np.isfinite(m)
     t, m = t[keep], m[keep]
-    if t.size < 2:
+    first = 0 if start is None else int(np.searchsorted(t, start, side="left"))
+    if t.size - first < 2:
         return LidHistory()
     hi, lo = thresholds.mobile_ratio, thresholds.stagnant_ratio
     state = np.zeros(t.size, dtype=int)          # +1 open, -1 closed, 0 undecided
     current, breaks, switches = 0, [], 0
     for i, value in enumerate(m):
+        counted = i >= first
         if value >= hi and current != 1:
-            if current == -1:
+            if current == -1 and counted:
                 breaks.append(_crossing(t, m, i, hi))
                 switches += 1
             current = 1
         elif value < lo and current != -1:
-            switches += current == 1
+            switches += current == 1 and counted
             current = -1
         state[i] = current
-    weight = np.gradient(t) if t.size > 1 else np.ones(1)
+    t, state = t[first:], state[first:]
+    weight = np.gradient(t)
     total = float(weight.sum())
     return LidHistory(tuple(breaks), int(switches), float(weight[state == 1].sum() / total),
                       float(weight[state == -1].sum() / total))

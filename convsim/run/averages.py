@@ -166,14 +166,14 @@ class RunAverages:
 
     def lid_history(self, from_time: float,
                     thresholds: lid.RegimeThresholds = lid.RegimeThresholds()) -> lid.LidHistory:
-        """The lid decision of the mobility series M = surface vrms / vrms over t >= from_time
-        (``convsim.model.lid.lid_history``; the recorded rows, thinned as the buffer is)."""
+        """The lid decision of the mobility series M = surface vrms / vrms, counted over
+        t >= from_time (``convsim.model.lid.lid_history``; the recorded rows, thinned as the
+        buffer is; the rows before from_time set the decision the window opens with)."""
         t, scalars, _, _ = self._columns()
-        keep = t >= from_time
-        vrms = scalars["vrms"][keep]
+        vrms = scalars["vrms"]
         with np.errstate(divide="ignore", invalid="ignore"):
-            m = np.where(vrms > 0, scalars["surface_vrms"][keep] / vrms, np.nan)
-        return lid.lid_history(t[keep], m, thresholds)
+            m = np.where(vrms > 0, scalars["surface_vrms"] / vrms, np.nan)
+        return lid.lid_history(t, m, thresholds, start=from_time)
 
     def profile_means(self, from_time: float) -> dict:
         """Time means and half-widths of the two profiles over t >= from_time."""
