@@ -98,7 +98,7 @@ def statistics_lines(summary: dict) -> list[str]:
         if lid.get("switches"):
             times = ", ".join(_g(t, 4) for t in lid.get("breaking_times", [])[:8])
             lines.append(f"  lid breaks {lid.get('breaking_events')} time(s) at t = {times}; "
-                         f"{lid['switches']} switches, open {_g(lid['open_fraction'], 3)} of "
+                         f"{lid['switches']} switch(es), open {_g(lid['open_fraction'], 3)} of "
                          f"the time")
     return lines
 

@@ -157,7 +157,8 @@ def draw_mobility(ax, run: RunFile, pres: Presentation,
     times, where = _breaking_times(run, thresholds)
     for i, when in enumerate(times):
         ax.axvline(pres.time(when), color=style.LINE_COLORS[1], linewidth=0.8,
-                   label=f"{len(times)} lid breaks ({where})" if i == 0 else None)
+                   label=f"{len(times)} lid break{'s' if len(times) > 1 else ''} ({where})"
+                   if i == 0 else None)
     if not len(times):
         ax.plot([], [], color=style.LINE_COLORS[1], linewidth=0.8,
                 label=f"no lid break ({where})")

@@ -196,5 +196,5 @@ def _lid_history_lines(lid: dict) -> list[str]:
         return []
     times = ", ".join(f"{t:.4g}" for t in lid.get("breaking_times", ())[:8])
     return [f"              lid breaks {len(lid.get('breaking_times', ()))} time(s) (t = "
-            f"{times}), {lid.get('switches')} switches, open {_num(lid.get('open_fraction'))} "
+            f"{times}), {lid.get('switches')} switch(es), open {_num(lid.get('open_fraction'))} "
             f"of the time"]
