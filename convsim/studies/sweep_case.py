@@ -108,13 +108,14 @@ def run_case(task: CaseTask) -> dict:
         cfg = case_config(base, task.params, task.fixed)
         rec.update(rayleigh=cfg.physics.rayleigh, nx=cfg.domain.nx, nz=cfg.domain.nz,
                    aspect=cfg.domain.aspect, top_flow=cfg.boundaries.top_flow,
-                   viscosity_law=cfg.viscosity.law, yield_stress=cfg.viscosity.yield_stress)
+                   viscosity_law=cfg.viscosity.law)
         if task.start_file:
             cfg = cfg.replace(start__kind="snapshot", start__file=task.start_file,
                               start__continuation=())
         Path(task.run_file).parent.mkdir(parents=True, exist_ok=True)
         result = api.run(cfg, task.run_file, overwrite=True)
         rec.update(_result_columns(cfg, result))
+        rec.update(_yield_columns(cfg, result))
     except Exception as exc:          # any failure of one case is data, not a crash
         rec.update(status=FAILED, error=f"{type(exc).__name__}: {exc}")
         log.debug("case %s failed:\n%s", task.case_id, traceback.format_exc())
@@ -135,9 +136,8 @@ def _result_columns(cfg: Config, result) -> dict:
         t_low, t_high = float(result.temperature.min()), float(result.temperature.max())
     law = ViscosityLaw.from_table(cfg.viscosity)
     eta = np.asarray(result.viscosity)
-    final = {k: float(v) for k, v in result.diagnostics.items()}   # the final state's ...
-    final.update(_statistics_columns(result, law, b))   # ... and the means' mobility wins
-    return dict(final, status=result.status, message=result.message,
+    return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
+                **{k: float(v) for k, v in result.diagnostics.items()},
                 interior_vrms=interior_rms_velocity(result.grid, result.psi),
                 steps=int(result.steps),
                 time=float(result.time), wall_seconds=float(result.wall_seconds),
@@ -148,8 +148,7 @@ def _result_columns(cfg: Config, result) -> dict:
 #: time-averaged quantities of a run that get ``<q>_mean`` and ``<q>_ci95`` columns
 MEAN_QUANTITIES = ("nusselt_top", "nusselt_bottom", "vrms", "surface_vrms",
                    "interior_temperature", "lid_thickness")
-LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contrast", "cells",
-               "switches", "breaking_events")          # the last two: the lid history
+LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contrast", "cells")
 
 
 def _statistics_columns(result, law, boundaries) -> dict:
@@ -167,8 +166,7 @@ def _statistics_columns(result, law, boundaries) -> dict:
         out[f"{q}_ci95"] = _float(est.get("ci95"))
     out["from_time"] = _float(stats.get("nusselt_top", {}).get("from_time"))
     for key in LID_COLUMNS:
-        out[key] = (int(lid.get(key, -1)) if key in ("cells", "switches", "breaking_events")
-                    else _float(lid.get(key)))
+        out[key] = _float(lid.get(key)) if key != "cells" else int(lid.get(key, -1))
     ra = float(result.series["rayleigh"][-1]) if len(result.series.get("rayleigh", ())) else \
         math.nan
     t_bottom = boundaries.bottom_value if boundaries.bottom_heat == "temperature" else \
@@ -181,3 +179,15 @@ def _statistics_columns(result, law, boundaries) -> dict:
 
 def _float(value) -> float:
     return math.nan if value is None else float(value)
+
+
+# -- a lid that can yield (issue 11) ---------------------------------------------------------------
+def _yield_columns(cfg: Config, result) -> dict:
+    """The yield stress and the lid history (``convsim.model.lid.lid_history``) as table
+    columns, and the mobility of the means again: the final state's ``mobility`` diagnostic
+    has the same name and must not replace it."""
+    lid = result.lid or {}
+    return dict(yield_stress=float(cfg.viscosity.yield_stress),
+                switches=int(lid.get("switches", -1)),
+                breaking_events=int(lid.get("breaking_events", -1)),
+                mobility=_float(lid.get("mobility")))
