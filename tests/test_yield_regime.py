@@ -215,3 +215,30 @@ def test_the_lid_history_reaches_the_report_and_the_statistics_group(tmp_path):
         back = read_statistics(f)["lid"]
     np.testing.assert_array_equal(back["breaking_times"], history.breaking_times)
     assert back["regime"] == "episodic" and back["switches"] == 6
+
+
+def test_the_yielding_figures_draw_the_saved_fields(tmp_path):
+    """The figures of a yielding run (convsim.figures.plates) draw the file's own values: the
+    yielded panel the 0/1 flag, the strain-rate panel e_II, the surface velocity the one-sided
+    second-order u = (3 psi_n - 4 psi_n-1 + psi_n-2) / (2 dz) of the saved streamfunction
+    (hand formula), the mobility panel the series M = surface_vrms / vrms (Tackley 2000);
+    ``plot_run`` writes both files."""
+    from convsim.figures.fields import plot_run
+    from convsim.figures.plates import mobility_figure, yielding_figure
+    _, path, _ = _yield_run(tmp_path)
+    run = read_run(path)
+    fig = yielding_figure(run)
+    meshes = {a.get_label(): a for ax in fig.axes for a in ax.get_children()
+              if hasattr(a, "get_array") and a.get_label() in ("strain_rate", "yielded")}
+    np.testing.assert_array_equal(np.asarray(meshes["yielded"].get_array()).reshape(
+        run.fields["yielded"].shape), run.fields["yielded"])
+    np.testing.assert_allclose(np.asarray(meshes["strain_rate"].get_array()),
+                               run.fields["strain_rate"], rtol=1e-12)
+    psi, dz = run.fields["streamfunction"], run.z_node[1] - run.z_node[0]
+    u = (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * dz)
+    lines = [line for ax in fig.axes for line in ax.get_lines() if len(line.get_ydata()) == u.size]
+    np.testing.assert_allclose(lines[0].get_ydata(), u, rtol=1e-12)
+    m = mobility_figure(run).axes[0].get_lines()[0].get_ydata()
+    np.testing.assert_allclose(m, run.series["surface_vrms"] / run.series["vrms"], rtol=1e-12)
+    written = plot_run(path, out_dir=tmp_path / "fig", formats=("png",))
+    assert {p.name for p in written} >= {"yield_yielding.png", "yield_mobility.png"}
