@@ -17,8 +17,9 @@ def _limiter(r, code):
 
     The face value is up + phi(r) (down - up) / 2 with r = (up - up2) / (down - up).
     phi = (2 + r) / 3 is the kappa = 1/3 upwind-biased interpolation (third order on
-    smooth fields; 'unlimited', not TVD); Koren's limiter is that line bounded by
-    0, 2 r and 2 (Koren 1993; Hundsdorfer & Verwer 2003, ch. III; from memory).
+    smooth fields; 'unlimited', not TVD: ``_face_value`` evaluates it without r); Koren's
+    limiter is that line bounded by 0, 2 r and 2 (Koren 1993; Hundsdorfer & Verwer 2003,
+    ch. III; from memory).
     """
     if code == 0:
         return 0.0
@@ -30,8 +31,6 @@ def _limiter(r, code):
         return max(0.0, max(min(2.0 * r, 1.0), min(r, 2.0)))
     if code == 5:
         return max(0.0, min(min(2.0 * r, (2.0 + r) / 3.0), 2.0))
-    if code == 6:
-        return (2.0 + r) / 3.0
     return max(0.0, min(min(2.0 * r, 0.5 * (1.0 + r)), 2.0))
 
 
