@@ -157,8 +157,10 @@ class Numerics:
 
     advection: str = _key("advection scheme: TVD (second order, limited) or first-order upwind",
                           default="tvd", choices=ADVECTION_SCHEMES)
-    limiter: str = _key("flux limiter of the TVD scheme", default="van-leer",
-                        choices=LIMITERS)
+    limiter: str = _key(
+        "flux limiter of the TVD scheme; koren: the third-order kappa = 1/3 interpolation, "
+        "limited; unlimited: the same without a limiter (not TVD; smooth steady cases)",
+        default="van-leer", choices=LIMITERS)
     time_scheme: str = _key("IMEX integrator: sbdf2 (second order) or euler (first order)",
                             default="sbdf2", choices=TIME_SCHEMES)
     cfl: float = _key("Courant number of the adaptive time step", default=0.4, gt=0.0, le=2.0)

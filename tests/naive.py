@@ -12,12 +12,16 @@ def limiter(r, name):
         return (r + abs(r)) / (1.0 + abs(r))
     if name == "superbee":
         return max(0.0, min(2.0 * r, 1.0), min(r, 2.0))
+    if name == "koren":     # Koren (1993); 2 x psi of Hundsdorfer & Verwer (2003) ch. III, from memory
+        return max(0.0, min(2.0 * r, (2.0 + r) / 3.0, 2.0))
     if name == "mc":
         return max(0.0, min(2.0 * r, 0.5 * (1.0 + r), 2.0))
     raise ValueError(name)
 
 
 def face_value(up2, up, down, name):
+    if name == "unlimited":                   # kappa = 1/3: (1 - k)/4 upwind + (1 + k)/4 downwind
+        return up + (1.0 - 1.0 / 3.0) / 4.0 * (up - up2) + (1.0 + 1.0 / 3.0) / 4.0 * (down - up)
     if down == up:
         return up
     r = (up - up2) / (down - up)

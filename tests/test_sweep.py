@@ -320,3 +320,29 @@ def test_sweep_command(tmp_path, capsys):
     assert main(["sweep", str(bad), "--out", str(tmp_path / "bad")]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "did you mean 'rayleigh'" in err
+
+
+# -- Ra at the stated reference (issue 10) ------------------------------------------------------
+def test_sweep_states_ra_at_the_bottom_and_the_table_holds_all_three(tmp_path):
+    """The shipped stagnant-lid base states Ra at the bottom wall; the table restates it at the
+    top and bottom.  Hand formula: Frank-Kamenetskii eta = exp(-ln(contrast) T), T = 0 at the
+    top and 1 at the bottom, so Ra_top = Ra_bottom / contrast."""
+    base = ROOT / "configs" / "stagnant_lid_base.toml"
+    spec = load_sweep(write(tmp_path, f"""
+base = "{base}"
+combine = "zip"
+[fixed]
+domain.nx = 8
+domain.nz = 8
+stop.max_steps = 20
+[[axis]]
+key = "viscosity.thermal_contrast"
+values = [1e2, 1e4]
+[[axis]]
+key = "physics.rayleigh"
+values = [1e5, 1e6]
+"""))
+    table = read_table(run_sweep(spec, tmp_path / "out", jobs=1).table_csv)
+    assert list(table["rayleigh_reference"]) == ["bottom", "bottom"]
+    np.testing.assert_allclose(table["rayleigh_bottom"], [1e5, 1e6], rtol=1e-12)
+    np.testing.assert_allclose(table["rayleigh_top"], [1e5 / 1e2, 1e6 / 1e4], rtol=1e-12)

@@ -200,7 +200,9 @@ STAGNANT_LID_THEORY = {
     "source": ("Solomatov & Moresi (2000), J. Geophys. Res. 105, 21795-21817: the asymptotic "
                "stagnant-lid scaling of bottom-heated convection, theta = d ln eta / dT at "
                "the interior temperature (1 / rheological_temperature_scale), Ra_i with the "
-               "interior viscosity (quoted from memory; their prefactor is not quoted here)"),
+               "interior viscosity. Exponents quoted from memory; we do not recall their "
+               "prefactor a reliably, so only the Ra_i exponent is compared (theta's -4/3 is "
+               "imposed by the fit)"),
 }
 
 

@@ -16,8 +16,10 @@ THERMAL_CONDITIONS = ("temperature", "flux")
 SIDE_CONDITIONS = ("reflecting", "periodic")
 #: Advection scheme: limited second order (TVD) or first-order upwind.
 ADVECTION_SCHEMES = ("tvd", "upwind")
-#: Flux limiters of the TVD scheme (``model.kernels.LIMITER_CODES`` adds 'upwind').
-LIMITERS = ("van-leer", "minmod", "superbee", "mc")
+#: Flux limiters of the TVD scheme (``model.kernels.LIMITER_CODES`` adds 'upwind'); 'koren'
+#: bounds the third-order kappa = 1/3 interpolation; 'unlimited' is that interpolation without a
+#: limiter (third order on smooth fields, not TVD: for smooth steady benchmark work).
+LIMITERS = ("van-leer", "minmod", "superbee", "mc", "koren", "unlimited")
 #: IMEX time integrators.
 TIME_SCHEMES = ("sbdf2", "euler")
 #: Variable viscosity: reuse the Stokes factor as a CG preconditioner while it pays, or refactor.

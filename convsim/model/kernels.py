@@ -7,12 +7,20 @@ The kernels trust their inputs: shapes and codes are checked by the callers in
 import numpy as np
 from numba import njit
 
-LIMITER_CODES = {"upwind": 0, "minmod": 1, "van-leer": 2, "superbee": 3, "mc": 4}
+LIMITER_CODES = {"upwind": 0, "minmod": 1, "van-leer": 2, "superbee": 3, "mc": 4, "koren": 5,
+                 "unlimited": 6}
 
 
 @njit(cache=True, inline="always")
 def _limiter(r, code):
-    """Flux limiter phi(r) of the TVD family; phi = 0 is first-order upwind."""
+    """Flux limiter phi(r) of the TVD family; phi = 0 is first-order upwind.
+
+    The face value is up + phi(r) (down - up) / 2 with r = (up - up2) / (down - up).
+    phi = (2 + r) / 3 is the kappa = 1/3 upwind-biased interpolation (third order on
+    smooth fields; 'unlimited', not TVD: ``_face_value`` evaluates it without r); Koren's
+    limiter is that line bounded by 0, 2 r and 2 (Koren 1993; Hundsdorfer & Verwer 2003,
+    ch. III; from memory).
+    """
     if code == 0:
         return 0.0
     if code == 1:
@@ -21,12 +29,16 @@ def _limiter(r, code):
         return (r + abs(r)) / (1.0 + abs(r))
     if code == 3:
         return max(0.0, max(min(2.0 * r, 1.0), min(r, 2.0)))
+    if code == 5:
+        return max(0.0, min(min(2.0 * r, (2.0 + r) / 3.0), 2.0))
     return max(0.0, min(min(2.0 * r, 0.5 * (1.0 + r)), 2.0))
 
 
 @njit(cache=True, inline="always")
 def _face_value(up2, up, down, code):
     """Limited upwind-biased face value from the two upwind cells and the downwind one."""
+    if code == 6:       # unlimited kappa = 1/3: also where down = up (r undefined)
+        return up + ((up - up2) + 2.0 * (down - up)) / 6.0
     delta = down - up
     if delta == 0.0:
         return up

@@ -106,7 +106,9 @@ def run_case(task: CaseTask) -> dict:
     try:
         base = parse_config(tomllib.loads(task.base_toml), source="base config")
         cfg = case_config(base, task.params, task.fixed)
-        rec.update(rayleigh=cfg.physics.rayleigh, nx=cfg.domain.nx, nz=cfg.domain.nz,
+        rec.update(rayleigh=cfg.physics.rayleigh,
+                   rayleigh_reference=cfg.physics.rayleigh_reference,     # issue 10: stated Ra
+                   nx=cfg.domain.nx, nz=cfg.domain.nz,
                    aspect=cfg.domain.aspect, top_flow=cfg.boundaries.top_flow,
                    viscosity_law=cfg.viscosity.law)
         if task.start_file:
@@ -154,9 +156,10 @@ LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contr
 def _statistics_columns(result, law, boundaries) -> dict:
     """Time means, intervals, settled word, regime and lid diagnostics as table columns.
 
-    ``rayleigh_bottom`` and ``rayleigh_interior`` restate the run's Rayleigh number
-    (defined with eta = 1) with the viscosity at the bottom wall (its temperature,
-    z = 0) and at the time-mean interior temperature (z = 1/2): Ra / eta there.
+    ``rayleigh_top``, ``rayleigh_bottom`` and ``rayleigh_interior`` restate the run's
+    Rayleigh number (defined with eta = 1) with the viscosity at the top wall (its
+    temperature, z = 1), the bottom wall (z = 0) and the time-mean interior temperature
+    (z = 1/2): Ra / eta there, whatever reference the config stated Ra at.
     """
     stats, lid = result.statistics or {}, result.lid or {}
     out = {"settled": result.settled, "regime": lid.get("regime", "")}
@@ -172,6 +175,9 @@ def _statistics_columns(result, law, boundaries) -> dict:
     t_bottom = boundaries.bottom_value if boundaries.bottom_heat == "temperature" else \
         float(result.temperature[0].mean())
     out["rayleigh_bottom"] = ra / float(law(t_bottom, 0.0))
+    t_top = boundaries.top_value if boundaries.top_heat == "temperature" else \
+        float(result.temperature[-1].mean())
+    out["rayleigh_top"] = ra / float(law(t_top, 1.0))
     t_i = out["interior_temperature_mean"]
     out["rayleigh_interior"] = ra / float(law(t_i, 0.5)) if math.isfinite(t_i) else math.nan
     return out

@@ -42,7 +42,8 @@ COLUMNS = {
     "case_id": ("s", "1", "case identifier, stable from the parameter values"),
     "index": ("i", "1", "position of the case in the sweep"),
     "status": ("s", "1", "steady, mean-precision, end-time, step-limit, diverged, interrupted, or failed"),
-    "rayleigh": ("f", "1", "Rayleigh number of the case"),
+    "rayleigh": ("f", "1", "Rayleigh number of the case, at its rayleigh_reference"),
+    "rayleigh_reference": ("s", "1", "where the case states Ra: top, bottom or interior"),
     "nx": ("i", "1", "cells across the box"),
     "nz": ("i", "1", "cells through the depth"),
     "aspect": ("f", "1", "box width over depth"),
@@ -79,8 +80,10 @@ COLUMNS = {
                         "upward) in the averaging window"),
     "yield_stress": ("f", "1", "yield stress sigma_y at the surface (0: no yielding), units "
                      "eta_ref kappa/d^2"),
+    "rayleigh_top": ("f", "1", "Rayleigh number with the viscosity at the top wall"),
     "rayleigh_bottom": ("f", "1", "Rayleigh number with the viscosity at the bottom wall"),
-    "rayleigh_interior": ("f", "1", "Rayleigh number with the viscosity at the interior temperature"),
+    "rayleigh_interior": ("f", "1", "Rayleigh number with the viscosity at the time-mean interior "
+                          "temperature (z = 1/2)"),
     "steps": ("i", "1", "time steps taken"),
     "time": ("f", "1", "final time, units d^2/kappa"),
     "wall_seconds": ("f", "s", "wall time of the run loop"),
