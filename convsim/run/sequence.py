@@ -31,6 +31,7 @@ def coarse_config(config: Config, grid: Grid) -> Config | None:
     n = config.start.coarse_grid
     if n == 0 or config.start.kind == "snapshot" or config.start.continuation or grid.nz <= n:
         return None
+    n = max(n, (grid.nz + 1) // 2)          # halve at most: 128 from 64, which sequences from 32
     nx = max(4, round(grid.nx * n / grid.nz))
     return config.replace(domain__nx=nx, domain__nz=n, stop__steady=True)
 
