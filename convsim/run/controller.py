@@ -211,8 +211,9 @@ class Simulation:
         for k, v in report.seconds.items():
             p.phase[k] = p.phase.get(k, 0.0) + v
         p.series.record(report, p.model.rayleigh)
-        p.averages.record(new.time, lambda: step_quantities(
-            self.grid, new.temperature, new.psi, p.model.viscosities(new.temperature)[1], report))
+        p.averages.record(new.time, lambda: step_quantities(      # eta with the strain rate
+            self.grid, new.temperature, new.psi,
+            p.model.viscosities(new.temperature, new.psi)[1], report))
         self._emit("on_step", report)
         return report, None
 
