@@ -87,7 +87,8 @@ def test_grid_sequencing_reaches_the_direct_steady_state():
     """Case 1a of Blankenbach et al. (1989) (published Nu = 4.884409, quoted from memory) on 24
     cells, directly and from the 12-cell steady state (start.coarse_grid = 12): the same
     discrete steady state (Nu to 1e-7), within 1 % of the published Nu, and the sequenced run
-    starts at it (its first recorded Nu is already within 1 %; the one-cell start is not)."""
+    starts near it (its first recorded vrms within 3 % of the final one; the config's own
+    conductive start is far from it) and needs fewer steps."""
     from convsim.api import run
     from convsim.config import load_config
     cfg = load_config(bench.case_config_path("1a")).replace(domain__nx=24, domain__nz=24)
@@ -96,9 +97,9 @@ def test_grid_sequencing_reaches_the_direct_steady_state():
     assert direct.status == sequenced.status == "steady"
     assert sequenced.nusselt_top == pytest.approx(direct.nusselt_top, rel=1e-7)
     assert direct.nusselt_top == pytest.approx(4.884409, rel=0.01)
-    first = sequenced.series["nusselt_top"][0]
-    assert first == pytest.approx(direct.nusselt_top, rel=0.01)
-    assert abs(direct.series["nusselt_top"][0] / direct.nusselt_top - 1.0) > 0.01
+    assert sequenced.series["vrms"][0] == pytest.approx(direct.vrms, rel=0.03)
+    assert abs(direct.series["vrms"][0] / direct.vrms - 1.0) > 0.5
+    assert sequenced.steps < direct.steps
 
 
 def test_viscoplastic_bench_case_converges_with_a_mobile_lid():

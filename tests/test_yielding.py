@@ -107,8 +107,8 @@ def test_rayleigh_number_of_a_yielding_layer_is_that_of_its_linear_law():
     for case in (1, 2, 3, 4):
         cfg = load_config(ROOT / "configs" / f"benchmark_viscoplastic_case{case}.toml")
         assert layer.internal_rayleigh(cfg) == pytest.approx(100.0, rel=1e-12)
-        # Ra at the hot bottom: 100 x the thermal (x depth) contrast, by hand
-        contrast = 1e5 * cfg.viscosity.depth_contrast
+        # Ra at the hot bottom: 100 x eta_lin(T=0, z=1) / eta_lin(T=1, z=0), by hand
+        contrast = 1e5 / cfg.viscosity.depth_contrast
         assert layer.rayleigh_numbers(cfg)["bottom"] == pytest.approx(100.0 * contrast, rel=1e-9)
 
 
