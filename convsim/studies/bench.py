@@ -41,7 +41,7 @@ from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
 from convsim.pool import process_pool
-from convsim.studies.viscoplastic import CASES as VP_CASES, lid_quantities
+from convsim.studies.viscoplastic import CASES as VP_CASES, lid_convergence, lid_quantities
 from convsim.studies.published import (ACCEPTANCE, CASE_SETUP, DEFAULT_CASES, PUBLISHED,
                                        QUANTITIES, known_cases)
 
@@ -374,13 +374,8 @@ def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummar
         if acc.min_order > 0:
             ok = math.isfinite(est.order) and est.order >= acc.min_order
             checks.append(Check(q, "order", est.order, acc.min_order, ok, est.behaviour))
-    lid_convergence = {}
-    if len(steady_rows) >= 3 and all(r.lid for r in steady_rows):
-        lid_convergence = {q: conv.estimate_finest([r.h for r in steady_rows],
-                                                   [r.lid[q] for r in steady_rows])
-                           for q in steady_rows[0].lid}
     settings = to_dict(cfg)
-    return CaseSummary(lid_convergence=lid_convergence,
+    return CaseSummary(lid_convergence=lid_convergence(steady_rows),
                        case=case, title=settings.get("title", case), setup=CASE_SETUP[case],
                        config_path=str(config_path), config_sha256=_sha256(config_path),
                        rayleigh=float(cfg.physics.rayleigh), continuation=cont,

@@ -20,7 +20,7 @@ import math
 
 import numpy as np
 
-__all__ = ["CASES", "interior_rms_velocity", "lid_quantities", "LID_QUANTITIES",
+__all__ = ["CASES", "interior_rms_velocity", "lid_quantities", "LID_QUANTITIES", "lid_convergence",
            "oscillation_period", "periodic_means"]
 
 #: bench name: (config file in convsim/studies/cases/, one line of set-up)
@@ -67,6 +67,16 @@ def lid_quantities(config, result) -> dict:
                 mobility=plates.mobility(float(result.surface_vrms), float(result.vrms)),
                 eta_min=float(eta.min()), eta_max=float(eta.max()),
                 yielded_fraction=plates.yielded_fraction(mask))
+
+
+def lid_convergence(rows) -> dict:
+    """{lid quantity: ``analysis.convergence`` estimate from the three finest rows} of steady
+    bench rows that carry lid quantities (empty with fewer than three)."""
+    from convsim.analysis import convergence as conv
+    if len(rows) < 3 or not all(r.lid for r in rows):
+        return {}
+    return {q: conv.estimate_finest([r.h for r in rows], [r.lid[q] for r in rows])
+            for q in rows[0].lid}
 
 
 def oscillation_period(times, values, skip: float = 0.0) -> tuple[float, int]:
