@@ -13,7 +13,6 @@ need more memory: compare two step counts with ``--steps``.
 from __future__ import annotations
 
 import argparse
-import resource
 import subprocess
 import sys
 import tempfile

@@ -14,7 +14,6 @@ import argparse
 import resource
 import time
 
-import numpy as np
 
 from convsim.config import Config
 from convsim.run.build import build_model

@@ -17,14 +17,21 @@ from convsim.model.grid import Grid, interpolate_cells
 from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.run.layer import resolve
-from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable, read_run
+from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable
+from convsim.files.reader import read_run
 from convsim.files.xdmf import sidecar_path, write_xdmf
 from convsim.threads import limit_threads
-from convsim.views import open_run
 
 __all__ = ["load_config", "run", "open_run", "start_temperature", "check_restart_config"]
 
 log = logging.getLogger(__name__)
+
+
+def open_run(path: str | Path, *, physical: bool = True):
+    """A run file as an ``xarray.Dataset`` (``convsim.views.open_run``; xarray and the
+    unit library are imported on first use, not at start-up)."""
+    from convsim.views import open_run as open_view
+    return open_view(path, physical=physical)
 
 
 def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
@@ -41,17 +48,10 @@ def start_temperature(config: Config, grid: Grid) -> np.ndarray | None:
 def check_restart_config(path: str | Path, config: Config) -> None:
     """A restart may change only [stop] and [output]: refuse a file whose stored config is
     missing or unreadable, or differs elsewhere (it would not continue the same run)."""
-    import tomllib
     from convsim.config import to_dict
-    text = read_run(path).config_text
-    if not text.strip():
-        raise ConfigError(f"--restart {str(path)!r}: the file holds no stored config, so the "
-                          f"restart cannot be checked against the run; start a new run instead")
-    try:
-        saved = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"--restart {str(path)!r}: the stored config is not valid TOML "
-                          f"({exc}); the file cannot be continued") from None
+    from convsim.files.stored_config import stored_config
+    saved = stored_config(path, "the restart cannot be checked against the run; start a new run "
+                                "instead")
     new = to_dict(config)
     for table in saved:
         if table in ("stop", "output", "title"):
@@ -61,6 +61,22 @@ def check_restart_config(path: str | Path, config: Config) -> None:
                     if isinstance(saved[table], dict) else [table])
             raise ConfigError(f"--restart {str(path)!r}: [{table}] differs from the run's own "
                               f"config ({', '.join(keys)}); only [stop] and [output] may change")
+
+
+def _open_output(config: Config, output, restart, overwrite: bool):
+    """The run-file writer (None without output), the restart point (None for a new run) and
+    the output path: a restart appends to its own file after checking its stored config."""
+    if restart is not None:
+        check_restart_config(restart, config)
+        saved = read_run(restart, restart=True)
+        if not saved.restart:
+            raise ConfigError(f"--restart {str(restart)!r}: the file holds no restart state")
+        return RunFileWriter(restart, append=True), ResumePoint(saved.restart), restart
+    if output is None:
+        return None, None, None
+    writer = RunFileWriter(output, overwrite=overwrite)
+    check_writable(sidecar_path(output), overwrite)
+    return writer, None, output
 
 
 def _check_resources(config: Config, grid: Grid | None, output: Path | None) -> None:
@@ -97,7 +113,9 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     config : Config or path
         A config, or the path of a TOML config file (read with ``load_config``).
     output : path, optional
-        Run file to write (HDF5), with its XDMF sidecar.  None keeps everything in memory.
+        Run file to write (HDF5), with its XDMF sidecar.  The series rows are streamed to it
+        (memory does not grow with the steps) and the result's ``series`` is read back from
+        it (after a restart: every row of the file).  None keeps everything in memory.
     overwrite : bool
         Replace an existing output file and sidecar.
     restart : path, optional
@@ -130,25 +148,17 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     if progress:
         from convsim.run.progress import ProgressDisplay
         observers.append(ProgressDisplay(config, always=True))
-    resume = None
-    if restart is not None:
-        check_restart_config(restart, config)
-        saved = read_run(restart, restart=True)
-        if not saved.restart:
-            raise ConfigError(f"--restart {str(restart)!r}: the file holds no restart state")
-        resume = ResumePoint(saved.restart)
-        writer = RunFileWriter(restart, append=True)
-        output = restart
-    elif output is not None:
-        writer = RunFileWriter(output, overwrite=overwrite)
-        check_writable(sidecar_path(output), overwrite)
+    writer, resume, output = _open_output(config, output, restart, overwrite)
     _check_resources(config, grid, None if output is None else Path(output))
     if output is not None:
         observers.insert(0, RunFileObserver(writer))
     model = build_model(config, grid)
-    sim = Simulation(config, model, start_temperature(config, model.grid), observers)
+    sim = Simulation(config, model, start_temperature(config, model.grid), observers,
+                     keep_series=output is None)
     result = sim.run(resume)
     result.output = None if output is None else str(output)
+    if output is not None:       # the rows were streamed to the file, not kept: read them back
+        result.series = read_run(output).series
     if scales is not None:
         from convsim.physical import physical_quantities
         result.scales = scales

@@ -10,7 +10,10 @@ from __future__ import annotations
 
 import math
 
-from convsim.units import Scales
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from convsim.units import Scales
 
 __all__ = ["PHYSICAL_UNITS", "physical_quantities", "wall_heat_flows"]
 

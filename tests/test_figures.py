@@ -33,7 +33,7 @@ from convsim.figures import fields as figures
 from convsim.figures import style  # noqa: E402
 from convsim.cli import main  # noqa: E402
 from convsim.errors import ConfigError  # noqa: E402
-from convsim.files.runfile import read_run  # noqa: E402
+from convsim.files.reader import read_run  # noqa: E402
 
 # The invented moon's [body] (configs/quellis_ice_shell.toml), SI, for hand arithmetic.
 D, DT, TS, K_COND, KAPPA = 30000.0, 170.0, 100.0, 2.3, 1.5e-6

@@ -8,7 +8,6 @@ import pytest
 from convsim.model import lid
 from convsim.model.grid import Grid
 from convsim.model.rheology import ViscosityLaw
-from convsim.model.stokes import face_velocities
 
 
 def test_lid_thickness_is_where_the_velocity_tangent_crosses_zero():

@@ -10,7 +10,6 @@ convsim.analysis.convergence) lies close to the published one.  Every run has a 
 so a broken solver fails instead of hanging.
 """
 
-import pytest
 
 from convsim import api
 from convsim.analysis.convergence import estimate

@@ -19,7 +19,7 @@ from convsim import api
 from convsim.cli import EXIT_DISK_FULL, main
 from convsim.config import load_config
 from convsim.files import commit
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 
 ROOT = Path(__file__).resolve().parents[1]
 GOOD = ROOT / "configs" / "benchmark_case_1a.toml"

@@ -14,7 +14,7 @@ import pytest
 
 from convsim import api
 from convsim.config import parse_config
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 
 CHAOTIC = {"domain": {"nx": 16, "nz": 16}, "physics": {"rayleigh": 1e7},
            "boundaries": {"sides": "periodic"}, "start": {"perturbation": "noise", "seed": 3},

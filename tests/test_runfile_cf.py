@@ -21,7 +21,8 @@ import h5netcdf  # noqa: F401  (the engine xarray uses below; a test extra)
 import xarray as xr
 
 from convsim.cli import main  # noqa: E402
-from convsim.files.runfile import FIELDS, SERIES, read_run  # noqa: E402
+from convsim.files.runfile import FIELDS, SERIES  # noqa: E402
+from convsim.files.reader import read_run  # noqa: E402
 from convsim.units import UREG  # noqa: E402
 
 

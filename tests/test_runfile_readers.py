@@ -24,7 +24,7 @@ import pytest
 from convsim import api
 from convsim.config import load_config
 from convsim.files import commit
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 
 xr = pytest.importorskip("xarray")
 CONFIG = Path(__file__).resolve().parents[1] / "configs" / "benchmark_case_1a.toml"

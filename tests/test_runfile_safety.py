@@ -23,7 +23,7 @@ import pytest
 from convsim import api
 from convsim.errors import DiskFullError
 from convsim.files import commit
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 
 CONFIGS = Path(__file__).resolve().parents[1] / "configs"
 CASE = ["domain.nx=12", "domain.nz=12", "stop.steady=false", "stop.max_steps=60",

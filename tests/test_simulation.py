@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from convsim import api
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 from convsim.model.timestepping import Model, StepFailed
 
 

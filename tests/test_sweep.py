@@ -20,7 +20,7 @@ import pytest
 from convsim.cli import main
 from convsim.errors import ConfigError, OutputExistsError
 from convsim.analysis.fitting import fit_table
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 from convsim.studies.sweep import (case_id, expand_cases, interior_rms_velocity, law_viscosity_contrast,
                            load_sweep, parse_sweep, run_case, run_sweep)
 from convsim.studies.sweep_table import read_table

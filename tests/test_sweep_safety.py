@@ -9,7 +9,6 @@
 
 from __future__ import annotations
 
-import os
 import signal
 import subprocess
 import sys

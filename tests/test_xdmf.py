@@ -19,7 +19,7 @@ import pytest
 
 from convsim.cli import main
 from convsim.errors import OutputExistsError, SnapshotError
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 from convsim.files.xdmf import sidecar_path, write_xdmf
 
 

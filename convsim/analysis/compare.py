@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from convsim.errors import ConfigError
-from convsim.files.runfile import RunFile, read_run
+from convsim.files.reader import RunFile, read_run
 
 __all__ = ["Comparison", "compare_runs", "DIAGNOSTICS"]
 

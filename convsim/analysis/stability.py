@@ -341,55 +341,18 @@ def analyse_onset(rayleigh: float | None = None, *, aspect: float = 1.0,
     thermal = dict(top_flow=top_flow, bottom_flow=bottom_flow, top_heat=top_heat,
                    top_value=top_value, bottom_heat=bottom_heat, bottom_value=bottom_value,
                    internal_heating=internal_heating)
-    breaks = ()
-    if isinstance(viscosity, str):
-        params = dict(viscosity_parameters or {})
-        eta = viscosity_law(viscosity, **params)
-        # a modifier whose onset use is 'kinks' (the cut-offs) splits the collocation
-        cuts = {p.name: params.pop(p.name, p.default)
-                for m in laws.MODIFIERS.values() if m.onset == "kinks" for p in m.parameters}
-        if any(cuts.values()):
-            breaks = cutoff_breaks(viscosity_law(viscosity, **params), Layer(**thermal), **cuts)
-    elif callable(viscosity):
-        eta = viscosity
-    else:
-        raise ConfigError(f"viscosity = {viscosity!r}: expected a law name or eta(T, z)")
-    layer = Layer(viscosity=eta, breaks=breaks, **thermal)
+    layer = _onset_layer(thermal, viscosity, viscosity_parameters)
     box_wavenumbers(aspect, sides, [1])     # validates aspect and sides
     if rayleigh is not None and not (math.isfinite(rayleigh) and rayleigh > 0.0):
         raise ConfigError(f"rayleigh = {rayleigh!r}: expected a finite number > 0")
     problem = StabilityProblem(layer, points)
 
     ra_c, k_c = problem.critical()
-    if wavenumbers is None:
-        if isinstance(curve_points, bool) or not isinstance(curve_points, int) \
-                or curve_points < 2:
-            raise ConfigError(f"curve_points = {curve_points!r}: expected a whole number >= 2")
-        centre = k_c if math.isfinite(k_c) else math.pi
-        ks = np.geomspace(centre / 4.0, centre * 4.0, curve_points)
-    else:
-        ks = _check_wavenumbers(wavenumbers)
+    ks = _curve_wavenumbers(k_c, wavenumbers, curve_points)
     curve = problem.neutral_curve(ks)
     box_ra, box_n, box_k = _box_minimum(problem, k_c, aspect, sides)
-
-    spacing = box_wavenumbers(aspect, sides, [1])[0]
-    n_lo = max(1, math.ceil(ks[0] / spacing - 1e-12))
-    n_hi = max(n_lo - 1, math.floor(ks[-1] / spacing + 1e-12))
-    modes = list(range(n_lo, min(n_hi, n_lo + 199) + 1))
-    if box_n is not None and box_n not in modes:
-        modes = sorted(modes + [box_n])
-    modes = np.array(modes, dtype=int)
-    mode_k = box_wavenumbers(aspect, sides, modes)
-    mode_ra = np.array([box_ra if n == box_n else problem.neutral_rayleigh(k)
-                        for n, k in zip(modes, mode_k)])
-
-    resolution = math.nan
-    if math.isfinite(ra_c):
-        finer = StabilityProblem(layer, min(512, problem.points * 3 // 2))
-        resolution = abs(finer.neutral_rayleigh(k_c) - ra_c) / ra_c
-        if not resolution <= 1e-6:
-            log.warning("onset: Ra_c changes by %.2g (relative) at %d points; raise points "
-                        "(now %d)", resolution, finer.points, problem.points)
+    modes, mode_k, mode_ra = _box_modes(problem, ks, aspect, sides, box_ra, box_n)
+    resolution = _resolution_error(layer, problem, ra_c, k_c)
 
     supercrit = None
     if rayleigh is not None:
@@ -404,3 +367,62 @@ def analyse_onset(rayleigh: float | None = None, *, aspect: float = 1.0,
                        supercriticality=supercrit, aspect=float(aspect), sides=sides,
                        points=problem.points, resolution_error=resolution,
                        breaks=layer.breaks, layer=layer)
+
+
+def _onset_layer(thermal: dict, viscosity, viscosity_parameters: dict | None) -> Layer:
+    """The ``Layer`` of ``analyse_onset``: its law from a name (with any cut-off kinks as
+    collocation breaks) or eta(T, z) itself."""
+    breaks = ()
+    if isinstance(viscosity, str):
+        params = dict(viscosity_parameters or {})
+        eta = viscosity_law(viscosity, **params)
+        # a modifier whose onset use is 'kinks' (the cut-offs) splits the collocation
+        cuts = {p.name: params.pop(p.name, p.default)
+                for m in laws.MODIFIERS.values() if m.onset == "kinks" for p in m.parameters}
+        if any(cuts.values()):
+            breaks = cutoff_breaks(viscosity_law(viscosity, **params), Layer(**thermal), **cuts)
+    elif callable(viscosity):
+        eta = viscosity
+    else:
+        raise ConfigError(f"viscosity = {viscosity!r}: expected a law name or eta(T, z)")
+    return Layer(viscosity=eta, breaks=breaks, **thermal)
+
+
+def _curve_wavenumbers(k_c: float, wavenumbers, curve_points) -> np.ndarray:
+    """Where to draw the neutral curve: the user's wavenumbers, or ``curve_points`` log-spaced
+    values over k_c/4 .. 4 k_c (around pi when there is no finite k_c)."""
+    if wavenumbers is not None:
+        return _check_wavenumbers(wavenumbers)
+    if isinstance(curve_points, bool) or not isinstance(curve_points, int) or curve_points < 2:
+        raise ConfigError(f"curve_points = {curve_points!r}: expected a whole number >= 2")
+    centre = k_c if math.isfinite(k_c) else math.pi
+    return np.geomspace(centre / 4.0, centre * 4.0, curve_points)
+
+
+def _box_modes(problem, ks: np.ndarray, aspect: float, sides: str, box_ra: float, box_n):
+    """The box's modes n whose wavenumbers fall in the curve's range (at most 200, plus the
+    critical mode), their wavenumbers and their neutral Rayleigh numbers."""
+    spacing = box_wavenumbers(aspect, sides, [1])[0]
+    n_lo = max(1, math.ceil(ks[0] / spacing - 1e-12))
+    n_hi = max(n_lo - 1, math.floor(ks[-1] / spacing + 1e-12))
+    modes = list(range(n_lo, min(n_hi, n_lo + 199) + 1))
+    if box_n is not None and box_n not in modes:
+        modes = sorted(modes + [box_n])
+    modes = np.array(modes, dtype=int)
+    mode_k = box_wavenumbers(aspect, sides, modes)
+    mode_ra = np.array([box_ra if n == box_n else problem.neutral_rayleigh(k)
+                        for n, k in zip(modes, mode_k)])
+    return modes, mode_k, mode_ra
+
+
+def _resolution_error(layer: Layer, problem, ra_c: float, k_c: float) -> float:
+    """Relative change of Ra(k_c) at 1.5 times the Chebyshev degree (NaN without a finite
+    Ra_c); logs a warning above 1e-6."""
+    if not math.isfinite(ra_c):
+        return math.nan
+    finer = StabilityProblem(layer, min(512, problem.points * 3 // 2))
+    resolution = abs(finer.neutral_rayleigh(k_c) - ra_c) / ra_c
+    if not resolution <= 1e-6:
+        log.warning("onset: Ra_c changes by %.2g (relative) at %d points; raise points "
+                    "(now %d)", resolution, finer.points, problem.points)
+    return resolution

@@ -164,21 +164,12 @@ def physical_lines(physical) -> list:
 
 def _restart_config(path, overrides, grid):
     """The config stored in a run file, with --set overrides (for ``run --restart`` alone)."""
-    import tomllib
     from convsim.config import apply_overrides, parse_config
     from convsim.errors import ConfigError
-    from convsim.files.runfile import read_run
+    from convsim.files.stored_config import stored_config
     if grid:
         raise ConfigError(f"--grid {grid!r}: a restart continues on the run's own grid")
-    text = read_run(path).config_text
-    if not text.strip():
-        raise ConfigError(f"--restart {str(path)!r}: the file holds no stored config; give the "
-                          f"run's config file too, or start a new run")
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"--restart {str(path)!r}: the stored config is not valid TOML "
-                          f"({exc}); the file cannot be continued") from None
+    data = stored_config(path, "give the run's config file too, or start a new run")
     return parse_config(apply_overrides(data, overrides), source=f"{path} (its config)")
 
 

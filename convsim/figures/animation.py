@@ -18,7 +18,8 @@ from convsim.figures.fields import (_field_size, draw_streamlines, draw_temperat
                                     streamline_levels)
 from convsim.figures.presentation import presentation_for
 from convsim.files.atomic import atomic_path
-from convsim.files.runfile import check_writable, iter_fields, read_run
+from convsim.files.runfile import check_writable
+from convsim.files.reader import iter_fields, read_run
 
 __all__ = ["animate_run", "animation_writer", "default_animation_path"]
 

@@ -1,6 +1,6 @@
 """Figures of a run file: fields, profiles, time series and a one-page summary sheet.
 
-Every ``*_figure`` function takes a :class:`convsim.files.runfile.RunFile` (from
+Every ``*_figure`` function takes a :class:`convsim.files.reader.RunFile` (from
 ``read_run``) and returns a :class:`matplotlib.figure.Figure` on an Agg canvas
 (no pyplot, no global state), drawn in the house style of
 :mod:`convsim.figures.style` with its layout fixed (:func:`convsim.figures.style.freeze_layout`);
@@ -43,7 +43,8 @@ from convsim.figures.presentation import (Presentation, parameter_lines, present
                            select_snapshot, viscosity_varies)
 from convsim.figures.lines import (draw_profiles, draw_series, profiles_figure, run_statistics,
                                    series_figure)
-from convsim.files.runfile import RunFile, check_writable, read_run
+from convsim.files.runfile import check_writable
+from convsim.files.reader import RunFile, read_run
 from convsim.model.fields import ADVECTED
 
 __all__ = ["Presentation", "presentation_for", "select_snapshot", "viscosity_varies",

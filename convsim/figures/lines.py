@@ -1,7 +1,7 @@
 """Line figures of a run file: profiles against height, diagnostic series against time.
 
 Drawn in the house style (:mod:`convsim.figures.style`) from a
-:class:`convsim.files.runfile.RunFile`; :mod:`convsim.figures.fields` re-exports them.
+:class:`convsim.files.reader.RunFile`; :mod:`convsim.figures.fields` re-exports them.
 
 Profiles
 --------
@@ -29,7 +29,7 @@ import numpy as np
 
 from convsim.figures import style
 from convsim.figures.presentation import Presentation, presentation_for, viscosity_varies
-from convsim.files.runfile import RunFile
+from convsim.files.reader import RunFile
 
 __all__ = ["wall_profiles", "velocity_profile", "draw_profiles", "draw_series",
            "profiles_figure", "series_figure", "run_statistics"]
@@ -109,7 +109,7 @@ def run_statistics(run: RunFile) -> dict:
     """The time means of a time-dependent run: ``{quantity: {"mean", "ci95", "from_time"}}``.
 
     From ``run.statistics`` when the reader provides it, else from the file's group
-    ``statistics`` (``convsim.files.runfile.read_statistics``); {} for a steady run or a
+    ``statistics`` (``convsim.files.statistics_group.read_statistics``); {} for a steady run or a
     file without statistics.
     """
     found = getattr(run, "statistics", None)

@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from convsim.errors import ConfigError
-from convsim.files.runfile import RunFile
+from convsim.files.reader import RunFile
 from convsim.model.laws import describe as describe_law
 
 __all__ = ["Presentation", "run_config", "presentation_for", "select_snapshot",

@@ -13,7 +13,8 @@ from pathlib import Path
 
 from convsim.errors import SnapshotError
 from convsim.files.jsonio import plain
-from convsim.files.runfile import FIELDS, SERIES, open_run_file, read_statistics
+from convsim.files.runfile import FIELDS, SERIES, open_run_file
+from convsim.files.statistics_group import read_statistics
 from convsim.model.diagnostics import DIAGNOSTICS
 
 __all__ = ["describe_run", "format_info"]

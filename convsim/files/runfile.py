@@ -43,9 +43,7 @@ snapshot; a full disk stops the run with every earlier snapshot kept.
 from __future__ import annotations
 
 import datetime as _dt
-import math
 import os
-from dataclasses import dataclass, field
 from pathlib import Path
 
 import h5py
@@ -53,12 +51,13 @@ import numpy as np
 
 from convsim.errors import DiskFullError, OutputExistsError, SnapshotError
 from convsim.files.commit import commit, fault_point, is_disk_full
+from convsim.files.statistics_group import write_statistics
 from convsim.model.diagnostics import DIAGNOSTICS
 from convsim.model.fields import ADVECTED
 
-__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFile", "read_run", "iter_fields", "open_run_file",
+__all__ = ["FIELDS", "SERIES", "RunFileWriter", "RunFileObserver", "open_run_file",
            "check_writable", "check_output_folder", "snapshot_bytes", "RECORD_BYTES",
-           "stored_fields", "write_statistics", "read_statistics"]
+           "stored_fields"]
 
 # name: (dimensions after time, units, long_name); the advected fields from their declarations
 FIELDS = {
@@ -372,13 +371,13 @@ def _physical_coordinates(f, config_text: str) -> None:
     series_time_myr (Myr) that :func:`_append_physical_times` keeps in step."""
     import tomllib
     from convsim.config import parse_config
-    from convsim.units import scales_from_body
     try:
         body = parse_config(tomllib.loads(config_text)).body
     except Exception:       # a config the run accepted; anything else: no physical coordinates
         return
     if body is None:
         return
+    from convsim.units import scales_from_body      # the unit library only when needed
     scales = scales_from_body(body)
     for name in ("x", "z", "x_node", "z_node"):
         d = f.create_dataset(f"{name}_km", data=scales.length_to_km(f[name][:]))
@@ -413,92 +412,9 @@ def _append_physical_times(f) -> None:
             d[start:] = f[name][start:] * scale
 
 
-@dataclass
-class RunFile:
-    """What a run file holds, read into memory (fields of one snapshot only)."""
-
-    path: Path
-    attrs: dict
-    x: np.ndarray
-    z: np.ndarray
-    x_node: np.ndarray
-    z_node: np.ndarray
-    times: np.ndarray
-    steps: np.ndarray
-    snapshot: int
-    fields: dict
-    series: dict
-    restart: dict
-    statistics: dict = field(default_factory=dict)   # see read_statistics; {} while running
-
-    @property
-    def config_text(self) -> str:
-        return self.attrs.get("config", "")
-
-    @property
-    def advected(self) -> list[str]:
-        """Names of the run's advected fields (the temperature in files before the attribute)."""
-        return str(self.attrs.get("advected_fields", "temperature")).split()
-
-
-def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> RunFile:
-    """Read a run file: metadata, the series, and the fields of one snapshot (default the last)."""
-    path = Path(path)
-    if not path.is_file():
-        raise SnapshotError(f"run file {str(path)!r}: not found")
-    try:
-        with open_run_file(path) as f:
-            times = f["time"][:]
-            if len(times) == 0:
-                raise SnapshotError(f"run file {str(path)!r}: holds no snapshot yet")
-            count = len(times)
-            index = snapshot if snapshot >= 0 else count + snapshot
-            if not 0 <= index < count:
-                raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
-                                    f"{count} (0 to {count - 1})")
-            fields = {name: f[name][index] for name in stored_fields(f)}
-            series = {name: f[name][:] for name in SERIES if name in f}
-            state = {}
-            if restart and "restart" in f:
-                g = f["restart"]
-                state = {k: g[k][:] for k in g}
-                state.update({k: g.attrs[k] for k in g.attrs})
-            attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
-            return RunFile(path=path, attrs=attrs, x=f["x"][:], z=f["z"][:], x_node=f["x_node"][:],
-                           z_node=f["z_node"][:], times=times, steps=f["step"][:], snapshot=index,
-                           fields=fields, series=series, restart=state,
-                           statistics=read_statistics(f))
-    except SnapshotError:
-        raise
-    except (OSError, KeyError) as exc:
-        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
-
-
 def stored_fields(f) -> list[str]:
     """Names of the snapshot fields an open run file holds (``FIELDS`` order)."""
     return [name for name in FIELDS if name in f]
-
-
-def iter_fields(path: str | Path, names=None):
-    """Yield ``(index, time, {name: array})`` for every snapshot, the file opened once.
-
-    For animations and sweeps over snapshots: reads only the named fields (default: all the
-    file holds), not the series.
-    """
-    path = Path(path)
-    unknown = [n for n in names or () if n not in FIELDS]
-    if unknown:
-        raise SnapshotError(f"fields {unknown}: unknown; allowed: {', '.join(FIELDS)}")
-    if not path.is_file():
-        raise SnapshotError(f"run file {str(path)!r}: not found")
-    try:
-        with open_run_file(path) as f:
-            times = f["time"][:]
-            chosen = stored_fields(f) if names is None else list(names)
-            for index, when in enumerate(times):
-                yield index, float(when), {name: f[name][index] for name in chosen}
-    except (OSError, KeyError) as exc:
-        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
 
 
 class RunFileObserver:
@@ -523,73 +439,3 @@ class RunFileObserver:
     def on_finish(self, result) -> None:
         summary = {k: v for k, v in result.summary().items() if k != "output" and v is not None}
         self.writer.finish(result.status, result.wall_seconds, summary)
-
-
-PROFILE_STATISTICS = ("temperature_profile", "viscosity_profile")
-
-
-def write_statistics(f, summary: dict) -> None:
-    """Group ``statistics``: the time means of a finished run (``RunResult.summary``).
-
-    Attributes ``settled`` and, per scalar quantity q, ``q_mean``, ``q_ci95`` (95 %
-    half-width), ``q_from_time``; the profiles as variables ``<profile>_mean`` and
-    ``<profile>_ci95`` over z; the lid diagnostics as attributes of the subgroup ``lid``
-    (the upwellings as its variable ``upwellings``); the heat balance as
-    ``heat_balance_<name>``.  Replaced when a restarted run finishes again.
-    """
-    if "statistics" in f:
-        del f["statistics"]
-    g = f.create_group("statistics")
-    g.attrs["settled"] = str(summary.get("settled"))
-    for name, est in summary["statistics"].items():
-        if name in PROFILE_STATISTICS:
-            for part in ("mean", "ci95"):
-                d = g.create_dataset(f"{name}_{part}", data=np.array(
-                    [math.nan if v is None else v for v in est[part]], float))
-                d.dims[0].attach_scale(f["z"])
-                d.attrs["units"] = "1"
-                d.attrs["long_name"] = f"time {part} of the {name.replace('_', ' ')}"
-            g.attrs[f"{name}_from_time"] = _number(est["from_time"])
-            continue
-        for part in ("mean", "ci95", "from_time"):
-            g.attrs[f"{name}_{part}"] = _number(est[part])
-    lid = g.create_group("lid")
-    for key, value in (summary.get("lid") or {}).items():
-        if key == "upwellings":
-            lid.create_dataset("upwellings", data=np.asarray(value, float))
-        else:
-            lid.attrs[key] = _number(value) if value is None else value
-    for key, value in (summary.get("heat_balance") or {}).items():
-        g.attrs[f"heat_balance_{key}"] = _number(value) if value is None else value
-
-
-def _number(value) -> float:
-    """A JSON-safe number (None for NaN or inf) back to a float."""
-    return math.nan if value is None else float(value)
-
-
-def read_statistics(f) -> dict:
-    """The ``statistics`` group as {settled, statistics: {q: {mean, ci95, from_time}}, lid,
-    heat_balance} (empty dict when the run has none)."""
-    if "statistics" not in f:
-        return {}
-    g = f["statistics"]
-    attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g.attrs.items()}
-    stats = {}
-    for key, value in attrs.items():
-        if key.endswith("_from_time"):
-            name = key[: -len("_from_time")]
-            if name in PROFILE_STATISTICS:
-                stats[name] = dict(mean=g[f"{name}_mean"][:], ci95=g[f"{name}_ci95"][:],
-                                   from_time=value)
-            else:
-                stats[name] = dict(mean=attrs[f"{name}_mean"], ci95=attrs[f"{name}_ci95"],
-                                   from_time=value)
-    lid = {}
-    if "lid" in g:
-        lid = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in g["lid"].attrs.items()}
-        if "upwellings" in g["lid"]:
-            lid["upwellings"] = g["lid"]["upwellings"][:]
-    return dict(settled=attrs.get("settled"), statistics=stats, lid=lid,
-                heat_balance={k[13:]: v for k, v in attrs.items()
-                              if k.startswith("heat_balance_")})

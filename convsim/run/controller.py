@@ -83,9 +83,14 @@ class Simulation:
     temperature : ndarray, optional
         Initial cell temperatures (default: from the config's [start] table).
     observers : sequence of Observer
+    keep_series : bool
+        Keep every series row in memory for the result (default). A run that writes a run
+        file passes False: the rows go to the observers at each snapshot and nowhere else,
+        so memory does not grow with the number of steps; its result reads them back.
     """
 
-    def __init__(self, config: Config, model: Model, temperature=None, observers=()):
+    def __init__(self, config: Config, model: Model, temperature=None, observers=(),
+                 keep_series: bool = True):
         self.config, self.model = config, model
         self.grid = model.grid
         self.start_given = temperature is not None     # else grid sequencing may replace it
@@ -95,6 +100,7 @@ class Simulation:
                                               config.start, layer.rayleigh_numbers(config)["top"])
         self.temperature0 = temperature
         self.observers = list(observers)
+        self.keep_series = keep_series
         self.config_text = to_toml(config)
         self.newton_reports: list = []
         self.smallest_viscosity = layer.smallest_viscosity(config)
@@ -121,7 +127,7 @@ class Simulation:
             if p.state.step != p.last_snapshot_step:     # a signal now stops nothing half-written
                 self._snapshot(p, decision.status)
         result = final_result(p.model, p.state, decision, time.perf_counter() - p.wall0,
-                              Series.columns(p.series.all_rows), p.phase)
+                              p.series.all_columns(), p.phase)
         result.rayleigh_numbers = layer.rayleigh_numbers(self.config)
         finish_statistics(result, p.averages, p.model, p.state, self.config.stop.steady_tolerance)
         if decision.status == "diverged":
@@ -139,7 +145,7 @@ class Simulation:
                         rules=rules_from_config(cfg.stop), newton=newton,
                         schedule=SnapshotSchedule(cfg.output.snapshot_interval,
                                                   cfg.output.snapshot_steps),
-                        series=Series(cfg.output.series_every),
+                        series=Series(cfg.output.series_every, keep_all=self.keep_series),
                         averages=RunAverages(self.grid.nz, self.model.internal_heating,
                                              wall_contrast(self.model)),
                         wall0=time.perf_counter(),

@@ -120,10 +120,10 @@ def runaway_velocity(rayleigh: float, eta_min: float, factor: float) -> float:
 
 def body_scales(config: Config):
     """``convsim.units.Scales`` of a complete [body] table, else None."""
-    from convsim import units
     body = config.body
     if body is None:
         return None
+    from convsim import units       # the unit library only for a [body] (start-up time)
     required = [p for p in units.PROPERTIES if p.required]
     if not all(getattr(body, p.body_key) not in (0.0, "") for p in required):
         if body.activation_energy:

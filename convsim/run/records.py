@@ -13,12 +13,13 @@ import numpy as np
 from convsim.model import diagnostics as diag
 from convsim.model.grid import Grid
 
-__all__ = ["SnapshotData", "Observer", "ResumePoint", "RunResult", "Series", "SERIES_COLUMNS",
+__all__ = ["SnapshotData", "Observer", "ResumePoint", "RunResult", "Series", "RowBuffer", "SERIES_COLUMNS",
            "snapshot_fields", "final_result"]
 
 #: The step's own columns, then one per declared diagnostic (``model.diagnostics.DIAGNOSTICS``).
 STEP_COLUMNS = ("series_time", "series_step", "dt", "rayleigh")
 SERIES_COLUMNS = STEP_COLUMNS + tuple(diag.DIAGNOSTICS)
+_COLUMN_DTYPES = {"series_step": "i8", **{n: d.dtype for n, d in diag.DIAGNOSTICS.items()}}
 
 
 @dataclass
@@ -48,7 +49,7 @@ class Observer:
 
 @dataclass
 class ResumePoint:
-    """The restart group of a run file, as plain data (see ``convsim.files.runfile.read_run``)."""
+    """The restart group of a run file, as plain data (see ``convsim.files.reader.read_run``)."""
 
     state: dict
 
@@ -121,17 +122,45 @@ def _finite(value):
     return value
 
 
+class RowBuffer:
+    """Rows of numbers in one growing float64 array (8 bytes a number; doubles when full);
+    integer columns (steps, iteration counts) are exact below 2**53."""
+
+    def __init__(self, width: int, capacity: int = 256):
+        self.rows = np.empty((capacity, width))
+        self.count = 0
+
+    def append(self, row) -> None:
+        if self.count == len(self.rows):
+            grown = np.empty((2 * len(self.rows), self.rows.shape[1]))
+            grown[:self.count] = self.rows[:self.count]
+            self.rows = grown
+        self.rows[self.count] = row
+        self.count += 1
+
+    def columns(self) -> dict:
+        """``{column: array}`` of the rows held (``series_step`` as integers)."""
+        used = self.rows[:self.count]
+        return {c: used[:, i].astype(_COLUMN_DTYPES.get(c, "f8"))
+                for i, c in enumerate(SERIES_COLUMNS)}
+
+    def clear(self) -> None:
+        self.count = 0
+
+
 class Series:
     """The diagnostic time series: one row per recorded step, columns ``SERIES_COLUMNS``.
 
-    Keeps the rows since the last snapshot (handed to the observers, then cleared)
-    and all rows of this process (for the result).
+    Keeps the rows since the last snapshot (handed to the observers, then cleared) and,
+    when ``keep_all``, every row of this process for the result, as numbers in numpy
+    arrays. A run that writes a run file streams its rows there and keeps none
+    (``keep_all=False``): its result reads the series back from the file.
     """
 
-    def __init__(self, every: int = 1):
+    def __init__(self, every: int = 1, keep_all: bool = True):
         self.every = int(every)
-        self.new_rows: list = []
-        self.all_rows: list = []
+        self.new_rows = RowBuffer(len(SERIES_COLUMNS))
+        self.all_rows = RowBuffer(len(SERIES_COLUMNS)) if keep_all else None
 
     def record(self, report, rayleigh: float) -> None:
         if report.step % self.every:
@@ -139,16 +168,19 @@ class Series:
         row = (report.time, report.step, report.dt, rayleigh,
                *(getattr(report, name) for name in diag.DIAGNOSTICS))
         self.new_rows.append(row)
-        self.all_rows.append(row)
+        if self.all_rows is not None:
+            self.all_rows.append(row)
 
-    @staticmethod
-    def columns(rows: list) -> dict:
-        return {c: np.array([row[i] for row in rows]) for i, c in enumerate(SERIES_COLUMNS)}
+    def all_columns(self) -> dict:
+        """Every row kept, as columns (empty columns when the rows were not kept)."""
+        if self.all_rows is None:
+            return {}
+        return self.all_rows.columns()
 
     def take_new(self) -> dict:
         """The rows since the last call, as columns; forgets them."""
-        out = self.columns(self.new_rows)
-        self.new_rows = []
+        out = self.new_rows.columns()
+        self.new_rows.clear()
         return out
 
 

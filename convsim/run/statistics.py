@@ -58,7 +58,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 __all__ = ["Estimate", "time_mean", "uniform_resample", "autocorrelation",
            "integrated_time", "mean_interval", "mser_truncation", "geweke_z", "spin_up_time",
@@ -175,6 +174,7 @@ def mean_interval(y, confidence: float = 0.95) -> tuple[float, float, float]:
         return float(y.mean()), 0.0, tau
     if n_eff <= 1.0:
         return float(y.mean()), math.inf, tau
+    from scipy import stats     # on first use: scipy.stats costs ~0.3 s of start-up
     q = float(stats.t.ppf(0.5 * (1.0 + confidence), n_eff - 1.0))
     return float(y.mean()), q * math.sqrt(var * tau / n), tau
 

@@ -10,7 +10,7 @@ import pytest
 from convsim import api
 from convsim.errors import ConfigError
 from convsim.files.info import describe_run
-from convsim.files.runfile import read_run
+from convsim.files.reader import read_run
 from convsim.files.xdmf import xdmf_text
 from convsim.model import dye
 from convsim.model.energy import ThermalBoundaries
