@@ -114,7 +114,7 @@ def main():
 
 def periodic_case(n: int):
     """Case 4 on n x n cells: period, means over whole periods, the run's time statistics."""
-    from convsim.studies.viscoplastic import oscillation_period, periodic_means
+    from convsim.studies.viscoplastic import crossing_times, oscillation_period, periodic_means
     t0 = time.perf_counter()
     result, seconds, its = _run("benchmark_viscoplastic_case4.toml", n)
     s = result.series
@@ -124,8 +124,10 @@ def periodic_case(n: int):
     means = periodic_means(t, {q: s[q] for q in names}, period, periods)
     print(f"case4 {n:>3}x{n:<3} {result.status} steps {result.steps} to t = {result.time:.4g}  "
           f"{time.perf_counter() - t0:.1f} s  nonlinear its/step {np.mean(its):.2f}")
+    spacing = np.diff(crossing_times(t, s["nusselt_top"], skip=0.3))
     print(f"case4 period {period:.5g} (mean of {periods} periods after the first 30 % of the "
-          "run; upward crossings of the mean Nu)")
+          "run; upward crossings of the mean Nu; single periods "
+          + ", ".join(f"{p:.4g}" for p in spacing) + ")")
     print("case4 means over those whole periods: "
           + ", ".join(f"{q} {means[q]:.5g}" for q in names))
     stats = result.summary().get("statistics", {})

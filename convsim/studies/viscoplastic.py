@@ -20,8 +20,8 @@ import math
 
 import numpy as np
 
-__all__ = ["CASES", "interior_rms_velocity", "lid_quantities", "LID_QUANTITIES", "lid_convergence",
-           "oscillation_period", "periodic_means"]
+__all__ = ["CASES", "interior_rms_velocity", "lid_quantities", "LID_QUANTITIES",
+           "lid_convergence", "crossing_times", "oscillation_period", "periodic_means"]
 
 #: bench name: (config file in convsim/studies/cases/, one line of set-up)
 CASES = {
@@ -79,21 +79,26 @@ def lid_convergence(rows) -> dict:
             for q in rows[0].lid}
 
 
-def oscillation_period(times, values, skip: float = 0.0) -> tuple[float, int]:
-    """Period of a periodic series and the number of whole periods it was measured over.
-
-    The upward crossings of the series' mean (after ``skip`` of the time span, the spin-up)
-    are found by linear interpolation; the period is the mean spacing of the crossings
-    (first to last over their count - 1).  Returns (NaN, 0) with fewer than three crossings.
-    """
+def crossing_times(times, values, skip: float = 0.0) -> np.ndarray:
+    """Times of the upward crossings of a series' mean (linear interpolation), after ``skip``
+    of its time span (the spin-up)."""
     t, f = np.asarray(times, float), np.asarray(values, float)
     keep = t >= t[0] + skip * (t[-1] - t[0])
     t, f = t[keep], f[keep]
     g = f - f.mean()
     up = np.nonzero((g[:-1] < 0.0) & (g[1:] >= 0.0))[0]
-    if len(up) < 3:
+    return t[up] - g[up] * (t[up + 1] - t[up]) / (g[up + 1] - g[up])
+
+
+def oscillation_period(times, values, skip: float = 0.0) -> tuple[float, int]:
+    """Period of a periodic series and the number of whole periods it was measured over.
+
+    The mean spacing of the upward crossings of the series' mean (``crossing_times``: first
+    to last over their count - 1).  Returns (NaN, 0) with fewer than three crossings.
+    """
+    crossings = crossing_times(times, values, skip)
+    if len(crossings) < 3:
         return math.nan, 0
-    crossings = t[up] - g[up] * (t[up + 1] - t[up]) / (g[up + 1] - g[up])
     return float((crossings[-1] - crossings[0]) / (len(crossings) - 1)), len(crossings) - 1
 
 
