@@ -13,6 +13,15 @@ yielding, configs/benchmark_viscoplastic_case1.toml), Nu, vrms, the surface mobi
 (with --grid 64) 64 cells and the observed order of Nu and vrms (common practice:
 p = log((f3 - f2) / (f2 - f1)) / log 2).  No published values are compared (none recalled
 reliably).  A benchmark, not a test: it prints figures and marks the goal met or not.
+
+The wall time of a case includes its grid-sequencing run on 32 cells (``start.coarse_grid``);
+the nonlinear iterations per step are those of the 64 x 64 steps.
+
+``--case4 N`` instead runs the periodic case 4 (configs/benchmark_viscoplastic_case4.toml) on
+N x N cells to its end time and prints its period (upward crossings of the mean Nu after the
+first 30 % of the run, ``studies.viscoplastic.oscillation_period``), the time means of Nu,
+vrms and surface vrms over its last whole periods, and the run's own time statistics
+(spin-up, mean, 95 % interval: ``RunResult.summary()['statistics']``).
 """
 
 import argparse
@@ -71,9 +80,13 @@ def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--grid", type=int, default=64)
     parser.add_argument("--study", action="store_true")
+    parser.add_argument("--case4", type=int, default=0, metavar="N",
+                        help="run the periodic case 4 on N x N cells instead")
     args = parser.parse_args()
     from convsim.model.linsolve import limit_blas_threads
     limit_blas_threads(1)
+    if args.case4:
+        return periodic_case(args.case4)
     grids = sorted({16, 32, args.grid}) if args.study else [args.grid]
     base_seconds = {}
     for name, config in CASES:
@@ -97,6 +110,32 @@ def main():
         if len(rows) >= 3:
             print(f"{name} observed order: Nu {_order([r[0] for r in rows]):.2f}, "
                   f"vrms {_order([r[1] for r in rows]):.2f}")
+
+
+def periodic_case(n: int):
+    """Case 4 on n x n cells: period, means over whole periods, the run's time statistics."""
+    from convsim.studies.viscoplastic import crossing_times, oscillation_period, periodic_means
+    t0 = time.perf_counter()
+    result, seconds, its = _run("benchmark_viscoplastic_case4.toml", n)
+    s = result.series
+    t = np.asarray(s["series_time"])
+    names = ("nusselt_top", "vrms", "surface_vrms")
+    period, periods = oscillation_period(t, s["nusselt_top"], skip=0.3)
+    means = periodic_means(t, {q: s[q] for q in names}, period, periods)
+    print(f"case4 {n:>3}x{n:<3} {result.status} steps {result.steps} to t = {result.time:.4g}  "
+          f"{time.perf_counter() - t0:.1f} s  nonlinear its/step {np.mean(its):.2f}")
+    spacing = np.diff(crossing_times(t, s["nusselt_top"], skip=0.3))
+    print(f"case4 period {period:.5g} (mean of {periods} periods after the first 30 % of the "
+          "run; upward crossings of the mean Nu; single periods "
+          + ", ".join(f"{p:.4g}" for p in spacing) + ")")
+    print("case4 means over those whole periods: "
+          + ", ".join(f"{q} {means[q]:.5g}" for q in names))
+    stats = result.summary().get("statistics", {})
+    for q in names:
+        st = stats.get(q) or {}
+        print(f"case4 time statistics {q}: mean {st.get('mean', float('nan')):.5g} "
+              f"+- {st.get('ci95', float('nan')):.2g} (95 %) from t = "
+              f"{st.get('from_time', float('nan')):.4g}, reliable {st.get('reliable')}")
 
 
 if __name__ == "__main__":

@@ -21,7 +21,8 @@ import numpy as np
 from convsim.model import laws as _laws
 from convsim.model.laws import LawInputs
 
-__all__ = ["ViscosityLaw", "LAWS", "LawInputs", "viscosity", "base_state_viscosity"]
+__all__ = ["ViscosityLaw", "LAWS", "LawInputs", "viscosity", "base_state_viscosity",
+           "reference_viscosity"]
 
 #: The laws chosen by name (declarations of ``convsim.model.laws``).
 LAWS = _laws.LAWS
@@ -97,7 +98,7 @@ class ViscosityLaw:
 
 
 def viscosity(law: ViscosityLaw, T, z, strain_rate=None, composition=None, *,
-              modifiers: bool = True) -> np.ndarray:
+              modifiers: bool = True, strain_modifiers: bool = True) -> np.ndarray:
     """eta(T, z[, strain rate, composition]) of the law, after its active modifiers.
 
     Parameters
@@ -111,6 +112,9 @@ def viscosity(law: ViscosityLaw, T, z, strain_rate=None, composition=None, *,
         Reserved for a compositional field.
     modifiers : bool
         False gives the chosen law alone (no cut-offs, no yielding).
+    strain_modifiers : bool
+        False leaves out the modifiers that read the strain rate (yielding) and keeps the
+        others (the cut-offs).
 
     Returns
     -------
@@ -123,7 +127,8 @@ def viscosity(law: ViscosityLaw, T, z, strain_rate=None, composition=None, *,
     eta = LAWS[law.name].function(inputs, law)
     if modifiers:
         for modifier in _laws.MODIFIERS.values():
-            if modifier.active(law):
+            if modifier.active(law) and (strain_modifiers
+                                         or "strain_rate" not in modifier.needs):
                 eta = modifier.function(eta, inputs, law)
     return eta
 
@@ -137,3 +142,16 @@ def base_state_viscosity(law: ViscosityLaw, T, z) -> np.ndarray:
     """
     T = np.asarray(T, float)
     return viscosity(law, T, z, strain_rate=np.zeros(np.broadcast(T, z).shape))
+
+
+def reference_viscosity(law: ViscosityLaw, T, z) -> np.ndarray:
+    """eta(T, z) that a Rayleigh number is taken with: the law and its cut-offs, without the
+    modifiers that read the strain rate.
+
+    Yielding is left out: without flow its harmonic mean gives 2 eta_lin (the factor 2 of
+    Tosi et al. 2015), and a stress-dependent viscosity has no value of its own at a
+    reference state.  So Ra = 100 "at the cold top" of the viscoplastic benchmark means
+    eta_lin(T = 0, z = 1) = 1, as in the benchmark (Tosi et al. 2015, G-cubed 16,
+    2175-2196, from memory), and a yield stress does not change the Rayleigh number.
+    """
+    return viscosity(law, T, z, strain_modifiers=False)

@@ -42,6 +42,7 @@ from convsim.run.records import (SERIES_COLUMNS, Observer, ResumePoint, RunResul
                                  SnapshotData, final_result, snapshot_fields)
 from convsim.run.restart import state_from_record, state_record
 from convsim.run.schedule import TIME_ROUNDING, SnapshotSchedule
+from convsim.run.sequence import coarse_temperature
 from convsim.run.stops import SETTLE_STEPS, Decision, Interrupted, rules_from_config, runaway
 
 __all__ = ["Simulation", "RunResult", "SnapshotData", "Observer", "ResumePoint", "SETTLE_STEPS",
@@ -92,6 +93,7 @@ class Simulation:
                  keep_series: bool = True):
         self.config, self.model = config, model
         self.grid = model.grid
+        self.start_given = temperature is not None     # else grid sequencing may replace it
         if temperature is None:
             # the one-cell guess takes Ra at the cold top, however the config states it
             temperature = initial_temperature(self.grid, model.thermal, model.internal_heating,
@@ -152,7 +154,8 @@ class Simulation:
             rule.watch(p.averages)
         if resume is None:
             p.model = p.continuation.model(self.model)
-            p.state = p.model.initial_state(self.temperature0)
+            coarse = None if self.start_given else coarse_temperature(cfg, self.grid)
+            p.state = p.model.initial_state(self.temperature0 if coarse is None else coarse)
         else:
             for part in p.parts():
                 part.restore(resume.state)
@@ -214,8 +217,9 @@ class Simulation:
         for k, v in report.seconds.items():
             p.phase[k] = p.phase.get(k, 0.0) + v
         p.series.record(report, p.model.rayleigh)
-        p.averages.record(new.time, lambda: step_quantities(
-            self.grid, new.temperature, new.psi, p.model.viscosities(new.temperature)[1], report))
+        p.averages.record(new.time, lambda: step_quantities(      # eta with the strain rate
+            self.grid, new.temperature, new.psi,
+            p.model.viscosities(new.temperature, new.psi)[1], report))
         self._emit("on_step", report)
         return report, None
 

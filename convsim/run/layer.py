@@ -14,7 +14,9 @@ interior   ((T_top + T_bottom)/2, 1/2)              Ra eta(T_mid, 1/2)
 =========  =======================================  ===========================
 
 with T_top, T_bottom the wall temperatures (0 and 1 by default; a wall with a fixed
-flux counts as 0 at the top, 1 at the bottom) and eta the law after its cut-offs, so
+flux counts as 0 at the top, 1 at the bottom) and eta the law after its cut-offs but
+without yielding (``rheology.reference_viscosity``: a stress-dependent viscosity has no
+value of its own at a state; without flow the harmonic mean would double it), so
 that Ra_ref eta_ref = Ra_top (Ra is inversely proportional to the viscosity it is
 taken with).  ``internal_rayleigh`` is the one place this conversion is made;
 ``rayleigh_numbers`` gives Ra at all three states for the summaries.
@@ -38,7 +40,7 @@ import numpy as np
 
 from convsim.config import Config
 from convsim.errors import ConfigError
-from convsim.model.rheology import ViscosityLaw, viscosity
+from convsim.model.rheology import ViscosityLaw, reference_viscosity, viscosity
 
 __all__ = ["REFERENCES", "reference_states", "internal_rayleigh", "rayleigh_numbers",
            "viscosity_law", "resolve", "body_scales", "AGREEMENT", "smallest_viscosity",
@@ -67,7 +69,7 @@ def reference_states(config: Config) -> dict:
 
 def _eta(config: Config, reference: str) -> float:
     T, z = reference_states(config)[reference]
-    return float(viscosity(viscosity_law(config), np.array(T), np.array(z)))
+    return float(reference_viscosity(viscosity_law(config), np.array(T), np.array(z)))
 
 
 def internal_rayleigh(config: Config, value: float | None = None) -> float:
@@ -173,7 +175,7 @@ def resolve(config: Config) -> Config:
         T, z = reference_states(resolved)[resolved.physics.rayleigh_reference]
         uncut = viscosity_law(resolved.replace(viscosity__minimum=0.0, viscosity__maximum=0.0))
         value = (scales.maximum_viscosity / scales.reference_viscosity
-                 * float(viscosity(uncut, np.array(T), np.array(z))))
+                 * float(reference_viscosity(uncut, np.array(T), np.array(z))))
         resolved = resolved.replace(**_agree(config, "viscosity.maximum", value,
                                              "body.maximum_viscosity / reference_viscosity"))
     return resolved

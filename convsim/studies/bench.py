@@ -41,6 +41,7 @@ from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
 from convsim.pool import process_pool
+from convsim.studies.viscoplastic import CASES as VP_CASES, lid_convergence, lid_quantities
 from convsim.studies.published import (ACCEPTANCE, CASE_SETUP, DEFAULT_CASES, PUBLISHED,
                                        QUANTITIES, known_cases)
 
@@ -145,6 +146,7 @@ class BenchRow:
     upwelling: str                 # side of the hot upwelling: "x=0" or "x=1"
     stage_steps: list              # [(Ra, steps)] per continuation stage and the target
     relative_error: dict = field(default_factory=dict)
+    lid: dict = field(default_factory=dict)    # studies/viscoplastic.lid_quantities (vp cases)
 
     @property
     def steps_per_second(self) -> float:
@@ -202,6 +204,8 @@ def run_task(task: BenchTask) -> BenchRow:
                    phase_seconds={k: float(v) for k, v in result.phase_seconds.items()},
                    peak_rss_mib=peak, run_rss_mib=max(0.0, peak - before), upwelling=upwelling,
                    stage_steps=_stage_steps(result.series))
+    if task.case in VP_CASES:
+        row.lid = lid_quantities(cfg, result)
     row.relative_error = {qn: math.nan for qn in QUANTITIES}     # nan: no published value
     row.relative_error.update({qn: (getattr(row, qn) - pv.value) / pv.value
                                for qn, pv in PUBLISHED[task.case].items()})
@@ -220,7 +224,8 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
 
 def plan(cases, grids, overrides=(), warmup=True) -> list:
     """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy."""
-    cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0, "2b": 10.0}   # rough relative cost, our guess
+    cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0, "2b": 10.0,   # rough relative cost,
+            "vp2": 10.0, "vp3": 10.0}                                  # our guess
     tasks = [BenchTask(c, n, str(case_config_path(c)), tuple(overrides), warmup)
              for c in cases for n in grids]
     return sorted(tasks, key=lambda t: -(t.grid ** 3) * cost.get(t.case, 1.0))
@@ -254,6 +259,7 @@ class CaseSummary:
     published: dict              # quantity -> value
     checks: list
     notes: list
+    lid_convergence: dict = field(default_factory=dict)   # lid quantity -> estimate (vp cases)
 
     @property
     def passed(self) -> bool:
@@ -298,7 +304,9 @@ class CaseSummary:
             published=self.published,
             published_citation={q: pv.citation for q, pv in PUBLISHED[self.case].items()},
             checks=[dataclasses.asdict(c) for c in self.checks], passed=self.passed,
-            notes=self.notes)
+            notes=self.notes,
+            lid_convergence={q: (e.as_dict() if e is not None else None)
+                             for q, e in self.lid_convergence.items()})
 
 
 def _sci(v: float) -> str:
@@ -367,7 +375,8 @@ def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummar
             ok = math.isfinite(est.order) and est.order >= acc.min_order
             checks.append(Check(q, "order", est.order, acc.min_order, ok, est.behaviour))
     settings = to_dict(cfg)
-    return CaseSummary(case=case, title=settings.get("title", case), setup=CASE_SETUP[case],
+    return CaseSummary(lid_convergence=lid_convergence(steady_rows),
+                       case=case, title=settings.get("title", case), setup=CASE_SETUP[case],
                        config_path=str(config_path), config_sha256=_sha256(config_path),
                        rayleigh=float(cfg.physics.rayleigh), continuation=cont,
                        settings=settings, rows=rows, convergence=convergence,

@@ -158,7 +158,27 @@ def _provenance(prov: dict) -> list:
 
 
 def _case_section(c: dict) -> list:
-    return _case_setup(c) + _case_runs(c) + _case_convergence(c) + _case_checks(c)
+    return (_case_setup(c) + _case_runs(c) + _case_lid(c) + _case_convergence(c)
+            + _case_checks(c))
+
+
+def _case_lid(c: dict) -> list:
+    """The lid quantities of the viscoplastic cases per grid, and their convergence."""
+    from convsim.studies.viscoplastic import LID_QUANTITIES
+    if not any(r.get("lid") for r in c["rows"]):
+        return []
+    names = list(LID_QUANTITIES)
+    L = ["Lid (surface and interior rms velocity, surface / whole-layer rms velocity, extreme "
+         "viscosities, area fraction where eta_plast < eta_lin; interior = 1/4 < z < 3/4):", ""]
+    L += _table(["grid"] + [LID_QUANTITIES[q] for q in names],
+                [[r["grid"]] + [_g(r["lid"].get(q), 6) for q in names]
+                 for r in c["rows"] if r.get("lid")])
+    conv = c.get("lid_convergence") or {}
+    if conv:
+        L += _table(["quantity", "behaviour", "order p", "extrapolated"],
+                    [[LID_QUANTITIES[q], e["behaviour"], _g(e["order"], 4),
+                      _g(e["extrapolated"], 6)] for q, e in conv.items() if e is not None])
+    return L
 
 
 def _case_setup(c: dict) -> list:
@@ -341,6 +361,12 @@ def terminal_table(bench: dict) -> str:
                          f"{_pct(e['nusselt_top'], 2):>9}{_g(r['vrms']):>11}{_pct(e['vrms'], 2):>9}"
                          f"{_g(r['q1'], 6):>10}{_g(r['q2'], 5):>9}{r['steps']:>8}"
                          f"{_g(r['wall_seconds'], 4):>9}")
+            if r.get("lid"):
+                lid = r["lid"]
+                lines.append(f"{'':<11}surface vrms {_g(lid['surface_vrms'], 6)}, interior vrms "
+                             f"{_g(lid['interior_vrms'], 6)}, eta [{_g(lid['eta_min'], 3)}, "
+                             f"{_g(lid['eta_max'], 3)}], yielded area "
+                             f"{_g(lid['yielded_fraction'], 4)}")
         ext, err, p = c["extrapolated"], c["extrapolated_relative_error"], c["observed_order"]
         measurable = ext["nusselt_top"] is not None or ext["vrms"] is not None
         if measurable:      # same columns as the runs above: Nu, err, vrms, err

@@ -142,6 +142,14 @@ PUBLISHED = {
 }
 PUBLISHED["lid1"] = {}          # a case with a convergence study and no published value
 
+# -- the viscoplastic cases of Tosi et al. (2015) (cases 2 and 3; studies/viscoplastic.py) ---------
+from convsim.studies.viscoplastic import CASES as _VP_CASES   # noqa: E402 (data of its own block)
+
+for _case, (_file, _setup) in _VP_CASES.items():
+    CASE_SETUP[_case] = _setup
+    CASE_FILES[_case] = _file
+    PUBLISHED[_case] = {}       # no value recalled reliably: the convergence study is the evidence
+
 
 @dataclass(frozen=True)
 class Acceptance:
