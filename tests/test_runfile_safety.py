@@ -49,17 +49,26 @@ def case_config():          # module scope (the conftest fixture is per test)
     return load
 
 
-class _KillAt:
-    """Fault hook: SIGKILL this process the ``nth`` time ``point`` is reached."""
+class _FaultAt:
+    """Fault hook: do ``fault()`` the ``nth`` time ``point`` is reached."""
 
-    def __init__(self, point, nth):
-        self.point, self.nth, self.seen = point, nth, 0
+    def __init__(self, point, nth, fault):
+        self.point, self.nth, self.fault, self.seen = point, nth, fault, 0
 
     def __call__(self, name):
         if name == self.point:
             self.seen += 1
             if self.seen == self.nth:
-                os.kill(os.getpid(), signal.SIGKILL)
+                self.fault()
+
+
+def _sigkill():
+    os.kill(os.getpid(), signal.SIGKILL)
+
+
+def _KillAt(point, nth):
+    """SIGKILL this process the ``nth`` time ``point`` is reached."""
+    return _FaultAt(point, nth, _sigkill)
 
 
 class _StepKill:
@@ -176,15 +185,13 @@ def test_fifty_random_kills_each_restart_bit_for_bit(case_config, full, tmp_path
 
 
 # -- full disk ---------------------------------------------------------------------------------
-class _NoSpaceAt:
-    def __init__(self, point, nth):
-        self.point, self.nth, self.seen = point, nth, 0
+def _no_space():
+    raise OSError(errno.ENOSPC, "No space left on device (injected)")
 
-    def __call__(self, name):
-        if name == self.point:
-            self.seen += 1
-            if self.seen == self.nth:
-                raise OSError(errno.ENOSPC, "No space left on device (injected)")
+
+def _NoSpaceAt(point, nth):
+    """A full disk (ENOSPC) the ``nth`` time ``point`` is reached."""
+    return _FaultAt(point, nth, _no_space)
 
 
 @pytest.mark.parametrize("point", commit.WRITE_POINTS)
