@@ -18,7 +18,7 @@ from convsim.run.build import build_model
 from convsim.run.controller import ResumePoint, RunResult, Simulation
 from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable
-from convsim.files.reader import read_run
+from convsim.files.reader import read_run, read_series
 from convsim.files.xdmf import sidecar_path, write_xdmf
 from convsim.threads import limit_threads
 
@@ -158,7 +158,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     result = sim.run(resume)
     result.output = None if output is None else str(output)
     if output is not None:       # the rows were streamed to the file, not kept: read them back
-        result.series = read_run(output).series
+        result.series = read_series(output)
     if scales is not None:
         from convsim.physical import physical_quantities
         result.scales = scales

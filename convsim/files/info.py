@@ -11,9 +11,9 @@ import tomllib
 from pathlib import Path
 
 
-from convsim.errors import SnapshotError
 from convsim.files.jsonio import plain
-from convsim.files.runfile import FIELDS, SERIES, open_run_file
+from convsim.files.reader import reading_run_file
+from convsim.files.runfile import FIELDS, SERIES
 from convsim.files.statistics_group import read_statistics
 from convsim.model.diagnostics import DIAGNOSTICS
 
@@ -24,25 +24,19 @@ _PROVENANCE = ("title", "source", "convsim_version", "created", "Conventions", "
 
 def _read(path: Path):
     """What ``describe_run`` needs from the file, read in one opening."""
-    if not path.is_file():
-        raise SnapshotError(f"run file {str(path)!r}: not found")
-    try:
-        with open_run_file(path) as f:
-            attrs = {k: plain(v) for k, v in f.attrs.items()}
-            x_node, z_node = f["x_node"][:], f["z_node"][:]
-            times, steps = f["time"][:], f["step"][:]
-            fields = {name: {"dims": ["time"] + list(FIELDS[name][0]),
-                             "shape": list(f[name].shape),
-                             "units": plain(f[name].attrs.get("units")),
-                             "long_name": plain(f[name].attrs.get("long_name"))}
-                      for name in FIELDS if name in f}
-            records = int(f["series_time"].shape[0])
-            last = {name: plain(f[name][-1]) for name in SERIES if records and name in f}
-            first_time = plain(f["series_time"][0]) if records else None
-            statistics = read_statistics(f)
-    except (OSError, KeyError) as exc:
-        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
-                            f"({exc})") from None
+    with reading_run_file(path) as f:
+        attrs = {k: plain(v) for k, v in f.attrs.items()}
+        x_node, z_node = f["x_node"][:], f["z_node"][:]
+        times, steps = f["time"][:], f["step"][:]
+        fields = {name: {"dims": ["time"] + list(FIELDS[name][0]),
+                         "shape": list(f[name].shape),
+                         "units": plain(f[name].attrs.get("units")),
+                         "long_name": plain(f[name].attrs.get("long_name"))}
+                  for name in FIELDS if name in f}
+        records = int(f["series_time"].shape[0])
+        last = {name: plain(f[name][-1]) for name in SERIES if records and name in f}
+        first_time = plain(f["series_time"][0]) if records else None
+        statistics = read_statistics(f)
     return attrs, x_node, z_node, times, steps, fields, records, last, first_time, statistics
 
 

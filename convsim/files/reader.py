@@ -7,6 +7,7 @@ line naming it.
 
 from __future__ import annotations
 
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -16,7 +17,22 @@ from convsim.errors import SnapshotError
 from convsim.files.runfile import FIELDS, SERIES, open_run_file, stored_fields
 from convsim.files.statistics_group import read_statistics
 
-__all__ = ["RunFile", "read_run", "iter_fields"]
+__all__ = ["RunFile", "read_run", "read_series", "iter_fields", "reading_run_file"]
+
+
+@contextmanager
+def reading_run_file(path):
+    """``open_run_file`` for a reader: a missing file, or one that is not a run file (an HDF5
+    error, a missing variable), gives one ``SnapshotError`` line naming it."""
+    path = Path(path)
+    if not path.is_file():
+        raise SnapshotError(f"run file {str(path)!r}: not found")
+    try:
+        with open_run_file(path) as f:
+            yield f
+    except (OSError, KeyError) as exc:
+        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
+                            f"({exc})") from None
 
 
 @dataclass
@@ -50,34 +66,26 @@ class RunFile:
 def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> RunFile:
     """Read a run file: metadata, the series, and the fields of one snapshot (default the last)."""
     path = Path(path)
-    if not path.is_file():
-        raise SnapshotError(f"run file {str(path)!r}: not found")
-    try:
-        with open_run_file(path) as f:
-            times = f["time"][:]
-            if len(times) == 0:
-                raise SnapshotError(f"run file {str(path)!r}: holds no snapshot yet")
-            count = len(times)
-            index = snapshot if snapshot >= 0 else count + snapshot
-            if not 0 <= index < count:
-                raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
-                                    f"{count} (0 to {count - 1})")
-            fields = {name: f[name][index] for name in stored_fields(f)}
-            series = {name: f[name][:] for name in SERIES if name in f}
-            state = {}
-            if restart and "restart" in f:
-                g = f["restart"]
-                state = {k: g[k][:] for k in g}
-                state.update({k: g.attrs[k] for k in g.attrs})
-            attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
-            return RunFile(path=path, attrs=attrs, x=f["x"][:], z=f["z"][:], x_node=f["x_node"][:],
-                           z_node=f["z_node"][:], times=times, steps=f["step"][:], snapshot=index,
-                           fields=fields, series=series, restart=state,
-                           statistics=read_statistics(f))
-    except SnapshotError:
-        raise
-    except (OSError, KeyError) as exc:
-        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
+    with reading_run_file(path) as f:
+        times = f["time"][:]
+        if len(times) == 0:
+            raise SnapshotError(f"run file {str(path)!r}: holds no snapshot yet")
+        count = len(times)
+        index = snapshot if snapshot >= 0 else count + snapshot
+        if not 0 <= index < count:
+            raise SnapshotError(f"snapshot = {snapshot}: out of range, the file holds "
+                                f"{count} (0 to {count - 1})")
+        fields = {name: f[name][index] for name in stored_fields(f)}
+        state = {}
+        if restart and "restart" in f:
+            g = f["restart"]
+            state = {k: g[k][:] for k in g}
+            state.update({k: g.attrs[k] for k in g.attrs})
+        attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
+        return RunFile(path=path, attrs=attrs, x=f["x"][:], z=f["z"][:], x_node=f["x_node"][:],
+                       z_node=f["z_node"][:], times=times, steps=f["step"][:], snapshot=index,
+                       fields=fields, series=_series(f), restart=state,
+                       statistics=read_statistics(f))
 
 
 def iter_fields(path: str | Path, names=None):
@@ -90,13 +98,19 @@ def iter_fields(path: str | Path, names=None):
     unknown = [n for n in names or () if n not in FIELDS]
     if unknown:
         raise SnapshotError(f"fields {unknown}: unknown; allowed: {', '.join(FIELDS)}")
-    if not path.is_file():
-        raise SnapshotError(f"run file {str(path)!r}: not found")
-    try:
-        with open_run_file(path) as f:
-            times = f["time"][:]
-            chosen = stored_fields(f) if names is None else list(names)
-            for index, when in enumerate(times):
-                yield index, float(when), {name: f[name][index] for name in chosen}
-    except (OSError, KeyError) as exc:
-        raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file ({exc})") from None
+    with reading_run_file(path) as f:
+        times = f["time"][:]
+        chosen = stored_fields(f) if names is None else list(names)
+        for index, when in enumerate(times):
+            yield index, float(when), {name: f[name][index] for name in chosen}
+
+
+def _series(f) -> dict:
+    """Every series column an open run file holds, whole."""
+    return {name: f[name][:] for name in SERIES if name in f}
+
+
+def read_series(path: str | Path) -> dict:
+    """The diagnostic time series of a run file, ``{column: array}`` (no snapshot fields)."""
+    with reading_run_file(path) as f:
+        return _series(f)

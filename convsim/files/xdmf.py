@@ -45,7 +45,8 @@ from pathlib import Path
 from convsim.errors import DiskFullError, SnapshotError
 from convsim.files.atomic import atomic_write_text
 from convsim.files.commit import fault_point, is_disk_full
-from convsim.files.runfile import check_writable, open_run_file
+from convsim.files.reader import reading_run_file
+from convsim.files.runfile import check_writable
 from convsim.model.fields import ADVECTED, DERIVED
 
 __all__ = ["write_xdmf", "xdmf_text", "sidecar_path", "XDMF_FIELDS"]
@@ -79,22 +80,16 @@ def _data_item(parent, dims, href, dtype):
 def xdmf_text(run_path: str | Path) -> str:
     """The XDMF 3 document (text) describing the snapshots of a run file."""
     run_path = Path(run_path)
-    if not run_path.is_file():
-        raise SnapshotError(f"run file {str(run_path)!r}: not found")
     name = run_path.name
-    try:
-        with open_run_file(run_path) as f:
-            times = f["time"][:]
-            nx1, nz1 = len(f["x_node"]), len(f["z_node"])
-            coord_types = {k: f[k].dtype for k in ("x_node", "z_node")}
-            described = _described(f)
-            shapes = {k: f[k].shape for k in described}
-            types = {k: f[k].dtype for k in described}
-            title = f.attrs.get("title", "convsim run")
-            faces = {k: (f[k].shape, f[k].dtype) for k in ("velocity_x", "velocity_z")}
-    except (OSError, KeyError) as exc:
-        raise SnapshotError(f"run file {str(run_path)!r}: not a readable convsim run file "
-                            f"({exc})") from None
+    with reading_run_file(run_path) as f:
+        times = f["time"][:]
+        nx1, nz1 = len(f["x_node"]), len(f["z_node"])
+        coord_types = {k: f[k].dtype for k in ("x_node", "z_node")}
+        described = _described(f)
+        shapes = {k: f[k].shape for k in described}
+        types = {k: f[k].dtype for k in described}
+        title = f.attrs.get("title", "convsim run")
+        faces = {k: (f[k].shape, f[k].dtype) for k in ("velocity_x", "velocity_z")}
     if isinstance(title, bytes):
         title = title.decode()
 

@@ -13,8 +13,8 @@ import numpy as np
 from convsim.model import diagnostics as diag
 from convsim.model.grid import Grid
 
-__all__ = ["SnapshotData", "Observer", "ResumePoint", "RunResult", "Series", "RowBuffer", "SERIES_COLUMNS",
-           "snapshot_fields", "final_result"]
+__all__ = ["SnapshotData", "Observer", "ResumePoint", "RunResult", "Series", "RowBuffer",
+           "SERIES_COLUMNS", "snapshot_fields", "final_result"]
 
 #: The step's own columns, then one per declared diagnostic (``model.diagnostics.DIAGNOSTICS``).
 STEP_COLUMNS = ("series_time", "series_step", "dt", "rayleigh")
