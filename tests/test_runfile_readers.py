@@ -184,3 +184,17 @@ def test_readers_in_a_tight_loop_never_stop_the_run_and_read_only_whole_snapshot
     assert len(final.steps) == 21 and final.attrs["status"] == "step-limit"
     with h5py.File(path, "r") as f:
         _check_h5(f)
+
+
+def test_a_file_without_snapshots_gets_its_own_one_line_message(tmp_path):
+    """Common practice (one clear line per bad input): a run file with no snapshot yet says
+    exactly that, not wrapped in the generic 'not a readable run file' message."""
+    import h5py
+    from convsim.errors import SnapshotError
+    from convsim.files.reader import read_run
+    path = tmp_path / "empty.h5"
+    with h5py.File(path, "w") as f:
+        f.create_dataset("time", shape=(0,), maxshape=(None,), dtype="f8")
+    with pytest.raises(SnapshotError) as caught:
+        read_run(path)
+    assert str(caught.value) == f"run file {str(path)!r}: holds no snapshot yet"

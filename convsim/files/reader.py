@@ -30,6 +30,8 @@ def reading_run_file(path):
     try:
         with open_run_file(path) as f:
             yield f
+    except SnapshotError:          # the reader's own message (an OSError too): as it is
+        raise
     except (OSError, KeyError) as exc:
         raise SnapshotError(f"run file {str(path)!r}: not a readable convsim run file "
                             f"({exc})") from None
