@@ -159,17 +159,16 @@ def draw_mobility(ax, run: RunFile, pres: Presentation,
         ax.axvline(pres.time(when), color=style.LINE_COLORS[1], linewidth=0.8,
                    label=f"{len(times)} lid break{'s' if len(times) > 1 else ''} ({where})"
                    if i == 0 else None)
-    if not len(times):
-        ax.plot([], [], color=style.LINE_COLORS[1], linewidth=0.8,
-                label=f"no lid break ({where})")
     window = ((run.statistics or {}).get("statistics") or {}).get("nusselt_top") or {}
     start = window.get("from_time")
-    if start is not None and np.isfinite(start) and len(t) and start > s["series_time"][0]:
+    if (start is not None and np.isfinite(start) and len(t)
+            and s["series_time"][0] < start < s["series_time"][-1]):     # steady: no window
         ax.axvline(pres.time(start), color=style.GUIDE_COLOR, linewidth=0.7, linestyle="-.",
                    label="averaging window starts")
     lid = (run.statistics or {}).get("lid") or {}
     word = lid.get("regime")
-    ax.set_title(f"regime: {word}" if word else "regime: (run unfinished)", loc="left")
+    breaks = "" if len(times) else f"; no lid break ({where})"
+    ax.set_title((f"regime: {word}" if word else "regime: (run unfinished)") + breaks, loc="left")
     ax.set_xlabel(pres.time_label)
     ax.set_ylabel("mobility M = surface vrms / vrms")
     top = float(np.nanmax(s["mobility"])) if len(t) else 1.0
