@@ -60,6 +60,10 @@ class Domain:
                          default=1.0, gt=0.0, le=64.0)
     nx: int = _key("number of cells across the box (x)", "cells", default=64, ge=4, le=4096)
     nz: int = _key("number of cells through the depth (z)", "cells", default=64, ge=4, le=4096)
+    wall_refinement: float = _key(
+        "grid refinement towards the top and bottom walls: beta of the corner heights "
+        "z = (1 + tanh(beta (2 s - 1)) / tanh(beta)) / 2 of equally spaced s; middle / wall "
+        "cell height about cosh(beta)^2; 0: uniform grid", default=0.0, ge=0.0, le=4.0)
 
 
 @dataclass(frozen=True)

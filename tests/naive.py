@@ -29,8 +29,10 @@ def face_value(up2, up, down, name):
 
 
 def advective_tendency(padded, u, w, dx, dz, name):
-    """-div(u T) from limited upwind face values; padded has two ghost layers."""
+    """-div(u T) from limited upwind face values; padded has two ghost layers; dz a number
+    or the height of each cell row."""
     nz, nx = padded.shape[0] - 4, padded.shape[1] - 4
+    heights = np.broadcast_to(np.asarray(dz, dtype=float), (nz,))
     P = lambda j, i: padded[j + 2, i + 2]          # noqa: E731 - cell (j, i), ghosts at -1, -2
     out = np.zeros((nz, nx))
     for j in range(nz):
@@ -46,7 +48,7 @@ def advective_tendency(padded, u, w, dx, dz, name):
                 t = (face_value(P(f - 2, i), P(f - 1, i), P(f, i), name) if v >= 0
                      else face_value(P(f + 1, i), P(f, i), P(f - 1, i), name))
                 return v * t
-            out[j, i] = -(flux_x(i + 1) - flux_x(i)) / dx - (flux_z(j + 1) - flux_z(j)) / dz
+            out[j, i] = -(flux_x(i + 1) - flux_x(i)) / dx - (flux_z(j + 1) - flux_z(j)) / heights[j]
     return out
 
 

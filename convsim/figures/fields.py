@@ -173,12 +173,15 @@ def draw_field(ax, run: RunFile, pres: Presentation, values, *, shading="smooth"
 
     ``smooth`` interpolates bilinearly between the cell centres and holds the value in
     the outer half cells (``imshow`` over the box); ``cells`` draws one flat colour per
-    cell over the cell corners.  Either way ``get_array()`` is ``values`` itself.
+    cell over the cell corners.  Either way ``get_array()`` is ``values`` itself.  A grid
+    refined towards the walls (unequal rows) is always drawn as cells at their real
+    corners (an image would place the rows at equal heights).
     """
     if shading not in SHADINGS:
         raise ConfigError(f"--shading = {shading!r}: expected one of {', '.join(SHADINGS)}")
     x, z = pres.length(run.x_node), pres.length(run.z_node)
-    if shading == "cells":
+    rows = np.diff(np.asarray(run.z_node, dtype=float))
+    if shading == "cells" or not np.allclose(rows, rows[0], rtol=1e-9, atol=0.0):
         return ax.pcolormesh(x, z, values, shading="flat", rasterized=True, **kwargs)
     return ax.imshow(values, origin="lower", extent=(x[0], x[-1], z[0], z[-1]),
                      interpolation="bilinear", interpolation_stage="data", aspect="equal",

@@ -44,20 +44,23 @@ def wall_profiles(run: RunFile, config=None):
     cfg = run_config(run) if config is None else config
     b = cfg.boundaries
     T, eta = run.fields["temperature_profile"], run.fields["viscosity_profile"]
-    dz = float(run.z_node[1] - run.z_node[0])
-    walls = []
-    for kind, value, t1, t2, sign in (("bottom_heat", b.bottom_value, T[0], T[1], 1.0),
-                                      ("top_heat", b.top_value, T[-1], T[-2], -1.0)):
+    zn, zc = run.z_node, run.z
+    walls = []      # quadratic through the two wall cells (centres n1, n2 from the wall)
+    for kind, value, t1, t2, sign, n1, n2 in (
+            ("bottom_heat", b.bottom_value, T[0], T[1], 1.0, zc[0] - zn[0], zc[1] - zn[0]),
+            ("top_heat", b.top_value, T[-1], T[-2], -1.0, zn[-1] - zc[-1], zn[-1] - zc[-2])):
         if getattr(b, kind) == "temperature":
             walls.append(value)
         else:
             slope = -sign * value
-            curvature = (t2 - t1 - slope * dz) / (2.0 * dz * dz)
-            walls.append(t1 - 0.5 * slope * dz - curvature * dz * dz / 4.0)
+            curvature = (t2 - t1 - slope * (n2 - n1)) / (n2 * n2 - n1 * n1)
+            walls.append(t1 - slope * n1 - curvature * n1 * n1)
     z = np.concatenate([[run.z_node[0]], run.z, [run.z_node[-1]]])
     log_eta = np.log(eta)
-    eta_walls = np.exp([1.5 * log_eta[0] - 0.5 * log_eta[1],
-                        1.5 * log_eta[-1] - 0.5 * log_eta[-2]])
+    below = (zc[0] - zn[0]) / (zc[1] - zc[0])        # 1/2 on a uniform grid
+    above = (zn[-1] - zc[-1]) / (zc[-1] - zc[-2])
+    eta_walls = np.exp([log_eta[0] + below * (log_eta[0] - log_eta[1]),
+                        log_eta[-1] + above * (log_eta[-1] - log_eta[-2])])
     return (z, np.concatenate([[walls[0]], T, [walls[1]]]),
             np.concatenate([[eta_walls[0]], eta, [eta_walls[1]]]))
 

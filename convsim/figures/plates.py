@@ -96,8 +96,12 @@ def deforming_cells(u: np.ndarray, share: float = 0.8) -> np.ndarray:
 
 def draw_surface_velocity(ax, run: RunFile, pres: Presentation):
     """u(x) on the top wall with the f80 cells shaded and the plateness in the title."""
-    dz = float(run.z_node[1] - run.z_node[0])
-    u = top_velocity(run.fields["streamfunction"], dz)
+    z = run.z_node
+    dz = float(z[1] - z[0])
+    if np.allclose(np.diff(z), dz):
+        u = top_velocity(run.fields["streamfunction"], dz)
+    else:                                   # a grid refined towards the walls
+        u = top_velocity(run.fields["streamfunction"], float(z[-1] - z[-2]), float(z[-2] - z[-3]))
     x = pres.length(run.x_node)
     mask = deforming_cells(u)
     for i in np.flatnonzero(mask):

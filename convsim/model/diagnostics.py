@@ -52,16 +52,22 @@ NEEDS = ("", "yielding")
 
 def wall_temperatures(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tuple[np.ndarray, np.ndarray]:
     """Temperature on the bottom and top walls, each (nx,): imposed, or extrapolated (fixed flux)."""
-    dz = grid.dz
+    h = grid.dz_cell
     out = []
-    for kind, value, t1, t2, sign in ((bc.bottom_heat, bc.bottom_value, T[0], T[1], 1.0),
-                                      (bc.top_heat, bc.top_value, T[-1], T[-2], -1.0)):
+    for kind, value, t1, t2, sign, h1, h2 in (
+            (bc.bottom_heat, bc.bottom_value, T[0], T[1], 1.0, h[0], h[1]),
+            (bc.top_heat, bc.top_value, T[-1], T[-2], -1.0, h[-1], h[-2])):
         if kind == "temperature":
             out.append(np.full(grid.nx, value))
-        else:  # quadratic through the two cells with slope b = dT/dn (n: distance from the wall)
+        elif not grid.stretched:  # quadratic through the two cells with slope b = dT/dn
+            dz = grid.dz          # (n: distance from the wall)
             b = -sign * value
             curvature = (t2 - t1 - b * dz) / (2.0 * dz * dz)
             out.append(t1 - 0.5 * b * dz - curvature * dz * dz / 4.0)
+        else:                     # the same quadratic, centres at n1 = h1 / 2, n2 = h1 + h2 / 2
+            b, n1, n2 = -sign * value, 0.5 * h1, h1 + 0.5 * h2
+            curvature = (t2 - t1 - b * (n2 - n1)) / (n2 * n2 - n1 * n1)
+            out.append(t1 - b * n1 - curvature * n1 * n1)
     return out[0], out[1]
 
 
@@ -97,15 +103,20 @@ def rms_velocity(grid: Grid, psi: np.ndarray) -> float:
     """vrms = sqrt(mean(u^2 + w^2)) over the box.
 
     u^2 is integrated on the vertical faces and w^2 on the horizontal ones, by the
-    trapezoidal rule across the faces and the midpoint rule along them (second order).
+    trapezoidal rule across the faces and the midpoint rule along them (second order);
+    on a stretched grid u^2 weighs its row height and w^2 its corner row's control height.
     """
     u, w = face_velocities(grid, psi)
     wx = np.full(grid.nx + 1, grid.dx)
-    wz = np.full(grid.nz + 1, grid.dz)
     if not grid.periodic:
         wx[[0, -1]] *= 0.5
     else:
         wx[-1] = 0.0
+    if grid.stretched:
+        integral = (np.sum((u * u) * wx[None, :] * grid.dz_cell[:, None])
+                    + np.sum((w * w) * grid.dz_node[:, None]) * grid.dx)
+        return float(np.sqrt(integral / grid.area))
+    wz = np.full(grid.nz + 1, grid.dz)
     wz[[0, -1]] *= 0.5
     integral = np.sum((u * u) * wx[None, :]) * grid.dz + np.sum((w * w) * wz[:, None]) * grid.dx
     return float(np.sqrt(integral / grid.area))
@@ -113,12 +124,20 @@ def rms_velocity(grid: Grid, psi: np.ndarray) -> float:
 
 def surface_rms_velocity(grid: Grid, psi: np.ndarray) -> float:
     """rms of the horizontal velocity on the top wall, u = dpsi/dz (one-sided, second order)."""
-    u_top = (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * grid.dz)
+    from convsim.model.plates import surface_velocity
+    u_top = surface_velocity(grid, psi)
     if grid.periodic:
         return float(np.sqrt(np.mean(u_top[:-1] ** 2)))
     weights = np.full(grid.nx + 1, 1.0)
     weights[[0, -1]] = 0.5
     return float(np.sqrt(np.sum(weights * u_top ** 2) / np.sum(weights)))
+
+
+def mean_temperature(grid: Grid, T: np.ndarray) -> float:
+    """Area mean of a cell field (plain mean on a uniform grid)."""
+    if grid.stretched:
+        return heat_content(grid, T) / grid.area
+    return float(T.mean())
 
 
 def horizontal_mean(field: np.ndarray) -> np.ndarray:
@@ -128,7 +147,7 @@ def horizontal_mean(field: np.ndarray) -> np.ndarray:
 
 def heat_content(grid: Grid, T: np.ndarray) -> float:
     """Integral of T over the box (cell sums times cell area)."""
-    return float(T.sum() * grid.dx * grid.dz)
+    return grid.integral(T)
 
 
 def heat_budget(grid: Grid, heat_rate: float, T: np.ndarray, bc: ThermalBoundaries,
@@ -247,7 +266,7 @@ DIAGNOSTICS = {d.name: d for d in (
     Diagnostic("mobility", "1", "surface mobility M = surface_vrms / vrms (Tackley 2000)",
                Sample.mobility),
     Diagnostic("mean_temperature", "1", "mean temperature of the box",
-               lambda s: float(s.T.mean())),
+               lambda s: mean_temperature(s.grid, s.T)),
     Diagnostic("heat_imbalance", "1", "bottom inflow + heating - top outflow over the largest "
                "heat flow (0 when steady)", lambda s: s.budget[1]),
     Diagnostic("energy_residual", "1", "heat budget misfit of the step over the largest heat "

@@ -42,7 +42,8 @@ def layer(bottom: float, top: float) -> Callable:
     def start(grid: Grid) -> np.ndarray:
         lower = grid.z_node[:-1]
         covered = np.clip(np.minimum(grid.z_node[1:], top) - np.maximum(lower, bottom), 0.0, None)
-        return np.repeat(np.minimum(covered / grid.dz, 1.0)[:, None], grid.nx, axis=1)
+        height = grid.dz_cell if grid.stretched else grid.dz
+        return np.repeat(np.minimum(covered / height, 1.0)[:, None], grid.nx, axis=1)
     return start
 
 

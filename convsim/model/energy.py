@@ -16,6 +16,19 @@ The implicit solve (a I - dt K) T = r, with K the discrete Laplacian, is done by
 a cosine (insulating sides) or Fourier (periodic) transform in x and a
 precomputed eigendecomposition of the tridiagonal z operator: exact for any dt,
 with no factorisation to redo when dt changes.
+
+On a grid refined towards the walls (``Grid.stretched``) every vertical flux
+difference is divided by its own cell height h_j = ``dz_cell[j]``, and the
+diffusive flux between two rows is the temperature difference over the distance
+between their centres d_j = ``dz_node[j]`` (h_0 / 2 from a wall to the first
+centre), so the scheme stays conservative:
+
+    (K_z T)_j = [(T_{j+1} - T_j) / d_{j+1} - (T_j - T_{j-1}) / d_j] / h_j.
+
+K_z = H^-1 S (H = diag(h), S symmetric) is diagonalised through the symmetric
+H^-1/2 S H^-1/2.  The TVD reconstruction of the face values works in index space
+(neighbouring rows treated as equally spaced): exact for the linear profiles the
+limiter must keep, and second order where the spacing varies smoothly.
 """
 
 from __future__ import annotations
@@ -93,16 +106,19 @@ def pad_temperature(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> np.ndar
     nz, nx = T.shape
     p = np.empty((nz + 4, nx + 4))
     p[2:-2, 2:-2] = T
-    dz = grid.dz
-    for (g_near, g_far, c_near, c_far, kind, value, sign) in (
-            (1, 0, 2, 3, bc.bottom_heat, bc.bottom_value, +1.0),
-            (nz + 2, nz + 3, nz + 1, nz, bc.top_heat, bc.top_value, -1.0)):
+    h = grid.dz_cell
+    for (g_near, g_far, c_near, c_far, kind, value, sign, h_near, h_next) in (
+            (1, 0, 2, 3, bc.bottom_heat, bc.bottom_value, +1.0, h[0], h[1]),
+            (nz + 2, nz + 3, nz + 1, nz, bc.top_heat, bc.top_value, -1.0, h[-1], h[-2])):
         if kind == "temperature":
             p[g_near, 2:-2] = 2.0 * value - p[c_near, 2:-2]
             p[g_far, 2:-2] = 2.0 * value - p[c_far, 2:-2]
-        else:  # T(-z) = T(z) + 2 q z at the bottom, mirrored at the top
-            p[g_near, 2:-2] = p[c_near, 2:-2] + sign * value * dz
-            p[g_far, 2:-2] = p[c_far, 2:-2] + sign * 3.0 * value * dz
+        elif not grid.stretched:  # T(-z) = T(z) + 2 q z at the bottom, mirrored at the top
+            p[g_near, 2:-2] = p[c_near, 2:-2] + sign * value * grid.dz
+            p[g_far, 2:-2] = p[c_far, 2:-2] + sign * 3.0 * value * grid.dz
+        else:  # mirror cells of the wall rows: centres at h_0 / 2 and h_0 + h_1 / 2
+            p[g_near, 2:-2] = p[c_near, 2:-2] + sign * value * h_near
+            p[g_far, 2:-2] = p[c_far, 2:-2] + sign * value * (2.0 * h_near + h_next)
     if grid.periodic:
         p[:, :2] = p[:, nx:nx + 2]
         p[:, -2:] = p[:, 2:4]
@@ -123,7 +139,7 @@ def advection(grid: Grid, T: np.ndarray, u: np.ndarray, w: np.ndarray, bc: Therm
     limiter : one of LIMITERS; 'upwind' gives the first-order scheme.
     """
     out = np.empty(grid.cell_shape)
-    return kernels.advective_tendency(pad_temperature(grid, T, bc), u, w, grid.dx, grid.dz,
+    return kernels.advective_tendency(pad_temperature(grid, T, bc), u, w, grid.dx, grid.dz_cell,
                                       kernels.LIMITER_CODES[limiter], out)
 
 
@@ -133,12 +149,13 @@ def boundary_heat_flux(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tupl
     These are the fluxes the finite-volume scheme itself uses, so they close the
     heat budget exactly.
     """
+    h = grid.dz_cell
     if bc.bottom_heat == "temperature":
-        bottom = -(T[0] - bc.bottom_value) / (0.5 * grid.dz)
+        bottom = -(T[0] - bc.bottom_value) / (0.5 * h[0])
     else:
         bottom = np.full(grid.nx, bc.bottom_value)
     if bc.top_heat == "temperature":
-        top = -(bc.top_value - T[-1]) / (0.5 * grid.dz)
+        top = -(bc.top_value - T[-1]) / (0.5 * h[-1])
     else:
         top = np.full(grid.nx, bc.top_value)
     return bottom, top
@@ -153,25 +170,18 @@ class DiffusionSolver:
 
     def __init__(self, grid: Grid, bc: ThermalBoundaries):
         self.grid, self.bc = grid, bc
-        nz, dz = grid.nz, grid.dz
-        kz = (np.diag(np.full(nz - 1, 1.0), -1) + np.diag(np.full(nz - 1, 1.0), 1)
-              - 2.0 * np.eye(nz)) / dz ** 2
-        g = np.zeros(nz)
-        if bc.bottom_heat == "temperature":
-            kz[0, 0] = -3.0 / dz ** 2
-            g[0] = 2.0 * bc.bottom_value / dz ** 2
+        if grid.stretched:
+            self._kz, g = _stretched_kz(grid, bc)
         else:
-            kz[0, 0] = -1.0 / dz ** 2
-            g[0] = bc.bottom_value / dz
-        if bc.top_heat == "temperature":
-            kz[-1, -1] = -3.0 / dz ** 2
-            g[-1] = 2.0 * bc.top_value / dz ** 2
-        else:
-            kz[-1, -1] = -1.0 / dz ** 2
-            g[-1] = -bc.top_value / dz
-        self._kz = kz
+            self._kz, g = _uniform_kz(grid, bc)
         self.boundary_term = np.repeat(g[:, None], grid.nx, axis=1)
-        self._mu, self._q = np.linalg.eigh(kz)
+        if grid.stretched:      # K_z = H^-1 S: eigenvectors H^-1/2 V of H^-1/2 S H^-1/2 = V M V^T
+            root = np.sqrt(grid.dz_cell)
+            self._mu, v = np.linalg.eigh(root[:, None] * self._kz / root[None, :])
+            self._q, self._q_inverse = v / root[:, None], v.T * root[None, :]
+        else:
+            self._mu, self._q = np.linalg.eigh(self._kz)
+            self._q_inverse = self._q.T
         m = np.arange(grid.nx // 2 + 1 if grid.periodic else grid.nx)
         if grid.periodic:
             self._lam_x = -(4.0 / grid.dx ** 2) * np.sin(np.pi * m / grid.nx) ** 2
@@ -194,12 +204,58 @@ class DiffusionSolver:
             rh = sfft.rfft(rhs, axis=1)
         else:
             rh = sfft.dct(rhs, type=2, axis=1, norm="ortho")
-        modal = self._q.T @ rh
+        modal = self._q_inverse @ rh
         modal /= a - dt * (self._mu[:, None] + self._lam_x[None, :])
         rh = self._q @ modal
         if self.grid.periodic:
             return sfft.irfft(rh, n=self.grid.nx, axis=1)
         return sfft.idct(rh, type=2, axis=1, norm="ortho")
+
+
+def _uniform_kz(grid: Grid, bc: ThermalBoundaries) -> tuple[np.ndarray, np.ndarray]:
+    """(K_z, g) of equal rows dz: (T_{j-1} - 2 T_j + T_{j+1}) / dz^2, wall ghosts folded in."""
+    nz, dz = grid.nz, grid.dz
+    kz = (np.diag(np.full(nz - 1, 1.0), -1) + np.diag(np.full(nz - 1, 1.0), 1)
+          - 2.0 * np.eye(nz)) / dz ** 2
+    g = np.zeros(nz)
+    if bc.bottom_heat == "temperature":
+        kz[0, 0] = -3.0 / dz ** 2
+        g[0] = 2.0 * bc.bottom_value / dz ** 2
+    else:
+        kz[0, 0] = -1.0 / dz ** 2
+        g[0] = bc.bottom_value / dz
+    if bc.top_heat == "temperature":
+        kz[-1, -1] = -3.0 / dz ** 2
+        g[-1] = 2.0 * bc.top_value / dz ** 2
+    else:
+        kz[-1, -1] = -1.0 / dz ** 2
+        g[-1] = -bc.top_value / dz
+    return kz, g
+
+
+def _stretched_kz(grid: Grid, bc: ThermalBoundaries) -> tuple[np.ndarray, np.ndarray]:
+    """(K_z, g) of unequal rows (module docstring): the flux between rows j - 1 and j is
+    (T_j - T_{j-1}) / d_j, the wall flux (T_0 - T_b) / (h_0 / 2) or the imposed q."""
+    h, d = grid.dz_cell, grid.dz_node
+    conductance = 1.0 / d[1:-1]                      # between rows j and j + 1
+    kz = np.zeros((grid.nz, grid.nz))
+    rows = np.arange(grid.nz - 1)
+    kz[rows, rows + 1] = conductance / h[:-1]
+    kz[rows + 1, rows] = conductance / h[1:]
+    kz[rows, rows] -= conductance / h[:-1]
+    kz[rows + 1, rows + 1] -= conductance / h[1:]
+    g = np.zeros(grid.nz)
+    if bc.bottom_heat == "temperature":
+        kz[0, 0] -= 2.0 / h[0] ** 2
+        g[0] = 2.0 * bc.bottom_value / h[0] ** 2
+    else:
+        g[0] = bc.bottom_value / h[0]
+    if bc.top_heat == "temperature":
+        kz[-1, -1] -= 2.0 / h[-1] ** 2
+        g[-1] = 2.0 * bc.top_value / h[-1] ** 2
+    else:
+        g[-1] = -bc.top_value / h[-1]
+    return kz, g
 
 
 def diffusion_matrix(grid: Grid, bc: ThermalBoundaries):
@@ -238,8 +294,11 @@ def upwind_matrix(grid: Grid, u: np.ndarray, w: np.ndarray):
     up, um = np.maximum(u[:, faces], 0.0) / grid.dx, np.minimum(u[:, faces], 0.0) / grid.dx
     add(left, left, up), add(left, right, um), add(right, left, -up), add(right, right, -um)
     below, above = idx[:-1, :], idx[1:, :]
-    wp, wm = np.maximum(w[1:-1], 0.0) / grid.dz, np.minimum(w[1:-1], 0.0) / grid.dz
-    add(below, below, wp), add(below, above, wm), add(above, below, -wp), add(above, above, -wm)
+    h = grid.dz_cell
+    h_below, h_above = h[:-1, None], h[1:, None]     # each cell divides by its own height
+    wp, wm = np.maximum(w[1:-1], 0.0), np.minimum(w[1:-1], 0.0)
+    add(below, below, wp / h_below), add(below, above, wm / h_below)
+    add(above, below, -wp / h_above), add(above, above, -wm / h_above)
     n = nz * nx
     return sp.csc_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
                          shape=(n, n))

@@ -55,7 +55,9 @@ def advective_tendency(padded, u, w, dx, dz, code, out):
     padded : (nz + 4, nx + 4) temperature with two ghost layers on every side.
     u : (nz, nx + 1) velocity on the vertical faces.
     w : (nz + 1, nx) velocity on the horizontal faces.
-    dx, dz : cell sizes.
+    dx : cell width.
+    dz : (nz,) height of each cell row (the face values are reconstructed in index
+        space: on a stretched grid the limiter sees neighbouring cells as equally spaced).
     code : limiter code (see LIMITER_CODES).
     out : (nz, nx) result, overwritten.
     """
@@ -84,5 +86,5 @@ def advective_tendency(padded, u, w, dx, dz, code, out):
             fz[j, i] = vel * tf
     for j in range(nz):
         for i in range(nx):
-            out[j, i] = -(fx[j, i + 1] - fx[j, i]) / dx - (fz[j + 1, i] - fz[j, i]) / dz
+            out[j, i] = -(fx[j, i + 1] - fx[j, i]) / dx - (fz[j + 1, i] - fz[j, i]) / dz[j]
     return out

@@ -212,10 +212,13 @@ def _strain_maps(op: StokesOperator):
                            shape=(jj.size, g.nz * g.nx))
     rows = np.arange(g.nz + 1)
     mix = sp.lil_matrix((g.nz + 1, g.nz))
-    for j in rows[1:-1]:
-        mix[j, j - 1] = mix[j, j] = 0.5
-    mix[0, 0], mix[0, 1] = 1.5, -0.5
-    mix[-1, -1], mix[-1, -2] = 1.5, -0.5
+    if g.stretched:
+        mix = sp.lil_matrix(g.row_to_node_weights())
+    else:
+        for j in rows[1:-1]:
+            mix[j, j - 1] = mix[j, j] = 0.5
+        mix[0, 0], mix[0, 1] = 1.5, -0.5
+        mix[-1, -1], mix[-1, -2] = 1.5, -0.5
     cell_to_node = (sp.kron(mix.tocsr(), sp.identity(g.nx + 1)) @ across).tocsr()
     # L rows -> node array (the periodic copy of column 0 at column nx) -> four-corner mean
     scatter_rows = [np.arange(len(jn))]

@@ -72,13 +72,22 @@ def yielded_fraction(mask: np.ndarray) -> float:
 
 def surface_velocity(grid: Grid, psi: np.ndarray) -> np.ndarray:
     """u on the top wall at the node columns x_node, shape (nx + 1,)."""
+    if grid.stretched:
+        return top_velocity(psi, grid.dz_cell[-1], grid.dz_cell[-2])
     return top_velocity(psi, grid.dz)
 
 
-def top_velocity(psi: np.ndarray, dz: float) -> np.ndarray:
-    """u = dpsi/dz on the top wall, one-sided second order: (3 psi_n - 4 psi_n-1 +
-    psi_n-2) / (2 dz), at the node columns, shape (nx + 1,)."""
-    return (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * dz)
+def top_velocity(psi: np.ndarray, dz: float, dz_below: float | None = None) -> np.ndarray:
+    """u = dpsi/dz on the top wall, one-sided second order, at the node columns, shape
+    (nx + 1,): (3 psi_n - 4 psi_n-1 + psi_n-2) / (2 dz) for equal spacings; with the
+    top row's spacing a = dz and the next one b = dz_below (a stretched grid) the
+    three-point derivative psi_n (2a + b) / (a (a + b)) - psi_n-1 (a + b) / (a b)
+    + psi_n-2 a / (b (a + b))."""
+    if dz_below is None:
+        return (3.0 * psi[-1] - 4.0 * psi[-2] + psi[-3]) / (2.0 * dz)
+    a, b = dz, dz_below
+    return (psi[-1] * (2.0 * a + b) / (a * (a + b)) - psi[-2] * (a + b) / (a * b)
+            + psi[-3] * a / (b * (a + b)))
 
 
 def mobility(surface_vrms: float, vrms: float) -> float:

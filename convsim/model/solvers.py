@@ -157,6 +157,8 @@ class TransformStokes(StokesSolver):
         op = problem.operator
         if not problem.uniform or not op.top == op.bottom == "free-slip":
             return "needs constant viscosity and free-slip top and bottom"
+        if op.grid.stretched:
+            return "needs a uniform grid (domain.wall_refinement = 0)"
         return ""
 
     def solve(self, T, b, x0=None):

@@ -52,12 +52,20 @@ def courant_limit(u: np.ndarray, w: np.ndarray, dx: float, dz: float, cfl: float
     ----------
     u, w : ndarray
         Face velocities (kappa/d).
-    dx, dz : float
-        Cell sizes (d).
+    dx : float
+        Cell width (d).
+    dz : float or ndarray of shape (nz,)
+        Cell height, or the height of each cell row (a stretched grid): then |w| on a
+        horizontal face counts against the thinner of the two cells it joins.
     cfl : float
         Courant number.
     """
-    rate = float(np.abs(u).max()) / dx + float(np.abs(w).max()) / dz
+    if np.ndim(dz) == 0:
+        rate = float(np.abs(u).max()) / dx + float(np.abs(w).max()) / dz
+    else:
+        h = np.asarray(dz, dtype=float)
+        face = np.concatenate([h[:1], np.minimum(h[1:], h[:-1]), h[-1:]])
+        rate = float(np.abs(u).max()) / dx + float((np.abs(w) / face[:, None]).max())
     return math.inf if rate == 0.0 else cfl / rate
 
 
@@ -95,11 +103,11 @@ class StepSizeRule:
     time_scale_fraction: float = 0.04
     growth_limit: float = GROWTH_LIMIT
 
-    def courant_dt(self, u: np.ndarray, w: np.ndarray, dx: float, dz: float) -> float:
+    def courant_dt(self, u: np.ndarray, w: np.ndarray, dx: float, dz) -> float:
         """The Courant limit, capped by max_dt."""
         return min(self.max_dt, courant_limit(u, w, dx, dz, self.cfl))
 
-    def choose(self, u, w, dx: float, dz: float, advection_now=None, advection_before=None,
+    def choose(self, u, w, dx: float, dz, advection_now=None, advection_before=None,
                dt_before: float = 0.0) -> float:
         """dt_n from the velocities and tendencies at t_n and t_{n-1} (see the module docstring).
 
@@ -107,7 +115,7 @@ class StepSizeRule:
         ----------
         u, w : ndarray
             Face velocities of the state at t_n.
-        dx, dz : float
+        dx, dz : cell width and height (``courant_limit``: dz may be the row heights)
         advection_now, advection_before : ndarray or None
             A^n and A^{n-1} (cells); without A^{n-1} (first step) no time-scale limit.
         dt_before : float

@@ -25,9 +25,22 @@ No-slip walls have psi_z = 0; the mirror ghost psi(-dz) = psi(dz) gives
 psi_zz = 2 psi_1 / dz^2 on the wall, and those wall rows enter with half weight
 w = 1/2 (which keeps A symmetric).  Periodic sides wrap the x index.
 
+On a grid refined towards the walls (``Grid.stretched``; cell heights h_j =
+``dz_cell[j]``, corner control heights d_j = ``dz_node[j]``) L uses the three-point
+stencil of unequal spacings,
+
+    psi_zz(node j) = [(psi_{j+1} - psi_j) / h_j - (psi_j - psi_{j-1}) / h_{j-1}] / d_j,
+
+B divides by dx h_j, and the quadrature weights are the control areas: the L row of
+node row j weighs d_j (no-slip wall rows h_0 / 2, psi_zz = 2 psi_1 / h_0^2 there), the
+B row of cell row j weighs h_j, both in units of the mean row height 1 / nz (so a
+uniform grid has the weights above).  A stays symmetric positive definite, and
+W_node^-1 A is the second-order operator of (1) (L^T W L = W D_zz D_zz in z).  The
+right-hand side is the control-area mean of Ra dT/dx times the node weight.
+
 For constant viscosity and free-slip top and bottom, A equals the square of the
 five-point Laplacian exactly, so a sine/Fourier transform solves it with no
-factorisation (``TransformSolver``).  Otherwise the matrix is factorised (see
+factorisation (``TransformSolver``; uniform grids only).  Otherwise the matrix is factorised (see
 ``convsim.model.linsolve``) and its values are refilled from eta through a fixed map
 (``StokesOperator.matrix_from_weights``), keeping the sparsity pattern.
 """
@@ -129,6 +142,9 @@ class StokesOperator:
 
     def _build_rows(self):
         g = self.grid
+        if g.stretched:
+            self._build_stretched_rows()
+            return
         dx2, dz2 = g.dx ** 2, g.dz ** 2
         # rows of L: interior nodes, then no-slip wall nodes
         jj, ii = np.nonzero(self.node_index >= 0)
@@ -167,6 +183,51 @@ class StokesOperator:
         s = 1.0 / (g.dx * g.dz)
         bvals = np.where(bcols >= 0, np.array([s, -s, -s, s]), 0.0)
         self._B = _Rows(bcols, bvals)
+        self._B_weight = None
+
+    def _row_nodes(self):
+        """(j, i) of the interior unknown nodes in unknown order (one per periodic column)."""
+        g = self.grid
+        jj, ii = np.nonzero(self.node_index >= 0)
+        if g.periodic:
+            keep = ii < g.nx
+            jj, ii = jj[keep], ii[keep]
+        order = np.argsort(self.node_index[jj, ii])
+        return jj[order], ii[order]
+
+    def _build_stretched_rows(self):
+        """L and B rows and their control-area weights on a stretched grid (module doc)."""
+        g = self.grid
+        h, d, dx2 = g.dz_cell, g.dz_node, g.dx ** 2
+        jj, ii = self._row_nodes()
+        c = self._node
+        cols = np.stack([c(jj, ii), c(jj - 1, ii), c(jj + 1, ii), c(jj, ii - 1), c(jj, ii + 1)], 1)
+        below, above = 1.0 / (d[jj] * h[jj - 1]), 1.0 / (d[jj] * h[jj])
+        vals = np.stack([-below - above + 2.0 / dx2, below, above,
+                         np.full(len(jj), -1.0 / dx2), np.full(len(jj), -1.0 / dx2)], 1)
+        weights = [d[jj] * g.nz]
+        row_j, row_i = [jj], [ii]
+        wall_i = np.arange(g.nx) if g.periodic else np.arange(1, g.nx)
+        for wall, j_wall, j_in, h_wall in (("bottom", 0, 1, h[0]), ("top", g.nz, g.nz - 1, h[-1])):
+            if getattr(self, wall) != "no-slip":
+                continue
+            wc = np.full((len(wall_i), 5), -1, dtype=np.int64)
+            wc[:, 0] = c(np.full_like(wall_i, j_in), wall_i)
+            wv = np.zeros((len(wall_i), 5))
+            wv[:, 0] = 2.0 / h_wall ** 2
+            cols, vals = np.vstack([cols, wc]), np.vstack([vals, wv])
+            weights.append(np.full(len(wall_i), 0.5 * h_wall * g.nz))
+            row_j.append(np.full_like(wall_i, j_wall))
+            row_i.append(wall_i)
+        self._L = _Rows(cols, np.where(cols >= 0, vals, 0.0))
+        self._L_weight = np.concatenate(weights)
+        self._L_node = (np.concatenate(row_j), np.concatenate(row_i))
+        cj, ci = np.meshgrid(np.arange(g.nz), np.arange(g.nx), indexing="ij")
+        cj, ci = cj.ravel(), ci.ravel()
+        bcols = np.stack([c(cj, ci), c(cj, ci + 1), c(cj + 1, ci), c(cj + 1, ci + 1)], 1)
+        s = (1.0 / (g.dx * h[cj]))[:, None] * np.array([1.0, -1.0, -1.0, 1.0])
+        self._B = _Rows(bcols, np.where(bcols >= 0, s, 0.0))
+        self._B_weight = h[cj] * g.nz
 
     def _build_value_map(self):
         """A sparse map M with A.data = M @ [w eta_L ; 4 eta_cell], and A's fixed pattern.
@@ -229,7 +290,10 @@ class StokesOperator:
     def viscosity_weights(self, eta_node: np.ndarray, eta_cell: np.ndarray) -> np.ndarray:
         """The weights [w eta at the L rows ; 4 eta_cell] that the value map multiplies."""
         jn, in_ = self._L_node
-        return np.concatenate([self._L_weight * eta_node[jn, in_], 4.0 * eta_cell.ravel()])
+        cells = 4.0 * eta_cell.ravel()
+        if self._B_weight is not None:
+            cells = cells * self._B_weight
+        return np.concatenate([self._L_weight * eta_node[jn, in_], cells])
 
     def matrix(self, eta_node: np.ndarray, eta_cell: np.ndarray) -> sp.csr_matrix:
         """The symmetric positive definite matrix A(eta), shape (n_unknowns, n_unknowns).
@@ -254,8 +318,17 @@ class StokesOperator:
 
     # -- vectors ----------------------------------------------------------------------------
     def rhs(self, temperature: np.ndarray, rayleigh: float) -> np.ndarray:
-        """Right-hand side Ra (dT/dx) at the unknown nodes, shape (n_unknowns,)."""
-        return self.from_nodes(buoyancy_rhs(self.grid, temperature, rayleigh))
+        """Right-hand side Ra (dT/dx) at the unknown nodes, shape (n_unknowns,) (times the
+        node's control height in units of 1 / nz on a stretched grid)."""
+        return self.forcing(buoyancy_rhs(self.grid, temperature, rayleigh))
+
+    def forcing(self, f: np.ndarray) -> np.ndarray:
+        """The right-hand side of A psi = f for node values f (nz + 1, nx + 1) of the
+        forcing: f at the unknowns, times the control height of the node row in units
+        of 1 / nz on a stretched grid (module docstring)."""
+        if self.grid.stretched:
+            f = f * (self.grid.dz_node * self.grid.nz)[:, None]
+        return self.from_nodes(f)
 
     def to_nodes(self, solution: np.ndarray) -> np.ndarray:
         """Scatter an unknown vector onto the full node array (zeros on walls)."""
@@ -276,7 +349,8 @@ def buoyancy_rhs(grid: Grid, temperature: np.ndarray, rayleigh: float) -> np.nda
     """Ra dT/dx on the nodes, shape (nz + 1, nx + 1), from cell temperatures (nz, nx).
 
     dT/dx at a node is the mean of the x-differences of the two cell rows that meet
-    there; zero on the walls (where psi is imposed anyway).
+    there (weighted by the halves of their heights inside the node's control height on a
+    stretched grid); zero on the walls (where psi is imposed anyway).
     """
     g = grid
     if g.periodic:
@@ -286,7 +360,11 @@ def buoyancy_rhs(grid: Grid, temperature: np.ndarray, rayleigh: float) -> np.nda
         diff = np.zeros((g.nz, g.nx + 1))
         diff[:, 1:-1] = (temperature[:, 1:] - temperature[:, :-1]) / g.dx
     out = np.zeros(g.node_shape)
-    out[1:-1] = 0.5 * (diff[1:] + diff[:-1])
+    if g.stretched:
+        h, d = g.dz_cell, g.dz_node
+        out[1:-1] = (h[1:, None] * diff[1:] + h[:-1, None] * diff[:-1]) / (2.0 * d[1:-1, None])
+    else:
+        out[1:-1] = 0.5 * (diff[1:] + diff[:-1])
     return rayleigh * out
 
 
@@ -297,7 +375,10 @@ def face_velocities(grid: Grid, psi: np.ndarray) -> tuple[np.ndarray, np.ndarray
     w = -d(psi)/dx on the horizontal faces, shape (nz + 1, nx).
     The discrete divergence of (u, w) in every cell is zero to round-off.
     """
-    u = (psi[1:, :] - psi[:-1, :]) / grid.dz
+    if grid.stretched:
+        u = (psi[1:, :] - psi[:-1, :]) / grid.dz_cell[:, None]
+    else:
+        u = (psi[1:, :] - psi[:-1, :]) / grid.dz
     w = -(psi[:, 1:] - psi[:, :-1]) / grid.dx
     return u, w
 
@@ -320,6 +401,8 @@ class TransformSolver:
         g = operator.grid
         if operator.top != "free-slip" or operator.bottom != "free-slip":
             raise ValueError("the transform solver needs free-slip top and bottom")
+        if g.stretched:
+            raise ValueError("the transform solver needs a uniform grid (no wall refinement)")
         self.operator = operator
         self.viscosity = float(viscosity)
         mz = np.arange(1, g.nz)

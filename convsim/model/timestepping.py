@@ -261,7 +261,7 @@ class Model:
     def courant_dt(self, psi: np.ndarray) -> float:
         """dt = cfl / (max|u|/dx + max|w|/dz), capped by max_dt."""
         u, w = face_velocities(self.grid, psi)
-        return self.step_size.courant_dt(u, w, self.grid.dx, self.grid.dz)
+        return self.step_size.courant_dt(u, w, self.grid.dx, self.grid.dz_step)
 
     # -- the step ---------------------------------------------------------------------------
     def _advance(self, f: FieldDeclaration, state: ModelState, N: dict, c: Imex, dt: float):
@@ -306,7 +306,7 @@ class Model:
         H = self.internal_heating
         before = (None if state.previous_explicit is None
                   else state.previous_explicit["temperature"] - H)
-        dt = self.step_size.choose(u, w, self.grid.dx, self.grid.dz, N["temperature"] - H,
+        dt = self.step_size.choose(u, w, self.grid.dx, self.grid.dz_step, N["temperature"] - H,
                                    before, state.previous_dt)
         if dt_limit is not None:
             dt = min(dt, dt_limit)
@@ -320,9 +320,8 @@ class Model:
         c, fields, psi_new, solve = attempt
         t0 = time.perf_counter()
         T, T_new = state.temperature, fields["temperature"]
-        previous_sum = state.previous["temperature"].sum() if c.history else 0.0
-        heat_rate = ((c.a0 * T_new.sum() - c.a1 * T.sum() + c.a2 * previous_sum)
-                     * self.grid.dx * self.grid.dz / dt)
+        heat_rate = self._heat_rate(c, T_new, T, state.previous["temperature"] if c.history
+                                    else None, dt)
         new = ModelState(time=state.time + dt, step=state.step + 1, fields=fields, psi=psi_new,
                          previous=state.fields, previous_explicit=N, previous_dt=dt,
                          solver=self.flow_solver.state())
@@ -330,6 +329,15 @@ class Model:
         timings["diagnose"] = time.perf_counter() - t0
         report.seconds = timings
         return new, report
+
+    def _heat_rate(self, c: Imex, T_new, T, T_previous, dt: float) -> float:
+        """d/dt of the heat content by the step's own IMEX difference (cell sums x areas)."""
+        g = self.grid
+        if g.stretched:
+            before = g.integral(T_previous) if T_previous is not None else 0.0
+            return (c.a0 * g.integral(T_new) - c.a1 * g.integral(T) + c.a2 * before) / dt
+        previous_sum = T_previous.sum() if T_previous is not None else 0.0
+        return (c.a0 * T_new.sum() - c.a1 * T.sum() + c.a2 * previous_sum) * g.dx * g.dz / dt
 
     def _plausible(self, T_old: np.ndarray, T_new: np.ndarray) -> bool:
         """Reject a step whose temperature change exceeds the whole temperature range."""

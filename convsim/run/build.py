@@ -21,9 +21,11 @@ __all__ = ["build_model", "build_grid", "build_thermal", "build_law", "build_tra
 
 
 def build_grid(config: Config) -> Grid:
-    """The grid of [domain] (periodic when [boundaries] sides = 'periodic')."""
+    """The grid of [domain] (periodic when [boundaries] sides = 'periodic'; refined towards
+    the walls by domain.wall_refinement)."""
     d = config.domain
-    return Grid(d.nx, d.nz, d.aspect, periodic=(config.boundaries.sides == "periodic"))
+    return Grid(d.nx, d.nz, d.aspect, periodic=(config.boundaries.sides == "periodic"),
+                wall_refinement=d.wall_refinement)
 
 
 def build_thermal(config: Config) -> ThermalBoundaries:

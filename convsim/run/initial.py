@@ -43,7 +43,8 @@ def initial_temperature(grid: Grid, thermal: ThermalBoundaries, heating: float, 
     noise in [-A, A] times sin(pi z).
     """
     X, Z = grid.cell_mesh()
-    T = conductive_profile(Z, thermal, heating) - heating * grid.dz ** 2 / 24.0
+    height = grid.dz_cell[:, None] if grid.stretched else grid.dz
+    T = conductive_profile(Z, thermal, heating) - heating * height ** 2 / 24.0
     if start.kind == "one-cell":
         return one_cell_guess(grid, T, rayleigh)
     k = (2.0 if grid.periodic else 1.0) * start.mode * np.pi / grid.aspect

@@ -52,5 +52,5 @@ def coarse_temperature(config: Config, grid: Grid) -> np.ndarray | None:
              "%d x %d", coarse.domain.nx, coarse.domain.nz, result.nusselt_top, result.steps,
              grid.nx, grid.nz)
     source = Grid(coarse.domain.nx, coarse.domain.nz, coarse.domain.aspect,
-                  periodic=grid.periodic)
+                  periodic=grid.periodic, wall_refinement=coarse.domain.wall_refinement)
     return interpolate_cells(source.x_cell, source.z_cell, result.temperature, grid)
