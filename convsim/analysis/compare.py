@@ -91,12 +91,10 @@ def compare_runs(path_a: str | Path, path_b: str | Path) -> Comparison:
             rel = (vb - va) / abs(va)
         rows.append((label, key, va, vb, rel))
     Ta, Tb = a.fields["temperature"], b.fields["temperature"]
-    interpolated = Ta.shape != Tb.shape
-    if interpolated:
-        from convsim.model.grid import Grid, interpolate_cells
-        nz, nx = Ta.shape
-        grid = Grid(nx=nx, nz=nz, aspect=aspect_a)
-        Tb = interpolate_cells(b.x, b.z, Tb, grid)
+    interpolated = Ta.shape != Tb.shape or not np.allclose(a.z, b.z, rtol=0.0, atol=1e-12)
+    if interpolated:            # another grid (or rows refined towards the walls)
+        from convsim.model.grid import interpolate_points
+        Tb = interpolate_points(b.x, b.z, Tb, a.x, a.z, aspect_a)
     diff = Tb - Ta
     return Comparison(paths=(Path(path_a), Path(path_b)), runs=(a, b), rows=rows,
                       physical=(_physical(a, fa), _physical(b, fb)), temperature_b_on_a=Tb,

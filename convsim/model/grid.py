@@ -200,11 +200,18 @@ def interpolate_cells(x: np.ndarray, z: np.ndarray, field: np.ndarray, grid: Gri
     cell of the walls).  The source box may have another aspect ratio; it is
     stretched to this one.
     """
+    return interpolate_points(x, z, field, grid.x_cell, grid.z_cell, grid.aspect)
+
+
+def interpolate_points(x: np.ndarray, z: np.ndarray, field: np.ndarray, x_to: np.ndarray,
+                       z_to: np.ndarray, aspect: float) -> np.ndarray:
+    """``interpolate_cells`` onto the centres x_to (nx,), z_to (nz,) of a box of width
+    ``aspect`` (any spacing), shape (nz, nx)."""
     from scipy.interpolate import RegularGridInterpolator
 
-    xs = np.asarray(x) * (grid.aspect / (x[-1] + 0.5 * (x[1] - x[0])))
+    xs = np.asarray(x) * (aspect / (x[-1] + 0.5 * (x[1] - x[0])))
     zs = np.asarray(z)
     interp = RegularGridInterpolator((zs, xs), field, bounds_error=False, fill_value=None)
-    Z, X = np.meshgrid(np.clip(grid.z_cell, zs[0], zs[-1]), np.clip(grid.x_cell, xs[0], xs[-1]),
+    Z, X = np.meshgrid(np.clip(z_to, zs[0], zs[-1]), np.clip(x_to, xs[0], xs[-1]),
                        indexing="ij")
-    return interp(np.stack([Z.ravel(), X.ravel()], axis=1)).reshape(grid.cell_shape)
+    return interp(np.stack([Z.ravel(), X.ravel()], axis=1)).reshape(len(z_to), len(x_to))
