@@ -137,3 +137,35 @@ def test_stretched_advection_kernel_matches_naive_twin_and_upwind_matrix():
                                    atol=1e-12)
     np.testing.assert_allclose(-(upwind_matrix(g, u, w) @ T.ravel()).reshape(g.cell_shape),
                                advection(g, T, u, w, bc, "upwind"), atol=1e-10)
+
+
+def test_cell_to_node_is_exact_for_a_linear_field():
+    """Linear interpolation in z between the centres (and linear extrapolation to the
+    walls) reproduces T = a + b z exactly at the corners (a hand property of the rule)."""
+    g = Grid(6, 9, wall_refinement=BETA)
+    T = np.repeat((0.3 + 1.7 * g.z_cell)[:, None], g.nx, axis=1)
+    nodes = g.cell_to_node(T)
+    np.testing.assert_allclose(nodes, np.repeat((0.3 + 1.7 * g.z_node)[:, None], g.nx + 1, 1),
+                               atol=1e-13)
+
+
+def test_diagnostics_on_a_stretched_grid():
+    """Against hand formulas: conduction T = 1 - z has Nu = 1 at both walls (exact for the
+    wall flux of a linear profile); the area mean of T = z^2 over cells is the midpoint rule,
+    1/3 - sum(h_j^3) / 12 exactly; psi = sin(pi x) sin(pi z) has vrms = pi / sqrt(2)
+    (u = pi sin(pi x) cos(pi z), w = -pi cos(pi x) sin(pi z)), second order."""
+    from convsim.model import diagnostics as diag
+    bc = ThermalBoundaries()
+    errors = []
+    for n in (16, 32, 64):
+        g = Grid(n, n, wall_refinement=BETA)
+        X, Z = g.cell_mesh()
+        top, bottom = diag.nusselt_numbers(g, 1.0 - Z, bc)
+        assert top == pytest.approx(1.0, abs=1e-12) and bottom == pytest.approx(1.0, abs=1e-12)
+        midpoint = 1.0 / 3.0 - np.sum(g.dz_cell ** 3) / 12.0
+        assert diag.mean_temperature(g, Z ** 2) == pytest.approx(midpoint, abs=1e-14)
+        XN, ZN = g.node_mesh()
+        vrms = diag.rms_velocity(g, np.sin(np.pi * XN) * np.sin(np.pi * ZN))
+        errors.append(abs(vrms / (np.pi / np.sqrt(2.0)) - 1.0))
+    orders = np.log2(np.array(errors[:-1]) / np.array(errors[1:]))
+    assert errors[-1] < 1e-3 and np.all(orders > 1.8), (errors, orders)

@@ -22,12 +22,13 @@ from convsim.studies.viscoplastic import (interior_rms_velocity, oscillation_per
                                           periodic_means)
 
 
-@pytest.mark.parametrize("periodic,top", [(False, "free-slip"), (False, "no-slip"),
-                                          (True, "free-slip")])
-def test_sparse_newton_jacobian_is_the_derivative_of_the_residual(periodic, top):
+@pytest.mark.parametrize("periodic,top,beta", [(False, "free-slip", 0.0), (False, "no-slip", 0.0),
+                                               (True, "free-slip", 0.0), (False, "no-slip", 2.0)])
+def test_sparse_newton_jacobian_is_the_derivative_of_the_residual(periodic, top, beta):
     """J v = (R(x + h v) - R(x - h v)) / 2h (the definition of the derivative, central
-    difference, error O(h^2)) for a yielding law on a flow where part of the box yields."""
-    g = Grid(12, 8, 1.5, periodic=periodic)
+    difference, error O(h^2)) for a yielding law on a flow where part of the box yields
+    (beta > 0: a grid refined towards the walls)."""
+    g = Grid(12, 8, 1.5, periodic=periodic, wall_refinement=beta)
     op = StokesOperator(g, top, "free-slip")
     law = ViscosityLaw("frank-kamenetskii", thermal_contrast=1e3, yield_stress=1.0,
                        plastic_viscosity=1e-3)
