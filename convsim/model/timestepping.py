@@ -40,7 +40,7 @@ from typing import NamedTuple
 import numpy as np
 
 from convsim.model import diagnostics as diag
-from convsim.model.energy import DiffusionSolver, ThermalBoundaries, advection
+from convsim.model.energy import AdvectionKernels, DiffusionSolver, ThermalBoundaries, advection
 from convsim.model.fields import FieldDeclaration, temperature_field
 from convsim.model.grid import Grid
 from convsim.model.linsolve import SolveReport
@@ -136,6 +136,7 @@ class Model:
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
+        self._kernels = AdvectionKernels(grid.nx * grid.nz)
         self.cfl, self.max_dt = float(cfl), float(max_dt)
         self.step_size = StepSizeRule(self.cfl, self.max_dt, float(time_scale_fraction),
                                       GROWTH_LIMIT)
@@ -256,7 +257,8 @@ class Model:
 
     def _explicit_term_of(self, f: FieldDeclaration, values, u, w) -> np.ndarray:
         """N_f = -div(u f) + S_f for one declared field, shape (nz, nx)."""
-        return advection(self.grid, values, u, w, f.boundaries, self.limiter) + f.source
+        return advection(self.grid, values, u, w, f.boundaries, self.limiter,
+                         self._kernels.pick()) + f.source
 
     def courant_dt(self, psi: np.ndarray) -> float:
         """dt = cfl / (max|u|/dx + max|w|/dz), capped by max_dt."""
