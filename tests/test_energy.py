@@ -61,14 +61,15 @@ def test_whole_array_and_compiled_kernels_give_the_same_bits(limiter):
 
 def test_a_run_calls_the_array_kernel_first_then_the_compiled_one():
     """Rent or buy: array calls until their extra cost would have paid the compiler's start-up."""
-    small, large = AdvectionKernels(8 * 8), AdvectionKernels(512 * 512)
+    small, medium = AdvectionKernels(8 * 8), AdvectionKernels(64 * 64)
     expected_small = int(AdvectionKernels.START_UP_SECONDS
                          / (AdvectionKernels.EXTRA_SECONDS_PER_CELL * 64))
     assert small.array_calls_left == expected_small > 100_000
-    assert 0 < large.array_calls_left < 100
-    picks = [large.pick() for _ in range(large.array_calls_left + 2)]
+    assert 0 < medium.array_calls_left < 10_000
+    picks = [medium.pick() for _ in range(medium.array_calls_left + 2)]
     assert picks[0] is array_kernels.advective_tendency
     assert picks[-1] is kernels.advective_tendency and picks[-2] is kernels.advective_tendency
+    assert AdvectionKernels(65 * 64).pick() is kernels.advective_tendency   # large: compiled
 
 
 def test_upwind_matrix_equals_first_order_kernel():

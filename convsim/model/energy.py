@@ -129,15 +129,19 @@ class AdvectionKernels:
     ``EXTRA_SECONDS_PER_CELL`` more per cell and call (measured on a 2-core machine,
     8 x 8 to 256 x 256: 30 to 60 ns).  So a run calls the array version until that extra
     has added up to the start-up cost, then switches (the rent-or-buy rule: never more
-    than twice the cost of the better choice made in hindsight).  Short and small runs
-    never load the compiler; long or large ones switch within a fraction of a second.
+    than twice the cost of the better choice made in hindsight).  Grids of more than
+    ``ARRAY_MAX_CELLS`` cells start compiled: they are run for thousands of steps, where the
+    start-up is small, and the array version's extra cost per cell grows there (cache).
+    Short and small runs never load the compiler; long ones switch within a second.
     """
 
     START_UP_SECONDS = 0.7
     EXTRA_SECONDS_PER_CELL = 4e-8
+    ARRAY_MAX_CELLS = 64 * 64
 
     def __init__(self, cells: int):
-        self.array_calls_left = int(self.START_UP_SECONDS / (self.EXTRA_SECONDS_PER_CELL * cells))
+        self.array_calls_left = (0 if cells > self.ARRAY_MAX_CELLS else
+                                 int(self.START_UP_SECONDS / (self.EXTRA_SECONDS_PER_CELL * cells)))
         self._compiled = None
 
     def pick(self):
