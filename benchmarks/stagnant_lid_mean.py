@@ -76,11 +76,11 @@ def main():
         def on_snapshot(self, snap): ...
         def on_finish(self, result): ...
 
-    # the coarse runs of the start have no observer: at the deadline a SIGINT ends the one
-    # running (it ends "interrupted", so the fine run starts from the config's own start
-    # and stops at its first step)
+    # the coarse runs of the start have no observer: from the deadline on, a SIGINT every
+    # second ends each one running (it ends "interrupted", so the next grid starts from the
+    # config's own start, and the fine run stops at its first step)
     signal.signal(signal.SIGALRM, lambda *_: os.kill(os.getpid(), signal.SIGINT))
-    signal.setitimer(signal.ITIMER_REAL, 60 * args.minutes)
+    signal.setitimer(signal.ITIMER_REAL, 60 * args.minutes, 1.0)
     logging.basicConfig(level=logging.INFO, format="  %(name)s: %(message)s")
 
     print(f"case {Path(args.config).name}: {d.nx} x {d.nz} cells, box aspect {d.aspect:g} "
@@ -92,6 +92,7 @@ def main():
     t0 = time.perf_counter()
     result = api.run(cfg, observers=[Deadline()])
     wall = time.perf_counter() - t0
+    signal.setitimer(signal.ITIMER_REAL, 0.0)
     s = result.statistics
     print(f"  end {result.status} ({result.message}), settled {result.settled}")
     fine = t0 + wall - Deadline.started

@@ -64,9 +64,9 @@ def coarse_temperature(config: Config, grid: Grid) -> np.ndarray | None:
     from convsim.run.controller import Simulation
     result = Simulation.from_config(coarse).run()
     if not usable_start(result.status, result.settled):
-        log.warning("grid sequencing: the %d x %d run ended %s (%s); starting from the "
-                    "config's own start instead", coarse.domain.nx, coarse.domain.nz,
-                    result.status, result.settled)
+        log.warning("grid sequencing: the %d x %d run ended %s (%s) after %d steps, t = %.4g; "
+                    "starting from the config's own start instead", coarse.domain.nx,
+                    coarse.domain.nz, result.status, result.settled, result.steps, result.time)
         return None
     log.info("grid sequencing: %s on %d x %d (Nu %.6g) after %d steps, t = %.4g; "
              "interpolated to %d x %d", result.settled, coarse.domain.nx, coarse.domain.nz,
