@@ -53,11 +53,23 @@ def test_a_statistically_steady_coarse_run_starts_the_fine_grid(coarse_runs, end
     used = coarse_runs["config"]
     assert (used.domain.nx, used.domain.nz) == (16, 8)          # half the cells
     assert used.stop.mean_precision == 0.02                     # the coarse run keeps the rule
+    assert used.stop.steady                                     # as the config says
     coarse = Grid(16, 8, 2.0)
     xc, zc = coarse.x_cell, coarse.z_cell
     X, Z = fine.cell_mesh()
     expected = _linear(np.clip(X, xc[0], xc[-1]), np.clip(Z, zc[0], zc[-1]))
     np.testing.assert_allclose(T, expected, rtol=1e-12, atol=1e-12)
+
+
+def test_the_coarse_run_of_a_statistical_run_keeps_its_steady_key(coarse_runs):
+    coarse_runs["end"] = ("mean-precision", "statistically-steady")
+    data = {**STATISTICAL, "stop": {**STATISTICAL["stop"], "steady": False}}
+    sequence.coarse_temperature(parse_config(data, source="test"), Grid(32, 16, 2.0))
+    assert not coarse_runs["config"].stop.steady
+    # a run without time means still needs a steady coarse state (the rule is switched on)
+    data = {**STATISTICAL, "stop": {"steady": False, "max_steps": 1000}}
+    sequence.coarse_temperature(parse_config(data, source="test"), Grid(32, 16, 2.0))
+    assert coarse_runs["config"].stop.steady
 
 
 @pytest.mark.parametrize("end", [("step-limit", "unfinished"), ("interrupted", "unfinished"),

@@ -44,7 +44,10 @@ def coarse_config(config: Config, grid: Grid) -> Config | None:
         return None
     n = max(n, (grid.nz + 1) // 2)          # halve at most: 128 from 64, which sequences from 32
     nx = max(4, round(grid.nx * n / grid.nz))
-    return config.replace(domain__nx=nx, domain__nz=n, stop__steady=True)
+    # a steady start needs the steady rule; a statistical run keeps its own (stop.steady =
+    # false also keeps its looser automatic flow-solve tolerance, run.build.stokes_tolerance)
+    steady = config.stop.steady or config.stop.mean_precision == 0.0
+    return config.replace(domain__nx=nx, domain__nz=n, stop__steady=steady)
 
 
 def usable_start(status: str, settled: str) -> bool:
