@@ -154,10 +154,11 @@ class Start:
         "values of continuation_key (Rayleigh numbers by default) run to steady state, in order, "
         "before the config's own", default_factory=tuple)
     coarse_grid: int = _key(
-        "grid sequencing: first run this config to steady state on a coarser grid (half the "
-        "cells through the depth, but not fewer than this; nx in proportion), then start from "
-        "its temperature interpolated to the run's grid (0: off; ignored on a grid not "
-        "finer, with kind = snapshot and with continuation stages)",
+        "grid sequencing: first run this config to steady state (or, with mean_precision, "
+        "to statistical steady state) on a coarser grid (half the cells through the depth, "
+        "but not fewer than this; nx in proportion), then start from its final temperature "
+        "interpolated to the run's grid (0: off; ignored on a grid not finer, with kind = "
+        "snapshot and with continuation stages)",
         default=0, ge=0, le=4096)
 
 

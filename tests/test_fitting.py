@@ -214,7 +214,7 @@ def test_stagnant_lid_fit_is_compared_with_the_one_third_law():
              "settled": np.array(["steady"] * n, dtype=object),
              "rayleigh": ra_i / 10, "nusselt_top": nu, "surface_vrms": np.full(n, 0.1),
              "vrms": np.full(n, 100.0), "viscosity_contrast": np.exp(theta),
-             "rayleigh_interior": ra_i, "rheological_temperature_scale": 1.0 / theta}
+             "rayleigh_mean_interior": ra_i, "rheological_temperature_scale": 1.0 / theta}
     lid = fit_report(table, ys=("nusselt_top",))["stagnant_lid"]
     assert lid["case_ids"] == list(table["case_id"])
     assert lid["fit"]["exponent"] == pytest.approx(1.0 / 3.0, abs=0.01)

@@ -128,3 +128,29 @@ def test_precision_rule_fires_exactly_when_the_interval_is_narrow_enough():
     assert rule.observe(Report()).status == "mean-precision"
     Report.step = 1501                    # checked every 100 steps only
     assert rule.observe(Report()) is None
+
+
+def test_time_means_take_the_top_interval_through_the_heat_balance_below_a_smooth_lid():
+    # RunAverages fed with a fast "Nu_bottom" (AR(1), tau 3 steps) and a slow, smooth
+    # "Nu_top" (tau 399 steps) of one mean, as below a stagnant lid: the top's interval is
+    # |gap| + ci95_bottom (hand formula of convsim.run.averages: triangle inequality with
+    # mu_top = mu_bottom at H = 0), the bottom keeps its own
+    from scipy.signal import lfilter
+    from convsim.run.averages import RunAverages
+    rng = np.random.default_rng(11)
+    n = 1800
+    bottom = 10.0 + lfilter([1.0], [1.0, -0.5], rng.normal(0.0, 0.2, n))
+    top = 10.0 + lfilter([1.0], [1.0, -0.995], rng.normal(0.0, 0.005, n))
+    t = np.arange(1, n + 1) * 1e-4
+    avg = RunAverages(nz=4, heating=0.0, contrast=1.0)
+    for k in range(n):
+        avg.record(t[k], lambda k=k: dict(
+            nusselt_top=top[k], nusselt_bottom=bottom[k], vrms=100.0 + bottom[k],
+            surface_vrms=1.0, mean_temperature=0.8, interior_temperature=0.9,
+            lid_thickness=0.2, temperature_profile=np.full(4, 0.5),
+            viscosity_profile=np.ones(4)))
+    est, _ = avg.estimates()
+    b, tp = est["nusselt_bottom"], est["nusselt_top"]
+    assert b.interval == "autocorrelation" and b.reliable
+    assert tp.interval == "heat-balance" and tp.reliable
+    assert tp.ci95 == pytest.approx(abs(tp.mean - b.mean) + b.ci95, rel=1e-12)

@@ -99,3 +99,34 @@ def test_buffer_asks_only_for_the_rows_it_keeps():
         else:
             kept.skip()
     assert np.array_equal(kept.rows, offered.rows) and kept.count == offered.count
+
+
+def test_wall_interval_through_the_heat_balance_covers_the_long_run_mean():
+    # Two walls with one long-run mean mu = 3 (H = 0, a bounded heat content: energy
+    # conservation): the bottom a fast AR(1) (tau 3 samples: 2000 samples are reliable), the
+    # top a slow one (tau 399: the window spans 5 tau; its estimated tau, median 124, may
+    # even pass as "reliable"; its own interval covers mu in ~70 %), as below a stagnant lid.
+    # The top's interval through the balance, |gap| + ci95_bottom (triangle inequality,
+    # convsim.run.averages), is a bound: it must cover mu in at least the nominal 95 % of the
+    # seeds (AR(1) theory as above; 400 seeds: +- 1.1 % sampling sd).
+    from convsim.run.averages import balanced_walls
+    t = np.arange(2000) * 1e-3
+    covered = 0
+    for seed in range(400):
+        est = {"nusselt_top": st.estimate(t, ar1(seed + 10**6, t.size, 0.995, sigma=0.01), 0.0),
+               "nusselt_bottom": st.estimate(t, ar1(seed, t.size, 0.5, sigma=0.1), 0.0)}
+        assert est["nusselt_bottom"].reliable
+        top = balanced_walls(est, 0.0, 1.0)["nusselt_top"]
+        assert top.reliable and top.interval == "heat-balance" and top.mean == est[
+            "nusselt_top"].mean
+        covered += abs(top.mean - 3.0) <= top.ci95
+    assert covered / 400 >= 0.93
+    # with internal heating the long-run means differ by H / dT: the same bound around it
+    est = {"nusselt_top": st.estimate(t, ar1(1, t.size, 0.995, sigma=0.01) + 0.5, 0.0),
+           "nusselt_bottom": st.estimate(t, ar1(2, t.size, 0.5, sigma=0.1), 0.0)}
+    top = balanced_walls(est, 1.0, 2.0)["nusselt_top"]
+    gap = est["nusselt_top"].mean - est["nusselt_bottom"].mean - 0.5
+    assert top.ci95 == pytest.approx(abs(gap) + est["nusselt_bottom"].ci95, rel=1e-12)
+    # a reliable interval of its own is kept; no balance with a fixed-flux wall (dT NaN)
+    assert balanced_walls(est, 1.0, 2.0)["nusselt_bottom"] == est["nusselt_bottom"]
+    assert balanced_walls(est, 0.0, float("nan")) == est

@@ -346,3 +346,11 @@ values = [1e5, 1e6]
     assert list(table["rayleigh_reference"]) == ["bottom", "bottom"]
     np.testing.assert_allclose(table["rayleigh_bottom"], [1e5, 1e6], rtol=1e-12)
     np.testing.assert_allclose(table["rayleigh_top"], [1e5 / 1e2, 1e6 / 1e4], rtol=1e-12)
+    # Ra_i of stagnant-lid theory: the viscosity at the measured time-mean interior
+    # temperature T_i, Ra_top exp(ln(contrast) T_i) (same hand formula); not the mid wall
+    # temperature 1/2 of the run summary's rayleigh_interior (T_i differs from 1/2 here)
+    t_i = np.asarray(table["interior_temperature_mean"], float)
+    assert np.all(np.abs(t_i - 0.5) > 1e-3)
+    np.testing.assert_allclose(table["rayleigh_mean_interior"],
+                               np.array([1e3, 1e2]) * np.array([1e2, 1e4]) ** t_i, rtol=1e-9)
+    assert "rayleigh_interior" not in table       # one name, one definition

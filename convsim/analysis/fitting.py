@@ -298,13 +298,14 @@ def stagnant_lid_theory(table: dict, mask, ids, confidence: float = 0.95) -> dic
     """Fit Nu theta^(4/3) = a Ra_i^beta over the stagnant-lid rows in ``mask`` and set
     beta beside the theory's 1/3 (``STAGNANT_LID_THEORY``)."""
     entry = dict(STAGNANT_LID_THEORY)
-    needed = ("rayleigh_interior", "rheological_temperature_scale")
+    needed = ("rayleigh_mean_interior", "rheological_temperature_scale")
     if not all(k in table for k in needed):
-        entry["error"] = "the table has no rayleigh_interior / rheological_temperature_scale"
+        entry["error"] = ("the table has no rayleigh_mean_interior / "
+                          "rheological_temperature_scale")
         return entry
     _, nu, rel = value_column(table, "nusselt_top", "nusselt_top")
     theta = 1.0 / _column(table, "rheological_temperature_scale", "theta")
-    ra_i = _column(table, "rayleigh_interior", "rayleigh_interior")
+    ra_i = _column(table, "rayleigh_mean_interior", "rayleigh_mean_interior")
     sel = np.asarray(mask, bool) & np.isfinite(theta) & (theta > 0) & np.isfinite(ra_i)
     sel &= np.isfinite(nu) & (nu > 0) & (ra_i > 0)
     if sel.sum() < 2:

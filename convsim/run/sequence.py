@@ -10,6 +10,17 @@ Where several steady states exist (case 2 has a stable one and an unstable one),
 grid's Newton iteration lands on the one the coarse run found: the coarse grid must be fine
 enough to have the same one (16 cells were not, for case 2).  ``start.coarse_grid`` is a
 config key, so the choice is written in the config.
+
+A time-dependent flow has no steady state to hand on.  A run that asks for time means
+(``stop.mean_precision`` > 0) keeps that stop rule on the coarse grid, so the coarse run
+ends either steady or statistically steady with its own mean known to the same precision
+(``run.averages``: spin-up over, no drift, the interval reliable, the heat balance held);
+its last state, a state of the statistically steady flow, is interpolated to the fine
+grid.  The fine run then spins up only from the coarse flow to its own (boundary layers
+sharpening, the interior temperature moving by the difference between the grids), which
+its spin-up detector cuts off, instead of from a conductive start: measured on a
+stagnant lid, DEVELOPERS.md "Time-dependent stagnant lid".  Each coarse level sequences
+from the next in the same way, halving the grid, down to ``start.coarse_grid``.
 """
 
 from __future__ import annotations
@@ -21,7 +32,7 @@ import numpy as np
 from convsim.config import Config
 from convsim.model.grid import Grid, interpolate_cells
 
-__all__ = ["coarse_config", "coarse_temperature"]
+__all__ = ["coarse_config", "coarse_temperature", "usable_start"]
 
 log = logging.getLogger(__name__)
 
@@ -33,24 +44,36 @@ def coarse_config(config: Config, grid: Grid) -> Config | None:
         return None
     n = max(n, (grid.nz + 1) // 2)          # halve at most: 128 from 64, which sequences from 32
     nx = max(4, round(grid.nx * n / grid.nz))
-    return config.replace(domain__nx=nx, domain__nz=n, stop__steady=True)
+    # a steady start needs the steady rule; a statistical run keeps its own (stop.steady =
+    # false also keeps its looser automatic flow-solve tolerance, run.build.stokes_tolerance)
+    steady = config.stop.steady or config.stop.mean_precision == 0.0
+    return config.replace(domain__nx=nx, domain__nz=n, stop__steady=steady)
+
+
+def usable_start(status: str, settled: str) -> bool:
+    """Whether a coarse run that ended with ``status`` and ``settled`` word hands on its
+    state: steady, or statistically steady at the mean-precision stop (module docstring)."""
+    return status == "steady" or (status == "mean-precision"
+                                  and settled == "statistically-steady")
 
 
 def coarse_temperature(config: Config, grid: Grid) -> np.ndarray | None:
-    """The steady temperature of the coarse run interpolated to ``grid`` (None: not used, or
-    the coarse run did not reach steady state, then the config's own start is used)."""
+    """The final temperature of the coarse run, steady or statistically steady, interpolated
+    to ``grid`` (None: not used, or the coarse run ended otherwise, then the config's own
+    start is used)."""
     coarse = coarse_config(config, grid)
     if coarse is None:
         return None
     from convsim.run.controller import Simulation
     result = Simulation.from_config(coarse).run()
-    if result.status != "steady":
-        log.warning("grid sequencing: the %d x %d run ended %s; starting from the config's own "
-                    "start instead", coarse.domain.nx, coarse.domain.nz, result.status)
+    if not usable_start(result.status, result.settled):
+        log.warning("grid sequencing: the %d x %d run ended %s (%s) after %d steps, t = %.4g; "
+                    "starting from the config's own start instead", coarse.domain.nx,
+                    coarse.domain.nz, result.status, result.settled, result.steps, result.time)
         return None
-    log.info("grid sequencing: steady on %d x %d (Nu %.6g) after %d steps; interpolated to "
-             "%d x %d", coarse.domain.nx, coarse.domain.nz, result.nusselt_top, result.steps,
-             grid.nx, grid.nz)
+    log.info("grid sequencing: %s on %d x %d (Nu %.6g) after %d steps, t = %.4g; "
+             "interpolated to %d x %d", result.settled, coarse.domain.nx, coarse.domain.nz,
+             result.nusselt_top, result.steps, result.time, grid.nx, grid.nz)
     source = Grid(coarse.domain.nx, coarse.domain.nz, coarse.domain.aspect,
                   periodic=grid.periodic, wall_refinement=coarse.domain.wall_refinement)
     return interpolate_cells(source.x_cell, source.z_cell, result.temperature, grid)

@@ -76,7 +76,9 @@ class Estimate:
     ``from_time`` and ``to_time`` bound the averaging window, ``tau`` is the
     integrated autocorrelation time in samples of the uniform resample and
     ``tau_time`` the same in time units; ``samples`` the number of samples and
-    ``reliable`` whether the window spans at least ``MIN_TAUS`` tau.
+    ``reliable`` whether the window spans at least ``MIN_TAUS`` tau; ``interval`` how the
+    half-width was found: "autocorrelation" (eq. 4) or "heat-balance" (the wall Nusselt
+    numbers, ``convsim.run.averages.balanced_walls``).
     """
 
     mean: float
@@ -87,6 +89,8 @@ class Estimate:
     tau: float
     tau_time: float
     reliable: bool
+    interval: str = "autocorrelation"
+
 
     @property
     def relative_ci95(self) -> float:
@@ -96,7 +100,7 @@ class Estimate:
     def to_dict(self) -> dict:
         return dict(mean=self.mean, ci95=self.ci95, from_time=self.from_time,
                     to_time=self.to_time, samples=self.samples, tau_time=self.tau_time,
-                    reliable=self.reliable)
+                    reliable=self.reliable, interval=self.interval)
 
 
 def time_mean(t, y) -> np.ndarray:

@@ -156,10 +156,13 @@ LID_COLUMNS = ("mobility", "rheological_temperature_scale", "lid_viscosity_contr
 def _statistics_columns(result, law, boundaries) -> dict:
     """Time means, intervals, settled word, regime and lid diagnostics as table columns.
 
-    ``rayleigh_top``, ``rayleigh_bottom`` and ``rayleigh_interior`` restate the run's
+    ``rayleigh_top``, ``rayleigh_bottom`` and ``rayleigh_mean_interior`` restate the run's
     Rayleigh number (defined with eta = 1) with the viscosity at the top wall (its
-    temperature, z = 1), the bottom wall (z = 0) and the time-mean interior temperature
-    (z = 1/2): Ra / eta there, whatever reference the config stated Ra at.
+    temperature, z = 1), the bottom wall (z = 0) and the measured time-mean interior
+    temperature T_i (z = 1/2; the Ra_i of stagnant-lid theory): Ra / eta there, whatever
+    reference the config stated Ra at.  Not ``rayleigh_interior`` of the run summary,
+    which is Ra at the stated interior reference state, the mid wall temperature
+    (``convsim.run.layer``): a run input, not a measured one.
     """
     stats, lid = result.statistics or {}, result.lid or {}
     out = {"settled": result.settled, "regime": lid.get("regime", "")}
@@ -179,7 +182,7 @@ def _statistics_columns(result, law, boundaries) -> dict:
         float(result.temperature[-1].mean())
     out["rayleigh_top"] = ra / float(law(t_top, 1.0))
     t_i = out["interior_temperature_mean"]
-    out["rayleigh_interior"] = ra / float(law(t_i, 0.5)) if math.isfinite(t_i) else math.nan
+    out["rayleigh_mean_interior"] = ra / float(law(t_i, 0.5)) if math.isfinite(t_i) else math.nan
     return out
 
 

@@ -82,8 +82,9 @@ COLUMNS = {
                      "eta_ref kappa/d^2"),
     "rayleigh_top": ("f", "1", "Rayleigh number with the viscosity at the top wall"),
     "rayleigh_bottom": ("f", "1", "Rayleigh number with the viscosity at the bottom wall"),
-    "rayleigh_interior": ("f", "1", "Rayleigh number with the viscosity at the time-mean interior "
-                          "temperature (z = 1/2)"),
+    "rayleigh_mean_interior": ("f", "1", "Rayleigh number with the viscosity at the measured "
+                               "time-mean interior temperature T_i (z = 1/2); the run summary's "
+                               "rayleigh_interior is Ra at the mid wall temperature instead"),
     "steps": ("i", "1", "time steps taken"),
     "time": ("f", "1", "final time, units d^2/kappa"),
     "wall_seconds": ("f", "s", "wall time of the run loop"),

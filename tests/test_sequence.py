@@ -1,0 +1,80 @@
+"""Grid sequencing of a time-dependent run (convsim/run/sequence.py, issue 10).
+
+The coarse run is replaced by a stand-in that ends as told with a linear temperature field,
+so that only the sequencing decisions are under test (the coarse runs of a real stagnant
+lid take minutes: benchmarks/stagnant_lid_mean.py).  Reference: bilinear interpolation
+reproduces a linear function exactly between the coarse cell centres and holds the nearest
+centre's value beyond them (convsim.model.grid.interpolate_cells; analytic).
+"""
+
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from convsim.config import parse_config
+from convsim.model.grid import Grid
+from convsim.run import controller, sequence
+
+STATISTICAL = {"domain": {"nx": 32, "nz": 16, "aspect": 2.0},
+               "start": {"coarse_grid": 8},
+               "stop": {"mean_precision": 0.02, "max_steps": 1000}}
+
+
+def _linear(x, z):
+    return 0.3 + 0.1 * x + 0.5 * z
+
+
+@pytest.fixture
+def coarse_runs(monkeypatch):
+    """Replace the coarse run: it ends with (status, settled) set by the test."""
+    seen = {}
+
+    def from_config(cfg, *args, **kwargs):
+        seen["config"] = cfg
+        g = Grid(cfg.domain.nx, cfg.domain.nz, cfg.domain.aspect)
+        X, Z = g.cell_mesh()
+        result = SimpleNamespace(status=seen["end"][0], settled=seen["end"][1],
+                                 temperature=_linear(X, Z), nusselt_top=3.0, steps=10,
+                                 time=1.0)
+        return SimpleNamespace(run=lambda: result)
+
+    monkeypatch.setattr(controller.Simulation, "from_config", staticmethod(from_config))
+    return seen
+
+
+@pytest.mark.parametrize("end", [("mean-precision", "statistically-steady"),
+                                 ("steady", "steady")])
+def test_a_statistically_steady_coarse_run_starts_the_fine_grid(coarse_runs, end):
+    cfg = parse_config(STATISTICAL, source="test")
+    fine = Grid(32, 16, 2.0)
+    coarse_runs["end"] = end
+    T = sequence.coarse_temperature(cfg, fine)
+    used = coarse_runs["config"]
+    assert (used.domain.nx, used.domain.nz) == (16, 8)          # half the cells
+    assert used.stop.mean_precision == 0.02                     # the coarse run keeps the rule
+    assert used.stop.steady                                     # as the config says
+    coarse = Grid(16, 8, 2.0)
+    xc, zc = coarse.x_cell, coarse.z_cell
+    X, Z = fine.cell_mesh()
+    expected = _linear(np.clip(X, xc[0], xc[-1]), np.clip(Z, zc[0], zc[-1]))
+    np.testing.assert_allclose(T, expected, rtol=1e-12, atol=1e-12)
+
+
+def test_the_coarse_run_of_a_statistical_run_keeps_its_steady_key(coarse_runs):
+    coarse_runs["end"] = ("mean-precision", "statistically-steady")
+    data = {**STATISTICAL, "stop": {**STATISTICAL["stop"], "steady": False}}
+    sequence.coarse_temperature(parse_config(data, source="test"), Grid(32, 16, 2.0))
+    assert not coarse_runs["config"].stop.steady
+    # a run without time means still needs a steady coarse state (the rule is switched on)
+    data = {**STATISTICAL, "stop": {"steady": False, "max_steps": 1000}}
+    sequence.coarse_temperature(parse_config(data, source="test"), Grid(32, 16, 2.0))
+    assert coarse_runs["config"].stop.steady
+
+
+@pytest.mark.parametrize("end", [("step-limit", "unfinished"), ("interrupted", "unfinished"),
+                                 ("end-time", "unfinished")])
+def test_an_unfinished_coarse_run_leaves_the_config_start(coarse_runs, end):
+    coarse_runs["end"] = end
+    assert sequence.coarse_temperature(parse_config(STATISTICAL, source="test"),
+                                       Grid(32, 16, 2.0)) is None
