@@ -41,7 +41,8 @@ from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
 from convsim.pool import process_pool
-from convsim.studies.viscoplastic import CASES as VP_CASES, lid_convergence, lid_quantities
+from convsim.studies.viscoplastic import (CASES as VP_CASES, PERIODIC_CASES, lid_convergence,
+                                          lid_quantities, periodic_lid_quantities)
 from convsim.studies.published import (ACCEPTANCE, CASE_SETUP, DEFAULT_CASES, PUBLISHED,
                                        QUANTITIES, known_cases)
 
@@ -147,6 +148,7 @@ class BenchRow:
     stage_steps: list              # [(Ra, steps)] per continuation stage and the target
     relative_error: dict = field(default_factory=dict)
     lid: dict = field(default_factory=dict)    # studies/viscoplastic.lid_quantities (vp cases)
+    periodic: dict = field(default_factory=dict)   # PeriodicStatistics.to_dict (vp4)
 
     @property
     def steps_per_second(self) -> float:
@@ -204,7 +206,12 @@ def run_task(task: BenchTask) -> BenchRow:
                    phase_seconds={k: float(v) for k, v in result.phase_seconds.items()},
                    peak_rss_mib=peak, run_rss_mib=max(0.0, peak - before), upwelling=upwelling,
                    stage_steps=_stage_steps(result.series))
-    if task.case in VP_CASES:
+    if task.case in PERIODIC_CASES:      # time means over whole periods, no corner values
+        row.lid, row.periodic = periodic_lid_quantities(result)
+        row.nusselt_top, row.vrms = (row.periodic["means"].get(q, math.nan)
+                                     for q in ("nusselt_top", "vrms"))
+        row.nusselt_bottom = row.q1 = row.q2 = math.nan
+    elif task.case in VP_CASES:
         row.lid = lid_quantities(cfg, result)
     row.relative_error = {qn: math.nan for qn in QUANTITIES}     # nan: no published value
     row.relative_error.update({qn: (getattr(row, qn) - pv.value) / pv.value
@@ -225,7 +232,7 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
 def plan(cases, grids, overrides=(), warmup=True) -> list:
     """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy."""
     cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0, "2b": 10.0,   # rough relative cost,
-            "vp2": 10.0, "vp3": 10.0}                                  # our guess
+            "vp2": 10.0, "vp3": 10.0, "vp4": 300.0}                    # our guess
     tasks = [BenchTask(c, n, str(case_config_path(c)), tuple(overrides), warmup)
              for c in cases for n in grids]
     return sorted(tasks, key=lambda t: -(t.grid ** 3) * cost.get(t.case, 1.0))
@@ -320,6 +327,19 @@ def _sha256(path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
+def _settled_check(case: str, r: BenchRow) -> Check:
+    """A steady case: the run reached steady state.  A periodic case (``PERIODIC_CASES``): it
+    ran to its end time and its series holds at least three whole periods after the spin-up
+    (``studies.viscoplastic.periodic_statistics``)."""
+    if case not in PERIODIC_CASES:
+        return Check("all", "steady", float(r.grid), math.nan, r.status == "steady",
+                     f"grid {r.grid}: {r.status}: {r.message}")
+    periods = int(r.periodic.get("periods", 0)) if r.periodic else 0
+    return Check("all", "periodic", float(periods), 3.0,
+                 r.status == "end-time" and periods >= 3,
+                 f"grid {r.grid}: {r.status}, {periods} whole periods: {r.message}")
+
+
 def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummary:
     """Convergence study, comparison and checks of one case from its rows."""
     from convsim.config import load_config, to_dict
@@ -334,15 +354,16 @@ def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummar
                      + ", then ".join(_sci(r) for r in cont)
                      + f" on the same grid, then continues to Ra = {_sci(cfg.physics.rayleigh)}; "
                      "wall time and steps include those stages")
+    settled = [_settled_check(case, r) for r in rows]
+    checks += settled
     for r in rows:
-        checks.append(Check("all", "steady", float(r.grid), math.nan, r.status == "steady",
-                            f"grid {r.grid}: {r.status}: {r.message}"))
         if r.upwelling == "x=1":
             notes.append(f"grid {r.grid}: the upwelling is at x = 1, not x = 0 as in the "
                          "published solution; q1 and q2 change roles")
-    steady_rows = [r for r in rows if r.status == "steady"]
+    steady_rows = [r for r, c in zip(rows, settled) if c.passed]
     if len(steady_rows) < len(rows):
-        notes.append("runs that did not reach steady state are left out of the convergence study")
+        notes.append("runs that did not reach steady state (a periodic case: three whole "
+                     "periods) are left out of the convergence study")
     convergence = {}
     for q in QUANTITIES:
         if len(steady_rows) >= 3:
