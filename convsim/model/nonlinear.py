@@ -55,6 +55,7 @@ METHODS = NONLINEAR_METHODS
 NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton steps
 LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
 DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
+NEWTON_LINEAR = "direct"  # Newton steps: 'direct' (sparse LU of J) or 'gmres' (matrix-free)
 
 
 @dataclass
@@ -236,8 +237,13 @@ def _strain_maps(op: StokesOperator):
     return op._jacobian_maps
 
 
-def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report):
-    """One Newton step with a backtracking line search; returns the new x (or None)."""
+def _newton_direction(problem: _Residual, x, r, weights, parts, precondition, report):
+    """dx of J dx = -r: a sparse LU of the assembled Jacobian (``NEWTON_LINEAR = 'direct'``)
+    or GMRES on the matrix-free product preconditioned by the Picard factor ('gmres')."""
+    if NEWTON_LINEAR == "direct":
+        report.linear_iterations += 1
+        return sla.splu(problem.jacobian_matrix(x, weights, parts),
+                        permc_spec="COLAMD").solve(-r)
     n = x.size
     J = problem.jacobian(x, weights, parts)
     M = sla.LinearOperator((n, n), matvec=precondition)
@@ -248,6 +254,12 @@ def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report)
     dx, _info = sla.gmres(J, -r, rtol=1e-4, atol=0.0, restart=30, maxiter=3, M=M,
                           callback=counted, callback_type="pr_norm")
     report.linear_iterations += count[0]
+    return dx
+
+
+def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report):
+    """One Newton step with a backtracking line search; returns the new x (or None)."""
+    dx = _newton_direction(problem, x, r, weights, parts, precondition, report)
     norm = np.linalg.norm(r)
     step = 1.0
     for _ in range(LINE_SEARCH_STEPS):
@@ -303,7 +315,8 @@ def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
         report.iterations += 1
         if method == "newton" and report.residual < NEWTON_SWITCH:
             t0 = time.perf_counter()
-            linear.ensure_factor(weights)
+            if NEWTON_LINEAR != "direct":
+                linear.ensure_factor(weights)
             trial = _newton_step(problem, x, r, weights, parts, linear.precondition, report)
             if trial is not None:
                 report.newton_steps += 1

@@ -46,7 +46,7 @@ from convsim.studies.viscoplastic import (CASES as VP_CASES, PERIODIC_CASES, lid
 from convsim.studies.published import (ACCEPTANCE, CASE_SETUP, DEFAULT_CASES, PUBLISHED,
                                        QUANTITIES, known_cases)
 
-__all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
+__all__ = ["DEFAULT_GRIDS", "CASE_GRIDS", "case_grids", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
            "BenchResult", "case_config_path", "package_cases_dir",
            "parse_grids", "parse_cases", "plan", "run_task", "run_bench", "analyse_case",
            "provenance"]
@@ -54,6 +54,9 @@ __all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "
 log = logging.getLogger(__name__)
 
 DEFAULT_GRIDS = (32, 64, 128)
+#: a case's own grids when none are asked for: the periodic case 4 runs to t = 1 on each
+#: (about 2 x 10^4 steps on 32 x 32), so its study stops at 48 cells
+CASE_GRIDS = {"vp4": (24, 32, 48)}
 MEMORY_METHOD = ("resource.getrusage(RUSAGE_SELF).ru_maxrss of the worker process (one run per "
                  "spawned process): peak_rss_mib is the high-water resident set size after the "
                  "run, interpreter and libraries included; run_rss_mib is its growth over the "
@@ -229,12 +232,18 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
                     stage_steps=[], relative_error={q: nan for q in QUANTITIES})
 
 
+def case_grids(case: str) -> tuple:
+    """The grids of a case when none are asked for: ``CASE_GRIDS`` or ``DEFAULT_GRIDS``."""
+    return CASE_GRIDS.get(case, DEFAULT_GRIDS)
+
+
 def plan(cases, grids, overrides=(), warmup=True) -> list:
-    """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy."""
+    """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy
+    (``grids`` None: each case on its own ``case_grids``)."""
     cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0, "2b": 10.0,   # rough relative cost,
             "vp2": 10.0, "vp3": 10.0, "vp4": 300.0}                    # our guess
     tasks = [BenchTask(c, n, str(case_config_path(c)), tuple(overrides), warmup)
-             for c in cases for n in grids]
+             for c in cases for n in (case_grids(c) if grids is None else grids)]
     return sorted(tasks, key=lambda t: -(t.grid ** 3) * cost.get(t.case, 1.0))
 
 
@@ -460,14 +469,14 @@ class BenchResult:
                     provenance=self.provenance, cases=[c.as_dict() for c in self.cases])
 
 
-def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=(),
+def run_bench(cases=(), grids=None, jobs: int | None = None, overrides=(),
               progress=None, command: str = "", warmup: bool = True) -> BenchResult:
     """Run cases x grids on local cores and analyse them.
 
     Parameters
     ----------
     cases : case names (empty: all known).
-    grids : cell counts n (each run on n x n).
+    grids : cell counts n (each run on n x n); None: each case's ``case_grids``.
     jobs : worker processes (default ``os.cpu_count()``).
     overrides : ``section.key=value`` strings applied to every case config.
     progress : callable(BenchRow, done, total), optional, called as runs finish.
@@ -479,7 +488,7 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
     """
     import time
     cases = parse_cases(cases)
-    grids = parse_grids(grids)
+    grids = None if grids is None else parse_grids(grids)
     jobs = int(jobs or os.cpu_count() or 1)
     if jobs < 1:
         raise ConfigError(f"--jobs {jobs}: must be at least 1")
@@ -504,5 +513,5 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
     wall = time.perf_counter() - t0
     summaries = [analyse_case(c, [r for r in rows if r.case == c], case_config_path(c),
                               overrides) for c in cases]
-    return BenchResult(cases=summaries, grids=grids, jobs=jobs, overrides=tuple(overrides),
+    return BenchResult(cases=summaries, grids=tuple(sorted({t.grid for t in tasks})), jobs=jobs, overrides=tuple(overrides),
                        wall_seconds=wall, provenance=provenance(command))
