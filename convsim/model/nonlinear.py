@@ -55,7 +55,7 @@ METHODS = NONLINEAR_METHODS
 NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton steps
 LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
 DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
-NEWTON_LINEAR = "direct"  # Newton steps: 'direct' (sparse LU of J) or 'gmres' (matrix-free)
+NEWTON_LINEAR = "gmres"   # Newton steps in a time step: "gmres" (matrix-free) or "direct" (LU of J)
 
 
 @dataclass
@@ -243,7 +243,7 @@ def _newton_direction(problem: _Residual, x, r, weights, parts, precondition, re
     if NEWTON_LINEAR == "direct":
         report.linear_iterations += 1
         return sla.splu(problem.jacobian_matrix(x, weights, parts),
-                        permc_spec="COLAMD").solve(-r)
+                        permc_spec="MMD_AT_PLUS_A").solve(-r)
     n = x.size
     J = problem.jacobian(x, weights, parts)
     M = sla.LinearOperator((n, n), matvec=precondition)

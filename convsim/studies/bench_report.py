@@ -289,6 +289,9 @@ def _case_checks(c: dict) -> list:
         mark = "pass" if ch["passed"] else "FAIL"
         if ch["kind"] == "steady":
             L += [f"- {mark}: steady state, {ch['note']}"]
+        elif ch["kind"] == "periodic":
+            L += [f"- {mark}: periodic, at least {_g(ch['limit'], 2)} whole periods at the end "
+                  f"time, {ch['note']}"]
         elif ch["kind"] == "order":
             L += [f"- {mark}: observed order of {LABEL[ch['quantity']]} {_g(ch['value'], 4)} "
                   f"(at least {_g(ch['limit'], 3)}; {ch['note']})"]
