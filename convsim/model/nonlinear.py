@@ -26,10 +26,11 @@ Iterations, from a guess x_0 (the previous step's flow):
   lower the residual.  The 'newton' method takes Picard steps until the relative
   residual is below ``NEWTON_SWITCH`` and Newton steps after (Newton-Picard).
   ``NEWTON_LINEAR = "direct"`` solves each Newton step with a sparse LU of the assembled
-  Jacobian instead (``_Residual.jacobian_matrix``, as the steady solver does); measured on
-  Tosi et al. (2015) case 4 from the one-cell start (same nonlinear iterations, 2.5-2.9 per
-  step, same states): 22.7 -> 29.1 ms per step at 32 x 32 and 46.1 -> 103 ms at 64 x 64, so
-  GMRES stays the default (assembling J costs about 14 matrix-free products, its factor more).
+  Jacobian instead (``_Residual.jacobian_matrix``, as the steady solver does).  Measured on
+  Tosi et al. (2015) case 4 (same nonlinear iterations and states in both; ms per step,
+  GMRES -> direct): from the one-cell start 22.7 -> 29.1 (32 x 32), 46.1 -> 103 (64 x 64);
+  in the developed lid-breaking cycle 32.4 -> 30.2 (32) and 102 -> 109 (64).  A hybrid
+  (20 GMRES iterations, then the LU) was slower than both.  So GMRES stays the default.
 
 Convergence: ||R(x)|| <= rtol ||b||; rtol should stay above the linear solver's own
 tolerance (1e-10 for the lagged-factor CG), where Picard steps stop moving x.  Deterministic throughout, so a restarted run
@@ -60,7 +61,7 @@ METHODS = NONLINEAR_METHODS
 NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton steps
 LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
 DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
-NEWTON_LINEAR = "gmres"   # Newton steps in a time step: "gmres" (matrix-free) or "direct" (LU of J)
+NEWTON_LINEAR = "gmres"   # Newton steps in a time step: "gmres" or "direct" (module doc)
 
 
 @dataclass
@@ -243,12 +244,10 @@ def _strain_maps(op: StokesOperator):
 
 
 def _newton_direction(problem: _Residual, x, r, weights, parts, precondition, report):
-    """dx of J dx = -r: a sparse LU of the assembled Jacobian (``NEWTON_LINEAR = 'direct'``)
-    or GMRES on the matrix-free product preconditioned by the Picard factor ('gmres')."""
+    """dx of J dx = -r (``NEWTON_LINEAR``): GMRES on the matrix-free product preconditioned by
+    the Picard factor ('gmres'), or a sparse LU of the assembled Jacobian ('direct')."""
     if NEWTON_LINEAR == "direct":
-        report.linear_iterations += 1
-        return sla.splu(problem.jacobian_matrix(x, weights, parts),
-                        permc_spec="MMD_AT_PLUS_A").solve(-r)
+        return _direct_direction(problem, x, r, weights, parts, report)
     n = x.size
     J = problem.jacobian(x, weights, parts)
     M = sla.LinearOperator((n, n), matvec=precondition)
@@ -260,6 +259,13 @@ def _newton_direction(problem: _Residual, x, r, weights, parts, precondition, re
                           callback=counted, callback_type="pr_norm")
     report.linear_iterations += count[0]
     return dx
+
+
+def _direct_direction(problem: _Residual, x, r, weights, parts, report):
+    """dx of J dx = -r by a sparse LU of the assembled Jacobian (one 'linear iteration')."""
+    report.linear_iterations += 1
+    return sla.splu(problem.jacobian_matrix(x, weights, parts),
+                    permc_spec="MMD_AT_PLUS_A").solve(-r)
 
 
 def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report):
@@ -320,7 +326,7 @@ def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
         report.iterations += 1
         if method == "newton" and report.residual < NEWTON_SWITCH:
             t0 = time.perf_counter()
-            if NEWTON_LINEAR != "direct":
+            if NEWTON_LINEAR != "direct":      # the GMRES preconditioner
                 linear.ensure_factor(weights)
             trial = _newton_step(problem, x, r, weights, parts, linear.precondition, report)
             if trial is not None:
