@@ -39,7 +39,6 @@ log = logging.getLogger(__name__)
 ACCEPT_GROWTH = 10.0     # a pseudo-time step may raise ||F|| at most this much
 MIN_GROWTH = 1.5         # delta grows at least this much after a step that lowered ||F||
 FIRST_DELTA_STEPS = 50   # the first delta, in Courant time steps
-PATIENCE_DROP = 0.1      # newton_steady's patience: max|F| must have fallen tenfold by then
 
 
 @dataclass
@@ -64,8 +63,7 @@ def steady_residual(model, T: np.ndarray, psi_guess=None):
 
 def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
                   max_iterations: int = 60, delta0: float | None = None,
-                  gmres_restart: int = 40, patience: int = 0
-                  ) -> tuple[np.ndarray, np.ndarray, NewtonReport]:
+                  gmres_restart: int = 40) -> tuple[np.ndarray, np.ndarray, NewtonReport]:
     """Pseudo-transient Newton-Krylov solve of F(T) = 0 from T0.
 
     Each iteration solves (I / delta - J) d = F(T) and sets T <- T + d: an implicit
@@ -85,10 +83,6 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
         Pseudo-time steps at most.
     delta0 : float, optional
         First pseudo-time step (default: FIRST_DELTA_STEPS Courant steps of the starting flow).
-    patience : int
-        Give up (not converged) when max |F| after this many iterations is still above
-        PATIENCE_DROP times its starting value: the start was outside the basin of the
-        steady state and the rest of max_iterations would be spent wandering (0: never).
 
     Returns
     -------
@@ -99,15 +93,10 @@ def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
     F, psi = steady_residual(model, T, psi)
     fmax = float(np.abs(F).max())
     delta = delta0 if delta0 is not None else FIRST_DELTA_STEPS * model.courant_dt(psi)
-    start = fmax
     for it in range(1, max_iterations + 1):
         if fmax <= tolerance:
             return T, psi, NewtonReport(True, it - 1, newton.evaluations, fmax, newton.history)
         if not np.isfinite(fmax):
-            break
-        if patience and it == patience + 1 and fmax > PATIENCE_DROP * start:
-            log.info("newton: max|F| %.3e after %d iterations (start %.3e); giving up",
-                     fmax, patience, start)
             break
         step = newton.step(T, delta, psi)
         if step is None:

@@ -28,7 +28,6 @@ __all__ = ["NewtonFinish", "FIRST_WAIT"]
 log = logging.getLogger(__name__)
 
 FIRST_WAIT = 50      # steps before the first attempt; doubled after a failure
-PATIENCE = 0         # give an attempt up early when it makes no progress (steady.newton_steady)
 
 
 class NewtonFinish:
@@ -78,7 +77,7 @@ class NewtonFinish:
             return None
         scale = max(abs(report.nusselt_top), 1.0)
         T, psi, nrep = newton_steady(model, state.temperature, state.psi,
-                                     0.1 * self.tolerance * scale, patience=PATIENCE)
+                                     0.1 * self.tolerance * scale)
         self.reports.append((state.step, nrep))
         if not nrep.converged:
             self.wait *= 2
