@@ -18,6 +18,8 @@ then solved by each policy, one after the other, timed on the same sequence:
 - ``floor-6``:   as lagged-6, but CG stops at max(1e-10, 2 x the relative residual that the
   fresh direct solve reached): at high contrast the factor itself loses digits, and a CG
   target below that floor only burns iterations;
+- ``extr-RTOL``: as lagged-6 (to RTOL), CG started from the linear extrapolation in time
+  2 x_k - x_(k-1) of the last two solutions instead of the last one;
 - ``amg``:       CG preconditioned by a smoothed-aggregation algebraic multigrid (pyamg),
   hierarchy rebuilt every step (``amg-reuse``: rebuilt only when CG needs > 30 iterations).
 
@@ -80,18 +82,22 @@ def pcg(A, b, precondition, x0, max_iterations, rtol=RTOL):
     return _pcg(A, b, precondition, x0, rtol, max_iterations)
 
 
-def factor_policy(mats, rhss, limit, amortised=False, floor=False, rtol=RTOL):
+def factor_policy(mats, rhss, limit, amortised=False, floor=False, rtol=RTOL, extrapolate=False):
     """Lagged factor + CG; refactor by an iteration limit or by the amortised cost rule.
-    With ``floor``, CG stops at max(RTOL, 2 x the residual the fresh direct solve reached)."""
+    With ``floor``, CG stops at max(RTOL, 2 x the residual the fresh direct solve reached).
+    With ``extrapolate``, CG starts from 2 x_k - x_(k-1) (linear in time, equal steps)."""
     f = make_factorizer("cholmod")
     setup = iters = 0.0
     spent, x, factored = 0.0, None, False
+    previous = None
     refactor_units = None
     target = rtol
     for A, b in zip(mats, rhss):
         ok = False
         if factored:
-            x, k, ok = pcg(A, b, f.solve, x, limit, target)
+            guess = x if not (extrapolate and previous is not None) else 2.0 * x - previous
+            previous = x
+            x, k, ok = pcg(A, b, f.solve, guess, limit, target)
             iters += k
             spent += k
         if not ok:
@@ -203,6 +209,9 @@ def main():
                 ("floor-6", factor_policy(mats, rhss, 6, floor=True))]
         runs += [(f"lag-{float(r):.0e}", factor_policy(mats, rhss, 6, rtol=float(r)))
                  for r in filter(None, args.rtols.split(","))]
+        runs += [(f"extr-{float(r):.0e}", factor_policy(mats, rhss, 6, rtol=float(r),
+                                                         extrapolate=True))
+                 for r in ["1e-10"] + list(filter(None, args.rtols.split(",")))]
         if not args.skip_amg and _have_pyamg():
             runs += [("amg", amg_policy(mats, rhss, False)), ("amg-reuse", amg_policy(mats, rhss, True))]
         for name, gen in runs:

@@ -16,6 +16,7 @@ FFTs already use one worker unless asked.  The user may ask for more threads wit
 from __future__ import annotations
 
 import os
+import sys
 
 __all__ = ["limit_threads", "requested_threads", "reapply_limit"]
 
@@ -55,11 +56,12 @@ def limit_threads(threads: int | None = None):
     n = _current = requested_threads(threads)
     for var in _POOL_VARIABLES:
         os.environ.setdefault(var, str(n))
-    try:
-        import numba
-        numba.set_num_threads(min(n, numba.config.NUMBA_NUM_THREADS))
-    except (ImportError, ValueError):  # pragma: no cover - numba is a dependency
-        pass
+    numba = sys.modules.get("numba")    # not imported for it: ``reapply_limit`` once loaded
+    if numba is not None:
+        try:
+            numba.set_num_threads(min(n, numba.config.NUMBA_NUM_THREADS))
+        except ValueError:  # pragma: no cover
+            pass
     try:
         from threadpoolctl import threadpool_limits
     except ImportError:  # pragma: no cover

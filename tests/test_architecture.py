@@ -2,7 +2,8 @@
 
 One rule per folder of the package:
 
-- ``errors``, ``model/kernels`` and ``model/choices`` import nothing of convsim; ``config`` only
+- ``errors``, ``model/array_kernels`` and ``model/choices`` import nothing of convsim
+  (``model/kernels`` only the limiter codes of ``model/array_kernels``); ``config`` only
   ``errors``, the choice names of ``model/choices`` and the plain-data law declarations
   ``model/laws`` (which import nothing else of convsim);
 - ``model/`` takes numbers, arrays and declarations: never ``config``, ``run``, ``files``,
@@ -65,7 +66,8 @@ def _modules(path: Path) -> set:
 
 def test_foundations_import_nothing_of_convsim():
     assert _imports(PACKAGE / "errors.py")[0] == set()
-    assert _imports(PACKAGE / "model" / "kernels.py")[0] == set()
+    assert _imports(PACKAGE / "model" / "array_kernels.py")[0] == set()
+    assert _modules(PACKAGE / "model" / "kernels.py") == {"convsim.model.array_kernels"}
     assert _imports(PACKAGE / "model" / "choices.py")[0] == set()
     assert _modules(PACKAGE / "config.py") <= {"convsim.errors", "convsim.model.choices",
                                                "convsim.model.laws"}

@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from convsim.model import kernels
-from convsim.model.energy import (DiffusionSolver, ThermalBoundaries, advection, diffusion_matrix,
-                            pad_temperature, upwind_matrix)
+from convsim.model import array_kernels, kernels
+from convsim.model.energy import (AdvectionKernels, DiffusionSolver, ThermalBoundaries, advection,
+                                  diffusion_matrix, pad_temperature, upwind_matrix)
 from convsim.model.grid import Grid
 from convsim.model.rheology import ViscosityLaw
 from convsim.model.stokes import face_velocities
@@ -39,7 +39,37 @@ def test_advection_kernel_matches_naive_twin(limiter, periodic):
                            periodic)           # the twin pads by itself, from the wall conditions
         slow = naive.advective_tendency(padded, u, w, g.dx, g.dz, limiter)
         np.testing.assert_allclose(fast, slow, rtol=1e-12, atol=1e-12)
+        whole_array = advection(g, T, u, w, bc, limiter, array_kernels.advective_tendency)
+        np.testing.assert_allclose(whole_array, slow, rtol=1e-12, atol=1e-12)
         np.testing.assert_allclose(pad_temperature(g, T, bc), padded, rtol=1e-13, atol=1e-13)
+
+
+@pytest.mark.parametrize("limiter", list(kernels.LIMITER_CODES))
+def test_whole_array_and_compiled_kernels_give_the_same_bits(limiter):
+    """The run switches from one to the other mid-run, so they must agree exactly, not to a
+    tolerance: same arithmetic in the same order (including faces where down = up)."""
+    rng = np.random.default_rng(7)
+    padded = rng.uniform(size=(21, 17))
+    padded[6] = padded[7]                       # flat rows: r undefined
+    padded[:, 9] = padded[:, 10]
+    u, w = rng.standard_normal((17, 14)), rng.standard_normal((18, 13))
+    code = kernels.LIMITER_CODES[limiter]
+    compiled = kernels.advective_tendency(padded, u, w, 0.07, 0.05, code, np.empty((17, 13)))
+    whole = array_kernels.advective_tendency(padded, u, w, 0.07, 0.05, code, np.empty((17, 13)))
+    assert np.array_equal(compiled, whole)
+
+
+def test_a_run_calls_the_array_kernel_first_then_the_compiled_one():
+    """Rent or buy: array calls until their extra cost would have paid the compiler's start-up."""
+    small, medium = AdvectionKernels(8 * 8), AdvectionKernels(64 * 64)
+    expected_small = int(AdvectionKernels.START_UP_SECONDS
+                         / (AdvectionKernels.EXTRA_SECONDS_PER_CELL * 64))
+    assert small.array_calls_left == expected_small > 100_000
+    assert 0 < medium.array_calls_left < 10_000
+    picks = [medium.pick() for _ in range(medium.array_calls_left + 2)]
+    assert picks[0] is array_kernels.advective_tendency
+    assert picks[-1] is kernels.advective_tendency and picks[-2] is kernels.advective_tendency
+    assert AdvectionKernels(65 * 64).pick() is kernels.advective_tendency   # large: compiled
 
 
 def test_upwind_matrix_equals_first_order_kernel():

@@ -4,6 +4,9 @@ from convsim.pool import process_pool
 
 
 def _blas_threads():
+    """BLAS threads of the worker once numpy is loaded, as in a run (the limit is set before
+    numpy's BLAS is loaded in a fresh worker, so it must reach libraries loaded later)."""
+    import numpy  # noqa: F401
     from threadpoolctl import threadpool_info
     return [lib["num_threads"] for lib in threadpool_info() if lib["user_api"] == "blas"]
 

@@ -4,7 +4,8 @@
 
 (nondimensional: time in d^2/kappa, temperature in units of the contrast).
 Advection is explicit, with face fluxes from a limited upwind-biased (TVD)
-reconstruction or first-order upwind (``convsim.model.kernels``); diffusion is
+reconstruction or first-order upwind (``convsim.model.kernels``, compiled, and its
+bit-identical whole-array twin ``convsim.model.array_kernels``); diffusion is
 implicit, with the five-point Laplacian and ghost cells for the boundary
 conditions; H is a uniform internal heat source.
 
@@ -25,15 +26,15 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft as sfft
 
-from convsim.model import kernels
+from convsim.model import array_kernels
 from convsim.model.choices import THERMAL_CONDITIONS
 from convsim.model.grid import Grid
 
 __all__ = ["ThermalBoundaries", "conductive_coefficients", "conductive_profile",
            "pad_temperature", "advection", "DiffusionSolver",
-           "boundary_heat_flux", "THERMAL_CONDITIONS", "LIMITERS"]
+           "boundary_heat_flux", "AdvectionKernels", "THERMAL_CONDITIONS", "LIMITERS"]
 
-LIMITERS = tuple(kernels.LIMITER_CODES)
+LIMITERS = tuple(array_kernels.LIMITER_CODES)
 
 
 @dataclass(frozen=True)
@@ -112,8 +113,49 @@ def pad_temperature(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> np.ndar
     return p
 
 
+def compiled_advection_kernel():
+    """The compiled TVD loop (imports numba on first use, then the thread limit is applied)."""
+    from convsim.model import kernels
+    from convsim.threads import reapply_limit
+    reapply_limit()
+    return kernels.advective_tendency
+
+
+class AdvectionKernels:
+    """Which implementation of the TVD loop a run calls: whole-array first, compiled later.
+
+    The two give the same bits.  Importing numba and loading the compiled cache costs
+    about ``START_UP_SECONDS`` once; the array version costs about
+    ``EXTRA_SECONDS_PER_CELL`` more per cell and call (measured on a 2-core machine,
+    8 x 8 to 256 x 256: 30 to 60 ns).  So a run calls the array version until that extra
+    has added up to the start-up cost, then switches (the rent-or-buy rule: never more
+    than twice the cost of the better choice made in hindsight).  Grids of more than
+    ``ARRAY_MAX_CELLS`` cells start compiled: they are run for thousands of steps, where the
+    start-up is small, and the array version's extra cost per cell grows there (cache).
+    Short and small runs never load the compiler; long ones switch within a second.
+    """
+
+    START_UP_SECONDS = 0.7
+    EXTRA_SECONDS_PER_CELL = 4e-8
+    ARRAY_MAX_CELLS = 64 * 64
+
+    def __init__(self, cells: int):
+        self.array_calls_left = (0 if cells > self.ARRAY_MAX_CELLS else
+                                 int(self.START_UP_SECONDS / (self.EXTRA_SECONDS_PER_CELL * cells)))
+        self._compiled = None
+
+    def pick(self):
+        """The kernel for this call: (padded, u, w, dx, dz, code, out) -> out."""
+        if self.array_calls_left > 0:
+            self.array_calls_left -= 1
+            return array_kernels.advective_tendency
+        if self._compiled is None:
+            self._compiled = compiled_advection_kernel()
+        return self._compiled
+
+
 def advection(grid: Grid, T: np.ndarray, u: np.ndarray, w: np.ndarray, bc: ThermalBoundaries,
-              limiter: str = "van-leer") -> np.ndarray:
+              limiter: str = "van-leer", kernel=None) -> np.ndarray:
     """Advective tendency -div(u T) per cell, shape (nz, nx).
 
     Parameters
@@ -121,10 +163,12 @@ def advection(grid: Grid, T: np.ndarray, u: np.ndarray, w: np.ndarray, bc: Therm
     T : (nz, nx) cell temperatures.
     u, w : face velocities, (nz, nx + 1) and (nz + 1, nx) (see ``stokes.face_velocities``).
     limiter : one of LIMITERS; 'upwind' gives the first-order scheme.
+    kernel : the loop to call (``AdvectionKernels.pick()``); default the compiled one.
     """
     out = np.empty(grid.cell_shape)
-    return kernels.advective_tendency(pad_temperature(grid, T, bc), u, w, grid.dx, grid.dz,
-                                      kernels.LIMITER_CODES[limiter], out)
+    kernel = compiled_advection_kernel() if kernel is None else kernel
+    return kernel(pad_temperature(grid, T, bc), u, w, grid.dx, grid.dz,
+                  array_kernels.LIMITER_CODES[limiter], out)
 
 
 def boundary_heat_flux(grid: Grid, T: np.ndarray, bc: ThermalBoundaries) -> tuple[np.ndarray, np.ndarray]:

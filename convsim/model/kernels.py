@@ -1,14 +1,14 @@
-"""Compiled per-cell loops (numba).  Imports numpy and numba only, nothing of convsim.
+"""Compiled per-cell loops (numba).  Imports numpy, numba and the limiter codes only.
 
 The kernels trust their inputs: shapes and codes are checked by the callers in
-``convsim.model.energy``.  Each kernel has a slow, plain-numpy twin in tests/naive.py.
+``convsim.model.energy``.  Each kernel has a whole-array twin in
+``convsim.model.array_kernels`` (the same bits) and a slow, plain-Python twin in tests/naive.py.
 """
 
 import numpy as np
 from numba import njit
 
-LIMITER_CODES = {"upwind": 0, "minmod": 1, "van-leer": 2, "superbee": 3, "mc": 4, "koren": 5,
-                 "unlimited": 6}
+from convsim.model.array_kernels import LIMITER_CODES  # noqa: F401 - one table for both
 
 
 @njit(cache=True, inline="always")

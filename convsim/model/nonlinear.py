@@ -297,6 +297,9 @@ def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
                     max_iterations: int = 100) -> tuple[np.ndarray, NonlinearReport]:
     """Solve equation (1) from x0 by Picard or Newton-Picard iteration.
 
+    The first iteration is always one Picard step, the linear solve from x0 that a law
+    without yielding would make: a yield stress nothing reaches then gives the same bits.
+
     Parameters
     ----------
     op : StokesOperator
@@ -329,13 +332,13 @@ def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
     for _ in range(max_iterations + 1):
         r, weights, parts = problem.at(x)
         report.residual = float(np.linalg.norm(r)) / bnorm if bnorm > 0.0 else 0.0
-        if report.residual <= rtol or bnorm == 0.0:
+        if bnorm == 0.0 or (report.residual <= rtol and report.iterations > 0):
             return x, report
         if report.iterations == max_iterations:
             break
         report.history.append(report.residual)
         report.iterations += 1
-        if method == "newton" and report.residual < NEWTON_SWITCH:
+        if method == "newton" and report.residual < NEWTON_SWITCH and report.iterations > 1:
             t0 = time.perf_counter()
             if NEWTON_LINEAR != "direct":      # the GMRES preconditioner
                 linear.ensure_factor(weights)

@@ -66,6 +66,9 @@ class StokesProblem:
         over the solver's factor.  None: the viscosity depends on T alone.
     nonlinear : tuple
         (method, rtol, max_iterations) of ``convsim.model.nonlinear.solve_nonlinear``.
+    tolerance : float
+        Relative residual ||b - A x|| / ||b|| a factor-based solve must reach (the CG target of
+        the lagged factor, the refinement target of a fresh one).
     """
 
     operator: StokesOperator
@@ -73,6 +76,7 @@ class StokesProblem:
     uniform: bool = False
     strain_viscosity: Callable | None = None
     nonlinear: tuple = ("newton", 1e-8, 50)
+    tolerance: float = 1e-10
 
     def weights(self, T: np.ndarray) -> np.ndarray:
         """The viscosity weights of A(eta(T)) (``StokesOperator.viscosity_weights``)."""
@@ -175,7 +179,8 @@ class FactoredStokes(StokesSolver):
 
     def __init__(self, problem: StokesProblem, **options):
         super().__init__(problem)
-        self._lagged = LaggedFactorSolver(make_factorizer(self._backend_name()), "always")
+        self._lagged = LaggedFactorSolver(make_factorizer(self._backend_name()), "always",
+                                          rtol=problem.tolerance)
 
     def _backend_name(self) -> str:
         return self.backend
@@ -221,7 +226,8 @@ class LaggedCGStokes(FactoredStokes):
     def __init__(self, problem: StokesProblem, backend: str | None = None, **options):
         StokesSolver.__init__(self, problem)
         self.backend = backend or available_factorizers()[0]
-        self._lagged = LaggedFactorSolver(make_factorizer(self.backend), "adaptive")
+        self._lagged = LaggedFactorSolver(make_factorizer(self.backend), "adaptive",
+                                          rtol=problem.tolerance)
 
 
 #: Every Stokes solver by name, in the order 'auto' prefers them.

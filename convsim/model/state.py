@@ -5,8 +5,8 @@ Plain data (arrays and numbers), so that a run continues bit for bit from it:
 restart group and ``from_record`` reads it back.  Record keys, for every
 advected field f (see ``convsim.model.fields``): ``f`` (f^n), ``previous_f``
 (f^{n-1}), ``previous_explicit_f`` (N_f^{n-1}); then ``psi``, ``time``,
-``step``, ``previous_dt`` and the Stokes solver's cache as ``solver_*`` (opaque
-here: only the solver reads it).
+``step``, ``previous_dt``, ``previous_psi`` (psi^{n-1}) and the Stokes solver's cache
+as ``solver_*`` (opaque here: only the solver reads it).
 """
 
 from __future__ import annotations
@@ -39,6 +39,8 @@ class ModelState:
         t_n - t_{n-1} (0: none).
     solver : dict
         The Stokes solver's cache (``StokesSolver.state()``).
+    previous_psi : ndarray or None
+        Streamfunction at t_{n-1} (the start of the next flow solve is extrapolated from it).
     """
 
     time: float
@@ -49,6 +51,7 @@ class ModelState:
     previous_explicit: dict | None = None
     previous_dt: float = 0.0
     solver: dict = field(default_factory=dict)
+    previous_psi: np.ndarray | None = None
 
     @property
     def temperature(self) -> np.ndarray:
@@ -64,7 +67,8 @@ def to_record(state: ModelState) -> dict:
         out[f"previous_{name}"] = None if state.previous is None else state.previous[name]
         out[f"previous_explicit_{name}"] = (None if state.previous_explicit is None
                                             else state.previous_explicit[name])
-    out.update(psi=state.psi, time=state.time, step=state.step, previous_dt=state.previous_dt)
+    out.update(psi=state.psi, time=state.time, step=state.step, previous_dt=state.previous_dt,
+               previous_psi=state.previous_psi)
     out.update({f"solver_{k}": v for k, v in state.solver.items()})
     return out
 
@@ -99,4 +103,5 @@ def from_record(record: dict, names) -> ModelState:
         psi=np.array(record["psi"]),
         previous={n: np.array(v) for n, v in previous.items()} if history else None,
         previous_explicit={n: np.array(v) for n, v in explicit.items()} if history else None,
-        previous_dt=float(record["previous_dt"]), solver=solver)
+        previous_dt=float(record["previous_dt"]), solver=solver,
+        previous_psi=None if record.get("previous_psi") is None else np.array(record["previous_psi"]))

@@ -40,7 +40,7 @@ from typing import NamedTuple
 import numpy as np
 
 from convsim.model import diagnostics as diag
-from convsim.model.energy import DiffusionSolver, ThermalBoundaries, advection
+from convsim.model.energy import AdvectionKernels, DiffusionSolver, ThermalBoundaries, advection
 from convsim.model.fields import FieldDeclaration, temperature_field
 from convsim.model.grid import Grid
 from convsim.model.linsolve import SolveReport
@@ -99,6 +99,14 @@ def imex_coefficients(scheme: str, dt: float, previous_dt: float, has_history: b
     return Imex(1.0, 1.0, 0.0, 1.0, 0.0, False)
 
 
+def flow_guess(state: ModelState, dt: float) -> np.ndarray:
+    """Start of the next flow solve: psi^n + dt (psi^n - psi^(n-1)) / dt_(n-1), linear in time
+    (psi^n alone when the state has no flow history)."""
+    if state.previous_psi is None or state.previous_dt <= 0.0:
+        return state.psi
+    return state.psi + (dt / state.previous_dt) * (state.psi - state.previous_psi)
+
+
 class Model:
     """Grid, operators and solvers of one convection problem, built from plain numbers.
 
@@ -124,6 +132,10 @@ class Model:
         when the law reads the strain rate.
     fields : sequence of FieldDeclaration
         Advected fields besides the temperature (a dye), each with its ``start``.
+    stokes_tolerance : float
+        Relative residual of every factor-based flow solve (``StokesProblem.tolerance``).
+        A step's solve starts from psi extrapolated linearly in time from the last two
+        steps, so a looser target costs fewer CG iterations.
     """
 
     def __init__(self, grid: Grid, rayleigh: float, thermal: ThermalBoundaries,
@@ -132,10 +144,12 @@ class Model:
                  advection_limiter: str = "van-leer", time_scheme: str = "sbdf2",
                  cfl: float = 0.4, max_dt: float = 1e-2, stokes_solver: str = "auto",
                  factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04,
-                 nonlinear: tuple = ("newton", 1e-8, 50), fields=()):
+                 nonlinear: tuple = ("newton", 1e-8, 50), fields=(),
+                 stokes_tolerance: float = 1e-10):
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
+        self._kernels = AdvectionKernels(grid.nx * grid.nz)
         self.cfl, self.max_dt = float(cfl), float(max_dt)
         self.step_size = StepSizeRule(self.cfl, self.max_dt, float(time_scale_fraction),
                                       GROWTH_LIMIT)
@@ -154,7 +168,7 @@ class Model:
         problem = StokesProblem(
             self.stokes, self.viscosities, uniform=law.is_constant,
             strain_viscosity=self.viscosity_of_strain if law.needs_strain_rate else None,
-            nonlinear=self.nonlinear)
+            nonlinear=self.nonlinear, tolerance=float(stokes_tolerance))
         self.flow_solver = make_stokes_solver(stokes_solver, problem, factor_reuse)
         self.stokes_solver = self.flow_solver.name
 
@@ -256,7 +270,8 @@ class Model:
 
     def _explicit_term_of(self, f: FieldDeclaration, values, u, w) -> np.ndarray:
         """N_f = -div(u f) + S_f for one declared field, shape (nz, nx)."""
-        return advection(self.grid, values, u, w, f.boundaries, self.limiter) + f.source
+        return advection(self.grid, values, u, w, f.boundaries, self.limiter,
+                         self._kernels.pick()) + f.source
 
     def courant_dt(self, psi: np.ndarray) -> float:
         """dt = cfl / (max|u|/dx + max|w|/dz), capped by max_dt."""
@@ -287,7 +302,7 @@ class Model:
             return None
         t0 = time.perf_counter()
         try:
-            psi, solve = self.solve_flow(new["temperature"], state.psi, new)
+            psi, solve = self.solve_flow(new["temperature"], flow_guess(state, dt), new)
         except ArithmeticError:         # the viscosity of a runaway field broke the factor
             return None
         timings["stokes"] = time.perf_counter() - t0
@@ -325,7 +340,7 @@ class Model:
                      * self.grid.dx * self.grid.dz / dt)
         new = ModelState(time=state.time + dt, step=state.step + 1, fields=fields, psi=psi_new,
                          previous=state.fields, previous_explicit=N, previous_dt=dt,
-                         solver=self.flow_solver.state())
+                         solver=self.flow_solver.state(), previous_psi=state.psi)
         report = self.report(new, dt, heat_rate, rejections, solve)
         timings["diagnose"] = time.perf_counter() - t0
         report.seconds = timings

@@ -37,6 +37,19 @@ def build_law(config: Config) -> ViscosityLaw:
     return ViscosityLaw.from_table(config.viscosity)
 
 
+#: The automatic flow-solve tolerance (numerics.stokes_tolerance = 0): tight where the steady
+#: test reads max|dT/dt| to 1e-6 of Nu, looser for a run that follows the flow in time.
+STEADY_RUN_STOKES_TOLERANCE = 1e-10
+TIME_DEPENDENT_STOKES_TOLERANCE = 1e-6
+
+
+def stokes_tolerance(config: Config) -> float:
+    """numerics.stokes_tolerance, or the automatic choice when it is 0."""
+    if config.numerics.stokes_tolerance > 0.0:
+        return config.numerics.stokes_tolerance
+    return STEADY_RUN_STOKES_TOLERANCE if config.stop.steady else TIME_DEPENDENT_STOKES_TOLERANCE
+
+
 def build_model(config: Config, grid: Grid | None = None) -> Model:
     """The ``Model`` a config describes (``grid`` overrides [domain], for convergence studies)."""
     b, n = config.boundaries, config.numerics
@@ -48,7 +61,7 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
                  limiter, n.time_scheme, n.cfl, n.max_dt, n.stokes_solver, n.factor_reuse,
                  n.time_scale_fraction,
                  (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations),
-                 fields=build_tracers(config, grid))
+                 fields=build_tracers(config, grid), stokes_tolerance=stokes_tolerance(config))
 
 
 def build_tracers(config: Config, grid: Grid) -> tuple:
