@@ -130,36 +130,3 @@ def test_direct_newton_steps_reach_the_same_solution_at_the_same_rate(monkeypatc
     rates = _rates(direct.history)[-direct.newton_steps + 1:]
     assert rates[-1] < 0.1 * _rates(direct.history)[0], direct.history
 
-
-def test_a_stale_preconditioner_is_renewed_by_a_slow_newton_step():
-    """Newton steps alone (the start is within NEWTON_SWITCH of the manufactured solution) on
-    a factor made for scrambled viscosity weights: the first GMRES solve needs more than STALE_FACTOR
-    iterations, so the factor is renewed at the iterate's weights, and the solve ends at the
-    same solution as with a fresh factor (method of manufactured solutions; the renewal rule
-    by construction).  With the right factor from the start nothing is renewed."""
-    from convsim.model import nonlinear
-    _, _, law_f, rhs_f = _manufactured("free-slip")
-    g = Grid(24, 24)
-    op, x_star, _ = _solve(g, "free-slip", law_f, rhs_f, "newton", rtol=1e-11)
-    XN, ZN = g.node_mesh()
-    XC, ZC = g.cell_mesh()
-
-    def viscosity(e_node, e_cell):
-        return law_f(XN, ZN, e_node), law_f(XC, ZC, e_cell)
-    b = op.from_nodes(rhs_f(XN, ZN))
-    x0 = x_star * (1.0 + 1e-6 * np.cos(np.arange(x_star.size)))
-    weights0 = nonlinear._Residual(op, viscosity, b).at(x0)[1]
-    runs = {}
-    stale_weights = weights0 * np.exp(3.0 * np.sin(7.0 * np.arange(weights0.size)))
-    for name, w in (("stale", stale_weights), ("fresh", weights0)):
-        linear = LaggedLinear(op, LaggedFactorSolver(make_factorizer("superlu"), "adaptive"))
-        linear.refresh(w)
-        x, report = solve_nonlinear(op, viscosity, b, x0.copy(), linear, "newton", 1e-9, 20)
-        runs[name] = (x, report, linear.lagged.factored_weights)
-    x, stale, kept = runs["stale"]
-    assert stale.converged and stale.newton_steps == stale.iterations     # Newton steps only
-    assert stale.refactored and not np.array_equal(kept, stale_weights)
-    assert stale.linear_iterations > nonlinear.STALE_FACTOR
-    x_fresh, fresh, kept_fresh = runs["fresh"]
-    assert fresh.converged and not fresh.refactored and np.array_equal(kept_fresh, weights0)
-    assert np.linalg.norm(x - x_fresh) <= 1e-7 * np.linalg.norm(x_fresh)

@@ -31,12 +31,11 @@ Iterations, from a guess x_0 (the previous step's flow):
   GMRES -> direct): from the one-cell start 22.7 -> 29.1 (32 x 32), 46.1 -> 103 (64 x 64);
   in the developed lid-breaking cycle 32.4 -> 30.2 (32) and 102 -> 109 (64).  A hybrid
   (20 GMRES iterations, then the LU) was slower than both.  So GMRES stays the default.
-  Its preconditioner is the Picard factor, renewed by Picard steps only when CG needs more
-  than a few iterations; a time step that takes only Newton steps (the previous flow is
-  within NEWTON_SWITCH) never renews it, and as the lid of case 4 closed at 64 x 64 GMRES
-  went from ~46 to ~420 iterations per time step on a factor from far back.  So a Newton
-  step that needs more than STALE_FACTOR GMRES iterations renews the factor at its weights
-  (the factor's weights are restart data: restarts stay bit for bit).
+  Its preconditioner is the Picard factor, renewed when the Picard step's CG needs more
+  than a few iterations; every solve starts with one Picard step, so it is renewed at least
+  once per time step when stale (before that rule, time steps of Newton steps alone kept a
+  factor from far back, and GMRES went from ~46 to ~420 iterations per time step as the lid
+  of case 4 closed at 64 x 64: 0.55 s per step).
 
 Convergence: ||R(x)|| <= rtol ||b||; rtol should stay above the linear solver's own
 tolerance (1e-10 for the lagged-factor CG), where Picard steps stop moving x.  Deterministic throughout, so a restarted run
@@ -68,7 +67,6 @@ NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton 
 LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
 DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
 NEWTON_LINEAR = "gmres"   # Newton steps in a time step: "gmres" or "direct" (module doc)
-STALE_FACTOR = 30         # GMRES iterations of one Newton step above which the factor is renewed
 
 
 @dataclass
@@ -104,10 +102,6 @@ class LaggedLinear:
 
     def precondition(self, r):
         return self.lagged.factorizer.solve(r)
-
-    def refresh(self, weights) -> float:
-        """Refactor at these weights (the preconditioner had gone stale); seconds taken."""
-        return self.lagged.refactor(self.op.matrix_from_weights(weights), weights)
 
     def ensure_factor(self, weights):
         if self.lagged.factored_weights is None:
@@ -342,11 +336,7 @@ def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
             t0 = time.perf_counter()
             if NEWTON_LINEAR != "direct":      # the GMRES preconditioner
                 linear.ensure_factor(weights)
-            before = report.linear_iterations
             trial = _newton_step(problem, x, r, weights, parts, linear.precondition, report)
-            if NEWTON_LINEAR != "direct" and report.linear_iterations - before > STALE_FACTOR:
-                report.factor_seconds += linear.refresh(weights)      # a stale preconditioner
-                report.refactored = True
             if trial is not None:
                 report.newton_steps += 1
                 x = trial
