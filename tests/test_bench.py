@@ -36,7 +36,7 @@ def test_each_case_config_has_one_source(case):
 
 def test_case_config_path_and_unknown_case():
     assert bench.case_config_path("1a").name == "benchmark_case_1a.toml"
-    with pytest.raises(ConfigError, match="known cases: 1a, 1b, 1c, 2a, 2b, lid1, vp2, vp3"):
+    with pytest.raises(ConfigError, match="known cases: 1a, 1b, 1c, 2a, 2b, lid1, vp2, vp3, vp4"):
         bench.case_config_path("3z")
 
 
@@ -56,10 +56,10 @@ def test_case_configs_match_the_published_setup():
 
 # -- published table -------------------------------------------------------------------------------
 def test_every_published_value_has_a_citation_and_definition():
-    assert set(published.PUBLISHED) == {"1a", "1b", "1c", "2a", "2b", "lid1", "vp2", "vp3"}
+    assert set(published.PUBLISHED) == {"1a", "1b", "1c", "2a", "2b", "lid1", "vp2", "vp3", "vp4"}
     for case, table in published.PUBLISHED.items():
         expected = {"2b": {"nusselt_top", "vrms"}, "lid1": set(), "vp2": set(),
-                    "vp3": set()}.get(
+                    "vp3": set(), "vp4": set()}.get(
             case, set(published.QUANTITIES))
         assert set(table) == expected
         for q, pv in table.items():

@@ -121,3 +121,67 @@ def test_viscoplastic_bench_case_converges_with_a_mobile_lid():
     for q in ("nusselt_top", "vrms"):
         f = [getattr(r, q) for r in rows]
         assert abs(f[2] - f[1]) < abs(f[1] - f[0])
+
+
+def _offset_series(P=0.1, periods=24, seed=5):
+    """f = 3 + sin(2 pi t / P) at uneven times, and g = f + a_k on the k-th period [kP, (k+1)P)
+    with independent offsets a_k: by construction g's single-period means are 3 + a_k."""
+    rng = np.random.default_rng(seed)
+    t = np.cumsum(rng.uniform(0.5e-3, 1.5e-3, int(periods * P / 1e-3)))
+    f = 3.0 + np.sin(2 * np.pi * t / P)
+    a = rng.normal(0.0, 0.05, periods + 2)
+    g = f + a[np.floor(t / P).astype(int)]
+    return t, f, g, a
+
+
+def test_periodic_statistics_of_a_series_with_known_periods_and_offsets():
+    """Period and whole-period means with 95 % intervals (studies/viscoplastic
+    periodic_statistics) of series built with a known period P, mean 3 and per-period
+    offsets a_k: the period is P (crossings) and P within 1 % (autocorrelation, an independent
+    estimate); a perfectly periodic series has a zero interval; g's mean is 3 + the time mean
+    of the offsets of the periods used and its half-width the hand formula of the Student t
+    interval of batch means, t_{0.975, n-1} s(3 + a_k) / sqrt(n) (common practice)."""
+    from scipy.stats import t as student
+    from convsim.studies.viscoplastic import periodic_statistics
+    P = 0.1
+    t, f, g, a = _offset_series(P)
+    s = periodic_statistics(t, {"nusselt_top": f, "g": g}, skip=0.3)
+    assert s.period == pytest.approx(P, rel=1e-4)
+    assert s.autocorrelation_period == pytest.approx(P, rel=0.01)
+    assert s.periods >= 15 and len(s.single_periods) == s.periods
+    assert s.period_ci95 < 1e-4 * P and s.ci95["nusselt_top"] < 1e-4
+    assert s.means["nusselt_top"] == pytest.approx(3.0, abs=1e-4)
+    first = int(round(s.from_time / P))                   # crossings sit at k P here
+    used = a[first:first + s.periods]
+    assert s.means["g"] == pytest.approx(3.0 + used.mean(), abs=2e-3)
+    hand = student.ppf(0.975, s.periods - 1) * used.std(ddof=1) / math.sqrt(s.periods)
+    assert s.ci95["g"] == pytest.approx(hand, rel=0.03)
+    few = periodic_statistics(t[t < 2.2 * P], {"nusselt_top": f[t < 2.2 * P]}, skip=0.0)
+    assert math.isnan(few.period) and few.periods < 2          # not enough whole periods
+
+
+def test_a_periodic_bench_row_is_judged_by_its_periods():
+    """A vp4 row (Tosi et al. 2015 case 4, periodic; no published value) passes the bench's
+    per-run check with three whole periods at its end time and fails with two or with a
+    steady status (our acceptance, by construction of the rows)."""
+    P, path = 0.1, str(bench.case_config_path("vp4"))
+    t, f, g, _ = _offset_series(P, periods=8)
+
+    def row(status, end):
+        keep = t <= end
+        series = {q: f[keep] for q in ("nusselt_top", "vrms", "surface_vrms", "interior_vrms",
+                                       "mobility", "viscosity_min", "viscosity_max",
+                                       "yielded_fraction")}
+        result = type("R", (), {"series": dict(series, series_time=t[keep])})()
+        from convsim.studies.viscoplastic import periodic_lid_quantities
+        lid, periodic = periodic_lid_quantities(result)
+        return bench.BenchRow("vp4", 16, 1 / 16, status, "", 3.0, math.nan, 3.0, math.nan,
+                              math.nan, 1.0, 10, end, {}, 0.0, 0.0, "x=0", [], lid=lid,
+                              periodic=periodic)
+
+    good = bench._settled_check("vp4", row("end-time", 8 * P))
+    assert good.passed and good.value >= 3 and good.kind == "periodic"
+    two = row("end-time", 4.5 * P)            # after the first 30 %: crossings at 2P, 3P, 4P
+    assert two.periodic["periods"] == 2 and not bench._settled_check("vp4", two).passed
+    assert not bench._settled_check("vp4", row("steady", 8 * P)).passed
+    assert bench._settled_check("vp3", row("steady", 8 * P)).passed

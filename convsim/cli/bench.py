@@ -11,9 +11,10 @@ from convsim.cli.common import command, emit_json
 def _add_bench(p):
     p.add_argument("cases", nargs="*", metavar="CASE",
                    help="cases to run (default: all known: 1a 1b 1c 2a)")
-    p.add_argument("--grids", default="32,64,128", metavar="N,N,N",
-                   help="cell counts n of the n x n grids (default 32,64,128; three or more "
-                        "give an observed order and an extrapolated value)")
+    p.add_argument("--grids", default=None, metavar="N,N,N",
+                   help="cell counts n of the n x n grids (default 32,64,128; the periodic "
+                        "case vp4 24,32,48; three or more give an observed order and an "
+                        "extrapolated value)")
     p.add_argument("--out", default="bench", metavar="DIR",
                    help="report folder (default: bench)")
     p.add_argument("--jobs", type=int, default=None, metavar="N",
@@ -35,7 +36,7 @@ def _run_bench(args) -> int:
     from convsim.studies import bench_report
     from convsim.errors import ConfigError
     cases = bench.parse_cases(args.cases)
-    grids = bench.parse_grids(args.grids)
+    grids = None if args.grids is None else bench.parse_grids(args.grids)
     if args.jobs is not None and args.jobs < 1:
         raise ConfigError(f"--jobs {args.jobs}: must be at least 1")
     bench_report.check_outputs(args.out, args.overwrite)      # before hours of runs, not after
@@ -58,7 +59,8 @@ def _run_bench(args) -> int:
 
 
 def _bench_argv(args) -> list:
-    argv = list(args.cases) + ["--grids", args.grids, "--out", args.out]
+    argv = (list(args.cases) + (["--grids", args.grids] if args.grids is not None else [])
+            + ["--out", args.out])
     if args.jobs is not None:
         argv += ["--jobs", str(args.jobs)]
     for item in args.set:

@@ -155,7 +155,7 @@ def draw_mobility(ax, run: RunFile, pres: Presentation,
     t = pres.time(s["series_time"])
     (line,) = ax.plot(t, s["mobility"], color=style.LINE_COLORS[0], label="mobility M")
     for value, text, ls in ((thresholds.mobile_ratio, "lid breaks at", "--"),
-                            (thresholds.stagnant_ratio, "lid closes at", ":")):
+                            (thresholds.closed_ratio, "lid closes at", ":")):
         ax.axhline(value, color=style.GUIDE_COLOR, linewidth=0.7, linestyle=ls,
                    label=f"{text} M = {value:g}")
     times, where = _breaking_times(run, thresholds)

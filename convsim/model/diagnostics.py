@@ -291,11 +291,18 @@ DIAGNOSTICS = {d.name: d for d in (
                needs="yielding"),
     Diagnostic("stress_max", "1", "largest stress invariant 2 eta e_II of the cells, units "
                "eta_ref kappa/d^2", lambda s: float(np.max(s.plates.stress)), needs="yielding"),
+    Diagnostic("interior_vrms", "1", "rms velocity of the middle half of the layer (1/4 < z "
+               "< 3/4), units kappa/d", lambda s: _interior_vrms(s), needs="yielding"),
     Diagnostic("viscosity_min", "1", "smallest viscosity of the cells, units eta_ref",
                lambda s: float(np.min(s.plates.viscosity)), needs="yielding"),
     Diagnostic("viscosity_max", "1", "largest viscosity of the cells, units eta_ref",
                lambda s: float(np.max(s.plates.viscosity)), needs="yielding"),
 )}
+
+
+def _interior_vrms(sample: Sample) -> float:
+    from convsim.model.plates import interior_rms_velocity
+    return interior_rms_velocity(sample.grid, sample.psi)
 
 
 def _plateness(sample: Sample) -> float:

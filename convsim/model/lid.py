@@ -39,16 +39,26 @@ the reference viscosity.
   memory); the mobility bounds are our choice, after common practice (a
   stagnant lid moves at a few per cent of the interior or less).
 - Lid history (``lid_history``), from the time series of the mobility M(t): a
-  decision per time with hysteresis between the same two bounds (our choice,
-  common practice): the lid is *closed* once M < stagnant_ratio and stays so
-  until M >= mobile_ratio, when it *breaks* (a lid-breaking event, at the time
-  of that upward crossing, interpolated linearly between the samples) and is
-  *open* until M falls below stagnant_ratio again (the lid re-forms).  A series
+  decision per time with hysteresis between two bounds (our choice): the lid is
+  *closed* once M < closed_ratio (0.3 = CLOSED_SHARE x mobile_ratio) and stays
+  so until M >= mobile_ratio (0.6), when it *breaks* (a lid-breaking event, at
+  the time of that upward crossing, interpolated linearly between the samples)
+  and is *open* until M falls below closed_ratio again (the lid re-forms).  Why
+  not the stagnant bound 0.1 as the lower bound: it judges time means, and a lid
+  that re-forms within one cycle of periodic lid breaking need not slow its
+  surface that far.  Tosi et al. (2015) case 4 (periodic lid breaking, set-up
+  from memory), measured: between breaks M falls to 0.12 .. 0.23 in the first
+  cycles on 32 x 32 cells (t = 0.05 .. 0.28; to 0.06 .. 0.08 later, as the cycle
+  grows) and to 0.16 on 16 x 16 cells; with 0.1 as the lower bound those cycles
+  counted no event and a 12 x 12 run to t = 0.075 was called sluggish by its
+  mean M.  Half the mobile bound: the surface slows at least twofold between
+  breaks.  A series
   that starts between the bounds is undecided until it first reaches one; a run
   counts events in its averaging window, with the decision the samples before the
   window reached.
   ``episodic`` (``regime`` with ``switches``): the lid breaks and re-forms at
-  least once in the averaging window (two or more changes of the decision),
+  least once in the averaging window (two or more changes of the decision of the
+  lid history: M falls below closed_ratio and reaches mobile_ratio again),
   given a viscosity contrast that makes a lid (>= stagnant_contrast); it takes
   precedence over the rule of the means above, which would call such a run
   sluggish or mobile.  Runs that do not switch keep the rule of the means.
@@ -72,33 +82,40 @@ __all__ = ["REGIMES", "RegimeThresholds", "regime", "horizontal_velocity_profile
 
 REGIMES = ("mobile", "sluggish", "stagnant-lid", "episodic", "conductive", "unclassified")
 INTERIOR_BAND = (0.2, 0.8)
+CLOSED_SHARE = 0.5      # the lid history's closed bound as a share of the mobile bound
 
 
 @dataclass(frozen=True)
 class RegimeThresholds:
     """Bounds of the regime rule (module doc): mobility M = v_surface / v_rms (``*_ratio``),
-    viscosity contrast, conductive Nu."""
+    viscosity contrast, conductive Nu; ``closed_ratio``: the lid history's lower bound (the
+    lid has re-formed once M(t) < closed_ratio; it breaks when M(t) reaches mobile_ratio)."""
 
     mobile_ratio: float = 0.6
     stagnant_ratio: float = 0.1
     stagnant_contrast: float = 1.0e3
     conductive_nusselt: float = 1.01
+    closed_ratio: float | None = None      # None: mobile_ratio / 2 (module doc)
 
     def __post_init__(self):
+        if self.closed_ratio is None and isinstance(self.mobile_ratio, (int, float)):
+            object.__setattr__(self, "closed_ratio", CLOSED_SHARE * self.mobile_ratio)
         for name in ("mobile_ratio", "stagnant_ratio", "stagnant_contrast",
-                     "conductive_nusselt"):
+                     "conductive_nusselt", "closed_ratio"):
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise ConfigError(f"{name} = {value!r}: expected a positive number")
-        if self.stagnant_ratio > self.mobile_ratio:
-            raise ConfigError(f"stagnant_ratio = {self.stagnant_ratio!r}: must not exceed "
-                              f"mobile_ratio = {self.mobile_ratio!r}")
+        for name in ("stagnant_ratio", "closed_ratio"):
+            if getattr(self, name) > self.mobile_ratio:
+                raise ConfigError(f"{name} = {getattr(self, name)!r}: must not exceed "
+                                  f"mobile_ratio = {self.mobile_ratio!r}")
 
     def text(self) -> str:
         """The rule in one line, for reports and figures."""
         return (f"mobile: M >= {self.mobile_ratio:g}; stagnant-lid: M < "
                 f"{self.stagnant_ratio:g} and contrast >= {self.stagnant_contrast:g}; "
-                f"sluggish: between; episodic: M(t) crosses both; "
+                f"sluggish: between; episodic: M(t) falls below {self.closed_ratio:g} and "
+                f"reaches {self.mobile_ratio:g} again (twice or more); "
                 f"conductive: Nu < {self.conductive_nusselt:g}")
 
 
@@ -166,7 +183,7 @@ def lid_history(times, mobility, thresholds: RegimeThresholds = RegimeThresholds
     first = 0 if start is None else int(np.searchsorted(t, start, side="left"))
     if t.size - first < 2:
         return LidHistory()
-    hi, lo = thresholds.mobile_ratio, thresholds.stagnant_ratio
+    hi, lo = thresholds.mobile_ratio, thresholds.closed_ratio
     state = np.zeros(t.size, dtype=int)          # +1 open, -1 closed, 0 undecided
     current, breaks, switches = 0, [], 0
     for i, value in enumerate(m):

@@ -25,6 +25,17 @@ Iterations, from a guess x_0 (the previous step's flow):
   current factor of a Picard matrix; a backtracking line search on ||R|| makes each step
   lower the residual.  The 'newton' method takes Picard steps until the relative
   residual is below ``NEWTON_SWITCH`` and Newton steps after (Newton-Picard).
+  ``NEWTON_LINEAR = "direct"`` solves each Newton step with a sparse LU of the assembled
+  Jacobian instead (``_Residual.jacobian_matrix``, as the steady solver does).  Measured on
+  Tosi et al. (2015) case 4 (same nonlinear iterations and states in both; ms per step,
+  GMRES -> direct): from the one-cell start 22.7 -> 29.1 (32 x 32), 46.1 -> 103 (64 x 64);
+  in the developed lid-breaking cycle 32.4 -> 30.2 (32) and 102 -> 109 (64).  A hybrid
+  (20 GMRES iterations, then the LU) was slower than both.  So GMRES stays the default.
+  Its preconditioner is the Picard factor, renewed when the Picard step's CG needs more
+  than a few iterations; every solve starts with one Picard step, so it is renewed at least
+  once per time step when stale (before that rule, time steps of Newton steps alone kept a
+  factor from far back, and GMRES went from ~46 to ~420 iterations per time step as the lid
+  of case 4 closed at 64 x 64: 0.55 s per step).
 
 Convergence: ||R(x)|| <= rtol ||b||; rtol should stay above the linear solver's own
 tolerance (1e-10 for the lagged-factor CG), where Picard steps stop moving x.  Deterministic throughout, so a restarted run
@@ -55,6 +66,7 @@ METHODS = NONLINEAR_METHODS
 NEWTON_SWITCH = 1e-2      # relative residual below which 'newton' takes Newton steps
 LINE_SEARCH_STEPS = 6     # halvings of a Newton step at most
 DERIVATIVE_STEP = 1e-6    # relative step of the central difference deta/de_II
+NEWTON_LINEAR = "gmres"   # Newton steps in a time step: "gmres" or "direct" (module doc)
 
 
 @dataclass
@@ -239,8 +251,11 @@ def _strain_maps(op: StokesOperator):
     return op._jacobian_maps
 
 
-def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report):
-    """One Newton step with a backtracking line search; returns the new x (or None)."""
+def _newton_direction(problem: _Residual, x, r, weights, parts, precondition, report):
+    """dx of J dx = -r (``NEWTON_LINEAR``): GMRES on the matrix-free product preconditioned by
+    the Picard factor ('gmres'), or a sparse LU of the assembled Jacobian ('direct')."""
+    if NEWTON_LINEAR == "direct":
+        return _direct_direction(problem, x, r, weights, parts, report)
     n = x.size
     J = problem.jacobian(x, weights, parts)
     M = sla.LinearOperator((n, n), matvec=precondition)
@@ -251,6 +266,19 @@ def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report)
     dx, _info = sla.gmres(J, -r, rtol=1e-4, atol=0.0, restart=30, maxiter=3, M=M,
                           callback=counted, callback_type="pr_norm")
     report.linear_iterations += count[0]
+    return dx
+
+
+def _direct_direction(problem: _Residual, x, r, weights, parts, report):
+    """dx of J dx = -r by a sparse LU of the assembled Jacobian (one 'linear iteration')."""
+    report.linear_iterations += 1
+    return sla.splu(problem.jacobian_matrix(x, weights, parts),
+                    permc_spec="MMD_AT_PLUS_A").solve(-r)
+
+
+def _newton_step(problem: _Residual, x, r, weights, parts, precondition, report):
+    """One Newton step with a backtracking line search; returns the new x (or None)."""
+    dx = _newton_direction(problem, x, r, weights, parts, precondition, report)
     norm = np.linalg.norm(r)
     step = 1.0
     for _ in range(LINE_SEARCH_STEPS):
@@ -309,7 +337,8 @@ def solve_nonlinear(op: StokesOperator, viscosity: Callable, b: np.ndarray, x0,
         report.iterations += 1
         if method == "newton" and report.residual < NEWTON_SWITCH and report.iterations > 1:
             t0 = time.perf_counter()
-            linear.ensure_factor(weights)
+            if NEWTON_LINEAR != "direct":      # the GMRES preconditioner
+                linear.ensure_factor(weights)
             trial = _newton_step(problem, x, r, weights, parts, linear.precondition, report)
             if trial is not None:
                 report.newton_steps += 1

@@ -13,6 +13,9 @@ eta_ref kappa/d^2, lengths in layer depths.
   columns (one-sided, second order; the same as ``diagnostics.surface_rms_velocity``).
 - Mobility ``mobility``: surface rms velocity / rms velocity of the layer (Tackley 2000,
   Geochem. Geophys. Geosyst. 1, quoted from memory; the definition of the lid regime label).
+- Interior rms velocity ``interior_rms_velocity``: sqrt(mean of u^2 + w^2) over the cells with
+  1/4 < z < 3/4, the middle half of the layer away from both thermal boundary layers (our
+  definition for the viscoplastic benchmark cases; no published one is recalled).
 - Plateness ``plateness``: P = 1 - f80 / 0.6, with f80 the smallest fraction of the surface
   that holds 80 % of the surface deformation sum |du/dx| dx, and 0.6 its value for
   isoviscous convection (Tackley 2000, quoted from memory): near 1 for rigid plates with
@@ -34,9 +37,11 @@ from convsim.model.stokes import StokesOperator
 
 __all__ = ["strain_rate_field", "stress_field", "yielded_mask", "yielded_fraction",
            "surface_velocity", "mobility", "plateness", "ISOVISCOUS_F80", "yields",
-           "YieldFields", "yield_fields", "top_velocity"]
+           "YieldFields", "yield_fields", "top_velocity", "interior_rms_velocity",
+           "INTERIOR_BAND"]
 
 ISOVISCOUS_F80 = 0.6      # f80 of isoviscous convection (Tackley 2000, quoted from memory)
+INTERIOR_BAND = (0.25, 0.75)   # the middle half of the layer (our definition, module doc)
 
 
 def strain_rate_field(op: StokesOperator, psi: np.ndarray) -> np.ndarray:
@@ -63,6 +68,17 @@ def yielded_mask(law: ViscosityLaw, T: np.ndarray, z: np.ndarray,
     lin = viscosity(law, T, z, modifiers=False)
     plast = plastic_viscosity(LawInputs(np.asarray(T), np.asarray(z), strain_rate), law)
     return plast < lin
+
+
+def interior_rms_velocity(grid: Grid, psi: np.ndarray, band=INTERIOR_BAND) -> float:
+    """sqrt(mean(u^2 + w^2)) over the cells whose centres lie in band[0] < z < band[1].
+
+    u, w at the cell centres (``stokes.node_velocities``), in kappa/d.
+    """
+    from convsim.model.stokes import node_velocities
+    u, w = node_velocities(grid, psi)
+    rows = (grid.z_cell > band[0]) & (grid.z_cell < band[1])
+    return float(np.sqrt(np.mean(u[rows] ** 2 + w[rows] ** 2)))
 
 
 def yielded_fraction(mask: np.ndarray) -> float:

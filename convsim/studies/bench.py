@@ -41,11 +41,12 @@ from convsim import __version__
 from convsim.analysis import convergence as conv
 from convsim.errors import ConfigError
 from convsim.pool import process_pool
-from convsim.studies.viscoplastic import CASES as VP_CASES, lid_convergence, lid_quantities
+from convsim.studies.viscoplastic import (CASES as VP_CASES, PERIODIC_CASES, lid_convergence,
+                                          lid_quantities, periodic_lid_quantities)
 from convsim.studies.published import (ACCEPTANCE, CASE_SETUP, DEFAULT_CASES, PUBLISHED,
                                        QUANTITIES, known_cases)
 
-__all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
+__all__ = ["DEFAULT_GRIDS", "CASE_GRIDS", "case_grids", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "CaseSummary",
            "BenchResult", "case_config_path", "package_cases_dir",
            "parse_grids", "parse_cases", "plan", "run_task", "run_bench", "analyse_case",
            "provenance"]
@@ -53,6 +54,9 @@ __all__ = ["DEFAULT_GRIDS", "MEMORY_METHOD", "BenchTask", "BenchRow", "Check", "
 log = logging.getLogger(__name__)
 
 DEFAULT_GRIDS = (32, 64, 128)
+#: a case's own grids when none are asked for: the periodic case 4 runs to t = 1 on each
+#: (about 2 x 10^4 steps on 32 x 32), so its study stops at 48 cells
+CASE_GRIDS = {"vp4": (24, 32, 48)}
 MEMORY_METHOD = ("resource.getrusage(RUSAGE_SELF).ru_maxrss of the worker process (one run per "
                  "spawned process): peak_rss_mib is the high-water resident set size after the "
                  "run, interpreter and libraries included; run_rss_mib is its growth over the "
@@ -147,6 +151,7 @@ class BenchRow:
     stage_steps: list              # [(Ra, steps)] per continuation stage and the target
     relative_error: dict = field(default_factory=dict)
     lid: dict = field(default_factory=dict)    # studies/viscoplastic.lid_quantities (vp cases)
+    periodic: dict = field(default_factory=dict)   # PeriodicStatistics.to_dict (vp4)
 
     @property
     def steps_per_second(self) -> float:
@@ -204,7 +209,12 @@ def run_task(task: BenchTask) -> BenchRow:
                    phase_seconds={k: float(v) for k, v in result.phase_seconds.items()},
                    peak_rss_mib=peak, run_rss_mib=max(0.0, peak - before), upwelling=upwelling,
                    stage_steps=_stage_steps(result.series))
-    if task.case in VP_CASES:
+    if task.case in PERIODIC_CASES:      # time means over whole periods, no corner values
+        row.lid, row.periodic = periodic_lid_quantities(result)
+        row.nusselt_top, row.vrms = (row.periodic["means"].get(q, math.nan)
+                                     for q in ("nusselt_top", "vrms"))
+        row.nusselt_bottom = row.q1 = row.q2 = math.nan
+    elif task.case in VP_CASES:
         row.lid = lid_quantities(cfg, result)
     row.relative_error = {qn: math.nan for qn in QUANTITIES}     # nan: no published value
     row.relative_error.update({qn: (getattr(row, qn) - pv.value) / pv.value
@@ -222,12 +232,18 @@ def _error_row(task: BenchTask, exc: BaseException) -> BenchRow:
                     stage_steps=[], relative_error={q: nan for q in QUANTITIES})
 
 
+def case_grids(case: str) -> tuple:
+    """The grids of a case when none are asked for: ``CASE_GRIDS`` or ``DEFAULT_GRIDS``."""
+    return CASE_GRIDS.get(case, DEFAULT_GRIDS)
+
+
 def plan(cases, grids, overrides=(), warmup=True) -> list:
-    """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy."""
+    """The tasks, most expensive first (finest grids, highest Ra) so the cores stay busy
+    (``grids`` None: each case on its own ``case_grids``)."""
     cost = {"1a": 1.0, "1b": 2.0, "1c": 6.0, "2a": 4.0, "2b": 10.0,   # rough relative cost,
-            "vp2": 10.0, "vp3": 10.0}                                  # our guess
+            "vp2": 10.0, "vp3": 10.0, "vp4": 300.0}                    # our guess
     tasks = [BenchTask(c, n, str(case_config_path(c)), tuple(overrides), warmup)
-             for c in cases for n in grids]
+             for c in cases for n in (case_grids(c) if grids is None else grids)]
     return sorted(tasks, key=lambda t: -(t.grid ** 3) * cost.get(t.case, 1.0))
 
 
@@ -320,6 +336,19 @@ def _sha256(path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
+def _settled_check(case: str, r: BenchRow) -> Check:
+    """A steady case: the run reached steady state.  A periodic case (``PERIODIC_CASES``): it
+    ran to its end time and its series holds at least three whole periods after the spin-up
+    (``studies.viscoplastic.periodic_statistics``)."""
+    if case not in PERIODIC_CASES:
+        return Check("all", "steady", float(r.grid), math.nan, r.status == "steady",
+                     f"grid {r.grid}: {r.status}: {r.message}")
+    periods = int(r.periodic.get("periods", 0)) if r.periodic else 0
+    return Check("all", "periodic", float(periods), 3.0,
+                 r.status == "end-time" and periods >= 3,
+                 f"grid {r.grid}: {r.status}, {periods} whole periods: {r.message}")
+
+
 def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummary:
     """Convergence study, comparison and checks of one case from its rows."""
     from convsim.config import load_config, to_dict
@@ -334,15 +363,16 @@ def analyse_case(case: str, rows: list, config_path, overrides=()) -> CaseSummar
                      + ", then ".join(_sci(r) for r in cont)
                      + f" on the same grid, then continues to Ra = {_sci(cfg.physics.rayleigh)}; "
                      "wall time and steps include those stages")
+    settled = [_settled_check(case, r) for r in rows]
+    checks += settled
     for r in rows:
-        checks.append(Check("all", "steady", float(r.grid), math.nan, r.status == "steady",
-                            f"grid {r.grid}: {r.status}: {r.message}"))
         if r.upwelling == "x=1":
             notes.append(f"grid {r.grid}: the upwelling is at x = 1, not x = 0 as in the "
                          "published solution; q1 and q2 change roles")
-    steady_rows = [r for r in rows if r.status == "steady"]
+    steady_rows = [r for r, c in zip(rows, settled) if c.passed]
     if len(steady_rows) < len(rows):
-        notes.append("runs that did not reach steady state are left out of the convergence study")
+        notes.append("runs that did not reach steady state (a periodic case: three whole "
+                     "periods) are left out of the convergence study")
     convergence = {}
     for q in QUANTITIES:
         if len(steady_rows) >= 3:
@@ -439,14 +469,14 @@ class BenchResult:
                     provenance=self.provenance, cases=[c.as_dict() for c in self.cases])
 
 
-def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=(),
+def run_bench(cases=(), grids=None, jobs: int | None = None, overrides=(),
               progress=None, command: str = "", warmup: bool = True) -> BenchResult:
     """Run cases x grids on local cores and analyse them.
 
     Parameters
     ----------
     cases : case names (empty: all known).
-    grids : cell counts n (each run on n x n).
+    grids : cell counts n (each run on n x n); None: each case's ``case_grids``.
     jobs : worker processes (default ``os.cpu_count()``).
     overrides : ``section.key=value`` strings applied to every case config.
     progress : callable(BenchRow, done, total), optional, called as runs finish.
@@ -458,7 +488,7 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
     """
     import time
     cases = parse_cases(cases)
-    grids = parse_grids(grids)
+    grids = None if grids is None else parse_grids(grids)
     jobs = int(jobs or os.cpu_count() or 1)
     if jobs < 1:
         raise ConfigError(f"--jobs {jobs}: must be at least 1")
@@ -483,5 +513,5 @@ def run_bench(cases=(), grids=DEFAULT_GRIDS, jobs: int | None = None, overrides=
     wall = time.perf_counter() - t0
     summaries = [analyse_case(c, [r for r in rows if r.case == c], case_config_path(c),
                               overrides) for c in cases]
-    return BenchResult(cases=summaries, grids=grids, jobs=jobs, overrides=tuple(overrides),
+    return BenchResult(cases=summaries, grids=tuple(sorted({t.grid for t in tasks})), jobs=jobs, overrides=tuple(overrides),
                        wall_seconds=wall, provenance=provenance(command))

@@ -127,7 +127,8 @@ def _acceptance(bench: dict) -> list:
                  "extrapolated: abs. rel. error at most", "observed order at least"],
                 [[LABEL[q], _pct(a.finest, 2).lstrip("+"), _pct(a.extrapolated, 2).lstrip("+"),
                   _g(a.min_order, 3) if a.min_order else "-"] for q, a in ACCEPTANCE.items()])
-    L += ["A case passes when every run reached steady state and every check holds. The "
+    L += ["A case passes when every run reached steady state (a periodic case: its end time "
+          "with at least three whole periods) and every check holds. The "
           "extrapolated-value check fails when no extrapolation can be made (oscillatory or "
           "divergent sequence); with fewer than three steady grids the order and the "
           "extrapolated value are not measurable, and only steady state and the finest grid "
@@ -167,9 +168,11 @@ def _case_lid(c: dict) -> list:
     from convsim.studies.viscoplastic import LID_QUANTITIES
     if not any(r.get("lid") for r in c["rows"]):
         return []
-    names = list(LID_QUANTITIES)
+    names = [q for q in LID_QUANTITIES if any(q in r.get("lid", {}) for r in c["rows"])]
     L = ["Lid (surface and interior rms velocity, surface / whole-layer rms velocity, extreme "
-         "viscosities, area fraction where eta_plast < eta_lin; interior = 1/4 < z < 3/4):", ""]
+         "viscosities, area fraction where eta_plast < eta_lin; interior = 1/4 < z < 3/4"
+         + ("; time means over whole periods" if any(r.get("periodic") for r in c["rows"])
+            else "") + "):", ""]
     L += _table(["grid"] + [LID_QUANTITIES[q] for q in names],
                 [[r["grid"]] + [_g(r["lid"].get(q), 6) for q in names]
                  for r in c["rows"] if r.get("lid")])
@@ -178,7 +181,31 @@ def _case_lid(c: dict) -> list:
         L += _table(["quantity", "behaviour", "order p", "extrapolated"],
                     [[LID_QUANTITIES[q], e["behaviour"], _g(e["order"], 4),
                       _g(e["extrapolated"], 6)] for q, e in conv.items() if e is not None])
+    return L + _case_periodic(c)
+
+
+def _case_periodic(c: dict) -> list:
+    """A periodic case: period and time means with their 95 % intervals per grid
+    (``studies.viscoplastic.periodic_statistics``)."""
+    from convsim.studies.viscoplastic import PERIODIC_SERIES
+    rows = [r for r in c["rows"] if r.get("periodic")]
+    if not rows:
+        return []
+    L = ["Period (mean of the single periods between upward crossings of the mean Nu after "
+         "the spin-up; in brackets the first peak of the autocorrelation of Nu) and time "
+         "means over those whole periods, each +- its 95 % half-width (Student t over the "
+         "single periods and the single-period means):", ""]
+    L += _table(["grid", "periods", "period", "(autocorr.)"] + list(PERIODIC_SERIES),
+                [[r["grid"], r["periodic"]["periods"],
+                  _pm(r["periodic"]["period"], r["periodic"]["period_ci95"]),
+                  _g(r["periodic"]["autocorrelation_period"], 5)]
+                 + [_pm(r["periodic"]["means"].get(q), r["periodic"]["ci95"].get(q))
+                    for q in PERIODIC_SERIES] for r in rows])
     return L
+
+
+def _pm(value, half) -> str:
+    return f"{_g(value, 6)} +- {_g(half, 2)}"
 
 
 def _case_setup(c: dict) -> list:
@@ -262,6 +289,9 @@ def _case_checks(c: dict) -> list:
         mark = "pass" if ch["passed"] else "FAIL"
         if ch["kind"] == "steady":
             L += [f"- {mark}: steady state, {ch['note']}"]
+        elif ch["kind"] == "periodic":
+            L += [f"- {mark}: periodic, at least {_g(ch['limit'], 2)} whole periods at the end "
+                  f"time, {ch['note']}"]
         elif ch["kind"] == "order":
             L += [f"- {mark}: observed order of {LABEL[ch['quantity']]} {_g(ch['value'], 4)} "
                   f"(at least {_g(ch['limit'], 3)}; {ch['note']})"]
@@ -361,6 +391,13 @@ def terminal_table(bench: dict) -> str:
                          f"{_pct(e['nusselt_top'], 2):>9}{_g(r['vrms']):>11}{_pct(e['vrms'], 2):>9}"
                          f"{_g(r['q1'], 6):>10}{_g(r['q2'], 5):>9}{r['steps']:>8}"
                          f"{_g(r['wall_seconds'], 4):>9}")
+            if r.get("periodic"):
+                per = r["periodic"]
+                lines.append(f"{'':<11}period {_pm(per['period'], per['period_ci95'])} over "
+                             f"{per['periods']} periods (autocorrelation "
+                             f"{_g(per['autocorrelation_period'], 5)}); Nu "
+                             f"{_pm(per['means'].get('nusselt_top'), per['ci95'].get('nusselt_top'))}"
+                             f", vrms {_pm(per['means'].get('vrms'), per['ci95'].get('vrms'))}")
             if r.get("lid"):
                 lid = r["lid"]
                 lines.append(f"{'':<11}surface vrms {_g(lid['surface_vrms'], 6)}, interior vrms "

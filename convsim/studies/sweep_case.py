@@ -139,7 +139,8 @@ def _result_columns(cfg: Config, result) -> dict:
     law = ViscosityLaw.from_table(cfg.viscosity)
     eta = np.asarray(result.viscosity)
     return dict(_statistics_columns(result, law, b), status=result.status, message=result.message,
-                **{k: float(v) for k, v in result.diagnostics.items()},
+                **{k: float(v) for k, v in result.diagnostics.items()
+                   if k != "interior_vrms"},      # the sweep's own band (INTERIOR_BAND) wins
                 interior_vrms=interior_rms_velocity(result.grid, result.psi),
                 steps=int(result.steps),
                 time=float(result.time), wall_seconds=float(result.wall_seconds),
