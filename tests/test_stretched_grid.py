@@ -98,6 +98,14 @@ def test_stretched_transform_solve_equals_sparse_solve(kinds):
     np.testing.assert_allclose(d.solve(1.5, 3e-3, rhs).ravel(), direct, rtol=1e-10, atol=1e-12)
 
 
+def _random_flow(g, rng):
+    """Face velocities of a random streamfunction that vanishes on every wall."""
+    psi = rng.normal(size=g.node_shape)
+    psi[0] = psi[-1] = 0.0
+    psi[:, 0] = psi[:, -1] = 0.0
+    return face_velocities(g, psi)
+
+
 def test_heat_changes_only_by_the_wall_fluxes_on_a_stretched_grid():
     """Divergence theorem: the integral of -div(u T) over the box is 0 (no flow through
     the walls), the integral of lap T the bottom inflow minus the top outflow, for any T
@@ -105,10 +113,7 @@ def test_heat_changes_only_by_the_wall_fluxes_on_a_stretched_grid():
     g = Grid(9, 11, 1.3, wall_refinement=BETA)
     rng = np.random.default_rng(8)
     T = rng.uniform(size=g.cell_shape)
-    psi = rng.normal(size=g.node_shape)
-    psi[0] = psi[-1] = 0.0
-    psi[:, 0] = psi[:, -1] = 0.0
-    u, w = face_velocities(g, psi)
+    u, w = _random_flow(g, rng)
     bc = ThermalBoundaries("temperature", 0.2, "flux", 1.5)
     for limiter in ("van-leer", "upwind"):
         scale = np.abs(advection(g, T, u, w, bc, limiter)).max()
@@ -125,10 +130,7 @@ def test_stretched_advection_kernel_matches_naive_twin_and_upwind_matrix():
     g = Grid(9, 7, 1.3, wall_refinement=BETA)
     rng = np.random.default_rng(4)
     T = rng.uniform(size=g.cell_shape)
-    psi = rng.normal(size=g.node_shape)
-    psi[0] = psi[-1] = 0.0
-    psi[:, 0] = psi[:, -1] = 0.0
-    u, w = face_velocities(g, psi)
+    u, w = _random_flow(g, rng)
     bc = ThermalBoundaries("temperature", 0.2, "temperature", 0.9)
     padded = naive.pad(T, 1.0, ("temperature", 0.9), ("temperature", 0.2), False)
     for limiter in kernels.LIMITER_CODES:
