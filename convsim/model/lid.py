@@ -260,18 +260,28 @@ def _interior_rows(z: np.ndarray, lid: float) -> np.ndarray:
     return rows
 
 
+def _band_mean(values: np.ndarray, rows: np.ndarray, heights) -> float:
+    """Mean over the rows of a band, each weighted by its height (rows of a stretched grid;
+    ``heights`` None: equal rows, a plain mean)."""
+    if heights is None:
+        return float(np.mean(values[rows]))
+    return float(np.average(values[rows], weights=np.asarray(heights, float)[rows]))
+
+
 def interior_temperature(z: np.ndarray, temperature_profile: np.ndarray,
-                         lid: float = 0.0) -> float:
-    """T_i: mean of the horizontally averaged temperature in the interior band (module doc)."""
+                         lid: float = 0.0, heights=None) -> float:
+    """T_i: mean of the horizontally averaged temperature in the interior band (module doc),
+    rows weighted by their ``heights`` on a stretched grid."""
     z = np.asarray(z, float)
-    return float(np.mean(np.asarray(temperature_profile, float)[_interior_rows(z, lid)]))
+    return _band_mean(np.asarray(temperature_profile, float), _interior_rows(z, lid), heights)
 
 
 def lid_viscosity_contrast(z: np.ndarray, viscosity_profile: np.ndarray,
-                           lid: float = 0.0) -> float:
-    """Horizontally averaged viscosity of the top row over its interior mean (module doc)."""
+                           lid: float = 0.0, heights=None) -> float:
+    """Horizontally averaged viscosity of the top row over its interior mean (module doc),
+    rows weighted by their ``heights`` on a stretched grid."""
     z, eta = np.asarray(z, float), np.asarray(viscosity_profile, float)
-    return float(eta[np.argmax(z)] / np.mean(eta[_interior_rows(z, lid)]))
+    return float(eta[np.argmax(z)] / _band_mean(eta, _interior_rows(z, lid), heights))
 
 
 def rheological_temperature_scale(law, temperature: float, z: float = 0.5) -> float:

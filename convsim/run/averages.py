@@ -82,6 +82,11 @@ SETTLED_WORDS = ("steady", "statistically-steady", "unfinished")
 CAPACITY = 2048
 
 
+def row_heights(grid):
+    """The row heights of a stretched grid, None for equal rows (the lid means weigh rows)."""
+    return grid.dz_cell if grid.stretched else None
+
+
 def step_quantities(grid, temperature, psi, eta_cells, report) -> dict:
     """The scalar QUANTITIES and the two profiles of one state (pure function)."""
     u_profile = lid.horizontal_velocity_profile(grid, psi)
@@ -91,7 +96,8 @@ def step_quantities(grid, temperature, psi, eta_cells, report) -> dict:
     return dict(nusselt_top=report.nusselt_top, nusselt_bottom=report.nusselt_bottom,
                 vrms=report.vrms, surface_vrms=report.surface_vrms,
                 mean_temperature=report.mean_temperature,
-                interior_temperature=lid.interior_temperature(z, t_profile, thickness),
+                interior_temperature=lid.interior_temperature(z, t_profile, thickness,
+                                                              row_heights(grid)),
                 lid_thickness=thickness, temperature_profile=t_profile,
                 viscosity_profile=diag.horizontal_mean(eta_cells))
 
@@ -298,7 +304,8 @@ def lid_report(stats: dict, law, grid, psi, law_contrast: float,
                 interior_temperature=t_i,
                 rheological_temperature_scale=lid.rheological_temperature_scale(
                     law, t_i, 0.5) if np.isfinite(t_i) else math.nan,
-                lid_viscosity_contrast=lid.lid_viscosity_contrast(z, eta, thickness),
+                lid_viscosity_contrast=lid.lid_viscosity_contrast(z, eta, thickness,
+                                                                  row_heights(grid)),
                 viscosity_contrast=law_contrast, cells=cells, upwellings=ups.tolist(),
                 regime_rule=thresholds.text())
 
