@@ -171,3 +171,46 @@ def test_diagnostics_on_a_stretched_grid():
         errors.append(abs(vrms / (np.pi / np.sqrt(2.0)) - 1.0))
     orders = np.log2(np.array(errors[:-1]) / np.array(errors[1:]))
     assert errors[-1] < 1e-3 and np.all(orders > 1.8), (errors, orders)
+
+
+def test_lid_band_means_weigh_the_rows_by_their_heights():
+    """T(z) = z^2 on a beta = 2 grid: the row average of z^2 over a row [a, b] is
+    (a^2 + a b + b^2) / 3, so the height-weighted mean over whole rows equals the exact
+    integral of z^2 over those rows divided by their extent (calculus); a plain mean of the
+    rows (the uniform-grid rule) is off by far more."""
+    from convsim.model import lid
+    from convsim.run.averages import row_heights
+    g = Grid(8, 24, 1.0, wall_refinement=2.0)
+    a, b = g.z_node[:-1], g.z_node[1:]
+    profile = (a * a + a * b + b * b) / 3.0
+    rows = (g.z_cell >= lid.INTERIOR_BAND[0]) & (g.z_cell <= lid.INTERIOR_BAND[1])
+    lo, hi = a[rows][0], b[rows][-1]
+    exact = (hi ** 3 - lo ** 3) / 3.0 / (hi - lo)
+    weighted = lid.interior_temperature(g.z_cell, profile, 0.0, row_heights(g))
+    assert weighted == pytest.approx(exact, rel=1e-12)
+    assert abs(lid.interior_temperature(g.z_cell, profile, 0.0) / exact - 1.0) > 1e-3
+    eta = np.exp(-g.z_cell)
+    contrast = lid.lid_viscosity_contrast(g.z_cell, eta, 0.0, row_heights(g))
+    assert contrast == pytest.approx(eta[-1] / np.average(eta[rows], weights=g.dz_cell[rows]))
+    assert row_heights(Grid(8, 24)) is None
+
+
+def test_info_states_the_thinnest_and_thickest_rows(tmp_path):
+    """A run on a beta = 2 grid: `info` gives the row heights of the tanh map (the first
+    test's formula) and says the rows are refined; a uniform run's rows are all 1/nz."""
+    from convsim import api
+    from convsim.config import Config
+    from convsim.files.info import describe_run, format_info
+    heights = {}
+    for beta in (0.0, 2.0):
+        cfg = Config().replace(domain__nx=8, domain__nz=10, domain__wall_refinement=beta,
+                               stop__max_steps=2, stop__steady=False)
+        path = tmp_path / f"beta{beta}.h5"
+        api.run(cfg, path)
+        info = describe_run(path)
+        heights[beta] = (info["grid"]["dz_min"], info["grid"]["dz_max"], format_info(info))
+    rows = np.diff(Grid(8, 10, 1.0, wall_refinement=2.0).z_node)
+    assert heights[2.0][:2] == pytest.approx((rows.min(), rows.max()), rel=1e-12)
+    assert "refined towards the walls" in heights[2.0][2]
+    assert heights[0.0][:2] == pytest.approx((0.1, 0.1), rel=1e-12)
+    assert "refined" not in heights[0.0][2]

@@ -10,6 +10,7 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
+import numpy as np
 
 from convsim.files.jsonio import plain
 from convsim.files.reader import reading_run_file
@@ -48,8 +49,9 @@ def describe_run(path: str | Path) -> dict:
     dict
         ``file`` (path, size_bytes, xdmf sidecar or None), ``status``,
         ``provenance`` (title, source, convsim_version, created, Conventions,
-        wall_seconds), ``grid`` (nx, nz, aspect, periodic, dx, dz), ``snapshots``
-        (count, times, steps), ``series`` (records, first_time, last_time, names),
+        wall_seconds), ``grid`` (nx, nz, aspect, periodic, dx, dz: the mean row height,
+        dz_min and dz_max: the thinnest and thickest rows, which differ on a grid refined
+        towards the walls), ``snapshots`` (count, times, steps), ``series`` (records, first_time, last_time, names),
         ``fields`` ({name: {dims, shape, units, long_name}}), ``final`` (the
         ``final_*`` attributes, or the last series row while the run is not
         finished), ``settled``, ``statistics`` (per quantity mean, ci95, from_time),
@@ -80,7 +82,8 @@ def describe_run(path: str | Path) -> dict:
         "grid": {"nx": nx, "nz": nz, "aspect": plain(x_node[-1] - x_node[0]),
                  "periodic": bool(attrs.get("periodic", 0)),
                  "dx": plain((x_node[-1] - x_node[0]) / nx),
-                 "dz": plain((z_node[-1] - z_node[0]) / nz)},
+                 "dz": plain((z_node[-1] - z_node[0]) / nz),
+                 "dz_min": plain(np.diff(z_node).min()), "dz_max": plain(np.diff(z_node).max())},
         "snapshots": {"count": int(len(times)), "times": plain(times), "steps": plain(steps)},
         "series": {"records": records, "first_time": first_time,
                    "last_time": last.get("series_time"), "names": list(SERIES),
@@ -133,7 +136,9 @@ def format_info(info: dict) -> str:
         f"{info['file']['path']}: {p.get('title') or 'convsim run'}",
         f"  status      {info['status']}",
         f"  grid        {g['nx']} x {g['nz']} cells, aspect {g['aspect']:g}, "
-        f"{'periodic' if g['periodic'] else 'reflecting'} sides",
+        f"{'periodic' if g['periodic'] else 'reflecting'} sides"
+        + ("" if g["dz_max"] <= g["dz_min"] * (1 + 1e-9) else
+           f", rows {g['dz_min']:.3g} to {g['dz_max']:.3g} thick (refined towards the walls)"),
     ]
     if phys:
         lines.append(f"  physics     Ra = {phys.get('rayleigh', float('nan')):g} (viscosity at the "
