@@ -97,7 +97,8 @@ def statistics_lines(summary: dict) -> list[str]:
                      f"upwellings at x = {ups or 'none'}")
         if lid.get("switches"):
             times = ", ".join(_g(t, 4) for t in lid.get("breaking_times", [])[:8])
-            lines.append(f"  lid breaks {lid.get('breaking_events')} time(s) at t = {times}; "
+            when = f" at t = {times}" if times else ""
+            lines.append(f"  lid breaks {lid.get('breaking_events')} time(s){when}; "
                          f"{lid['switches']} switch(es), open {_g(lid['open_fraction'], 3)} of "
                          f"the time")
     return lines

@@ -194,6 +194,7 @@ def _lid_history_lines(lid: dict) -> list[str]:
     if not lid.get("switches"):
         return []
     times = ", ".join(f"{t:.4g}" for t in lid.get("breaking_times", ())[:8])
-    return [f"              lid breaks {len(lid.get('breaking_times', ()))} time(s) (t = "
-            f"{times}), {lid.get('switches')} switch(es), open {_num(lid.get('open_fraction'))} "
+    when = f" (t = {times})" if times else ""
+    return [f"              lid breaks {len(lid.get('breaking_times', ()))} time(s){when}, "
+            f"{lid.get('switches')} switch(es), open {_num(lid.get('open_fraction'))} "
             f"of the time"]
