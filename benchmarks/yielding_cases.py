@@ -135,7 +135,7 @@ def steady_case(name: str, config: str, n: int, sets, base_seconds: dict):
 def periodic_case(n: int, start: str = "", end_time: float = 0.0, out=None):
     """Case 4 on n x n cells: period, whole-period means with 95 % intervals, lid history."""
     from convsim.studies.viscoplastic import PERIODIC_SERIES, periodic_statistics
-    sets = [f"start.kind=snapshot", f"start.file={start}"] if start else []
+    sets = ["start.kind=snapshot", f"start.file={start}"] if start else []
     sets += [f"stop.end_time={end_time}"] if end_time else []
     result, seconds, its = _run("benchmark_viscoplastic_case4.toml", n, sets, out)
     s = result.series

@@ -164,7 +164,7 @@ def test_a_periodic_bench_row_is_judged_by_its_periods():
     """A vp4 row (Tosi et al. 2015 case 4, periodic; no published value) passes the bench's
     per-run check with three whole periods at its end time and fails with two or with a
     steady status (our acceptance, by construction of the rows)."""
-    P, path = 0.1, str(bench.case_config_path("vp4"))
+    P = 0.1
     t, f, g, _ = _offset_series(P, periods=8)
 
     def row(status, end):

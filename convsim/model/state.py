@@ -104,4 +104,4 @@ def from_record(record: dict, names) -> ModelState:
         previous={n: np.array(v) for n, v in previous.items()} if history else None,
         previous_explicit={n: np.array(v) for n, v in explicit.items()} if history else None,
         previous_dt=float(record["previous_dt"]), solver=solver,
-        previous_psi=None if record.get("previous_psi") is None else np.array(record["previous_psi"]))
+        previous_psi=None if (p := record.get("previous_psi")) is None else np.array(p))
