@@ -31,10 +31,11 @@ GOALS = {256: 30.0, 512: 8.0}
 ACCURACY = 1e-6
 
 
-def model_at(n: int, contrast: float, tolerance: float):
+def model_at(n: int, contrast: float, tolerance: float, flow_error: float = 1e-15):
     cfg = Config().replace(domain__nx=n, domain__nz=n, physics__rayleigh=100.0,
                            viscosity__law="frank-kamenetskii", viscosity__thermal_contrast=contrast,
-                           numerics__stokes_tolerance=tolerance)
+                           numerics__stokes_tolerance=tolerance,
+                           numerics__flow_error_tolerance=flow_error)
     return build_model(cfg)
 
 
