@@ -130,3 +130,22 @@ def test_direct_newton_steps_reach_the_same_solution_at_the_same_rate(monkeypatc
     rates = _rates(direct.history)[-direct.newton_steps + 1:]
     assert rates[-1] < 0.1 * _rates(direct.history)[0], direct.history
 
+
+
+def test_the_iteration_solves_its_linear_problems_to_their_residual_not_the_flow_error():
+    """A time-following run's solver carries a loose flow-error target (CG's dissipation-norm
+    estimate); the nonlinear iteration's linear solves must ignore it and reach the residual
+    target, or its own residual test would stall (checked against dense numpy algebra)."""
+    g = Grid(12, 12)
+    op = StokesOperator(g, "free-slip", "free-slip")
+    rng = np.random.default_rng(7)
+    weights0 = op.viscosity_weights(np.ones(g.node_shape), np.ones(g.cell_shape))
+    weights = weights0 * (1.0 + 0.3 * rng.random(weights0.shape))
+    b = rng.normal(size=op.n_unknowns)
+    lagged = LaggedFactorSolver(make_factorizer("superlu"), "adaptive", rtol=1e-10,
+                                error_rtol=1e-2)
+    linear = LaggedLinear(op, lagged)
+    linear.ensure_factor(weights0)                       # a factor of a nearby matrix
+    x, report = linear.solve(weights, b, np.zeros(op.n_unknowns))
+    A = op.matrix_from_weights(weights).toarray()
+    assert np.linalg.norm(b - A @ x) <= 1e-10 * np.linalg.norm(b) * 1.01

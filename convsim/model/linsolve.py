@@ -209,8 +209,12 @@ class LaggedFactorSolver:
         return time.perf_counter() - t0
 
     def solve(self, A: sp.spmatrix, b: np.ndarray, x0: np.ndarray | None = None,
-              weights: np.ndarray | None = None) -> tuple[np.ndarray, SolveReport]:
+              weights: np.ndarray | None = None, error_rtol: float | None = None
+              ) -> tuple[np.ndarray, SolveReport]:
+        """x with A x = b (see the class docstring); ``error_rtol`` overrides the solver's
+        flow-error target for this solve (0: the residual target alone)."""
         report = SolveReport()
+        error_rtol = self.error_rtol if error_rtol is None else error_rtol
         if (self.factored_weights is None or self.policy == "always"
                 or self.stale_iterations >= REFACTOR_IN_SOLVES):
             report.factor_seconds = self.refactor(A, weights)
@@ -220,7 +224,7 @@ class LaggedFactorSolver:
         else:
             t0 = time.perf_counter()
             run = _pcg(A, b, self.factorizer.solve, x0, self.rtol, self.max_iterations,
-                       self.error_rtol)
+                       error_rtol)
             report.solve_seconds = time.perf_counter() - t0
             report.iterations, report.flow_error = run.iterations, run.flow_error
             if run.converged:
