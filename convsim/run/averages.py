@@ -68,17 +68,6 @@ fixed wall contrast (a fixed-flux wall: no Nu scale of the storage) the allowanc
 the test is Geweke's, as before.  The precision rule's own half-width through the balance
 (|gap| + ci95) still counts the gap the creep makes.
 
-For the same reason the slower wall is left out of the spin-up test when a precision is asked
-(``balanced_wall``: the wall with the longer autocorrelation time over the record's second
-half).  Below a stagnant lid the top Nu is the conduction through the lid, which follows the
-heat content: it creeps with it long after the bottom Nu and vrms have settled (64 x 64 and
-128 x 128 cells started from the coarser grid's flow), and MSER then cuts at the middle of
-every record.  Its interval does not need it settled: it is |gap| + ci95 of the other wall
-(``balanced_walls``), which holds whenever the other wall's series is stationary (tested
-strictly) and the long-run means balance; the creep of the heat content is bounded by the
-weighed test above.  The wall so left out must then take its interval through the balance,
-or the series counts as not settled (``estimates``).
-
 The mean-precision stop rule (``precision_met``) asks for a statistically
 steady series and both Nu means known to a relative half-width of ``stop.mean_precision``; the
 rule (``run.stops.MeanPrecision``) asks every 100 steps, so that it costs
@@ -231,19 +220,6 @@ class RunAverages:
         scalars = {n: rows[:, 1 + i] for i, n in enumerate(self.names)}
         return t, scalars, rows[:, k:k + self.nz], rows[:, k + self.nz:]
 
-    def balanced_wall(self) -> str | None:
-        """The wall left to the heat balance in the spin-up test: with a requested precision
-        and a fixed wall contrast, the one with the longer autocorrelation time over the
-        record's second half (module docstring); None otherwise."""
-        t, scalars, _, _ = self._columns()
-        if not (self.precision > 0.0 and math.isfinite(self.contrast) and self.contrast != 0.0
-                and t.size >= 4 * st.MSER_BATCH):
-            return None
-        half = t.size // 2
-        taus = {w: st.integrated_time(st.uniform_resample(t[half:], scalars[w][half:])[1])
-                for w in WALLS}
-        return max(WALLS, key=lambda w: taus[w])
-
     def spin_up(self) -> tuple[float, bool]:
         """(from_time, settled) of the recorded series (module doc)."""
         t, scalars, _, _ = self._columns()
@@ -252,26 +228,18 @@ class RunAverages:
         y = np.column_stack([scalars[n] for n in SPIN_UP_COLUMNS])
         allowed = storage_allowance(scalars["nusselt_top"], scalars["nusselt_bottom"],
                                     self.precision, self.contrast)
-        free = self.balanced_wall()
-        rates = [allowed if n == "mean_temperature" else math.inf if n == free else 0.0
-                 for n in SPIN_UP_COLUMNS]
+        rates = [allowed if n == "mean_temperature" else 0.0 for n in SPIN_UP_COLUMNS]
         return st.spin_up_time(t, y, drift_rates=rates)
 
     def estimates(self) -> tuple[dict, bool]:
         """({quantity: Estimate}, settled) from the end of the spin-up; the wall Nu intervals
-        through the heat balance where their own are not reliable (``balanced_walls``).  The
-        wall the spin-up test left to the balance must take its interval from it, or the
-        series has not settled."""
+        through the heat balance where their own are not reliable (``balanced_walls``)."""
         t, scalars, _, _ = self._columns()
         from_time, settled = self.spin_up()
         if not np.isfinite(from_time):
             return {}, False
-        est = balanced_walls({n: st.estimate(t, scalars[n], from_time) for n in self.names},
-                             self.heating, self.contrast)
-        free = self.balanced_wall()
-        if free is not None and est[free].interval != "heat-balance":
-            settled = False
-        return est, settled
+        est = {n: st.estimate(t, scalars[n], from_time) for n in self.names}
+        return balanced_walls(est, self.heating, self.contrast), settled
 
     def statistically_steady(self, est: dict, settled: bool) -> bool:
         """Spin-up over, no drift, Nu intervals reliable, heat balance within them (module doc)."""

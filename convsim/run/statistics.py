@@ -268,8 +268,7 @@ def spin_up_time(t, y, batch: int = MSER_BATCH, drift_rates=None) -> tuple[float
     part passes Geweke's test, |z| < ``GEWEKE_LIMIT`` (``geweke_z``).
     ``drift_rates``: one allowed rate |dy/dt| per column (units of y per unit of t;
     None or 0: no drift allowed); a column with a positive rate is left out of the cut
-    and tested by eq. (2a); ``math.inf``: the column is not tested at all.
-    Returns (time, settled).
+    and tested by eq. (2a).  Returns (time, settled).
     """
     tu, yu = uniform_resample(t, y)
     cols = yu.reshape(yu.shape[0], -1)
