@@ -9,13 +9,15 @@ Usage (from the repository root; run it alone, with nothing else heavy on the ma
 The goal (issue 10): "a time-dependent stagnant-lid case (contrast 1e5 or more, Ra at the
 bottom 1e7) to a mean Nu known to 2 % at 128x128 in under 10 minutes".  The case is the
 shipped config (default configs/stagnant_lid_time_dependent.toml: Frank-Kamenetskii,
-contrast 1e5, Ra 1e7 at the bottom wall, free-slip, heated from below, box of aspect 2,
-stop.mean_precision = 0.02, started by grid sequencing through its statistically steady
-coarse states).  The same layer in a unit box is steady (it is case 1 of Tosi et al. 2015),
-so a unit box cannot measure a time mean; the config's choice of grid is printed with the
-result.  The options replace single keys of the config (--grid: cells through the depth,
-nx = aspect x grid).  Prints the run's end, steps, wall time (the coarse runs of the start
-included), the means with their intervals, the regime and whether the goal is met: ended by
+contrast 1e5, Ra 1e7 at the bottom wall, free-slip, heated from below, box of aspect 2 on
+128 x 128 cells (each 1/64 wide, 1/128 deep), a one-cell start, stop.mean_precision = 0.02,
+started by grid sequencing through its statistically steady coarse states).  The same layer
+in a unit box is steady (it is case 1 of Tosi et al. 2015), so a unit box cannot measure a
+time mean; the config's choice of grid and start is printed with the result.  The options
+replace single keys of the config (--grid: cells through the depth, nx in the config's
+proportion, so the cell shape is kept).  Prints the run's end, steps, wall time (the coarse
+runs of the start included; each level's end is logged with the wall time so far), the means
+with their intervals, the regime and whether the goal is met: ended by
 the precision stop in a statistically steady state, within the time.  A benchmark, not a
 test: it prints figures and never fails on speed.
 """
@@ -41,7 +43,8 @@ def _config(args):
     aspect = cfg.domain.aspect if args.aspect is None else args.aspect
     if args.aspect is not None or args.grid is not None:
         nz = cfg.domain.nz if args.grid is None else args.grid
-        changes.update(domain__aspect=aspect, domain__nz=nz, domain__nx=round(aspect * nz))
+        across = cfg.domain.nx / (cfg.domain.nz * cfg.domain.aspect)   # keep the cell shape
+        changes.update(domain__aspect=aspect, domain__nz=nz, domain__nx=round(across * aspect * nz))
     if args.contrast is not None:
         changes["viscosity__thermal_contrast"] = args.contrast
     if args.ra_bottom is not None:
@@ -81,13 +84,17 @@ def main():
     # config's own start, and the fine run stops at its first step)
     signal.signal(signal.SIGALRM, lambda *_: os.kill(os.getpid(), signal.SIGINT))
     signal.setitimer(signal.ITIMER_REAL, 60 * args.minutes, 1.0)
-    logging.basicConfig(level=logging.INFO, format="  %(name)s: %(message)s")
+    logging.basicConfig(level=logging.INFO, format="  [%(elapsed)6.1f s] %(name)s: %(message)s")
+    for handler in logging.getLogger().handlers:       # each level's end with the wall time
+        handler.addFilter(lambda record: setattr(record, "elapsed",
+                                                 time.perf_counter() - t0) or True)
 
     print(f"case {Path(args.config).name}: {d.nx} x {d.nz} cells, box aspect {d.aspect:g} "
-          f"(cell {d.aspect / d.nx:.4g} x {1 / d.nz:.4g}: {d.nz} cells through the depth, the "
-          f"resolution of a {d.nz} x {d.nz} unit box), contrast "
+          f"(cell {d.aspect / d.nx:.4g} wide x {1 / d.nz:.4g} deep: {d.nz} cells through the "
+          f"depth), contrast "
           f"{cfg.viscosity.thermal_contrast:g}, Ra bottom {ra['bottom']:.4g} (top "
-          f"{ra['top']:.4g}), start {cfg.start.kind}/{cfg.start.perturbation}, coarse_grid "
+          f"{ra['top']:.4g}), start {cfg.start.kind}/{cfg.start.perturbation} (mode "
+          f"{cfg.start.mode}, amplitude {cfg.start.amplitude:g}), coarse_grid "
           f"{cfg.start.coarse_grid}, precision {cfg.stop.mean_precision:g}")
     t0 = time.perf_counter()
     result = api.run(cfg, observers=[Deadline()])

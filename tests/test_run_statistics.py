@@ -28,6 +28,18 @@ def _config(**stop):
     return parse_config(data, source="test")
 
 
+def _feed(avg, t, **series):
+    """Offer RunAverages one row per time t[k]: the given series (arrays of len(t)) and
+    constants for the rest of its quantities."""
+    rows = dict(surface_vrms=1.0, mean_temperature=0.8, interior_temperature=0.9,
+                lid_thickness=0.2)
+    for k in range(len(t)):
+        avg.record(t[k], lambda k=k: dict(rows, **{n: v[k] for n, v in series.items()},
+                                          temperature_profile=np.full(4, 0.5),
+                                          viscosity_profile=np.ones(4)))
+    return avg
+
+
 @pytest.fixture(scope="module")
 def chaotic(tmp_path_factory):
     path = tmp_path_factory.mktemp("chaotic") / "run.h5"
@@ -109,13 +121,8 @@ def test_precision_rule_fires_exactly_when_the_interval_is_narrow_enough():
     n = 1500
     nu = 10.0 + lfilter([1.0], [1.0, -0.9], rng.normal(0.0, 0.1, n))
     t = np.cumsum(rng.uniform(0.5, 1.5, n)) * 1e-4
-    avg = RunAverages(nz=4, heating=0.0, contrast=1.0)
-    for k in range(n):
-        avg.record(t[k], lambda k=k: dict(
-            nusselt_top=nu[k], nusselt_bottom=nu[k], vrms=100.0 + nu[k], surface_vrms=90.0,
-            mean_temperature=0.5 + 1e-3 * (nu[k] - 10.0), interior_temperature=0.5,
-            lid_thickness=0.0, temperature_profile=np.full(4, 0.5),
-            viscosity_profile=np.ones(4)))
+    avg = _feed(RunAverages(nz=4, heating=0.0, contrast=1.0), t, nusselt_top=nu,
+                nusselt_bottom=nu, vrms=100.0 + nu, mean_temperature=0.5 + 1e-3 * (nu - 10.0))
     est, settled = avg.estimates()
     assert settled and est["nusselt_top"].reliable
     rel = est["nusselt_top"].relative_ci95
@@ -142,15 +149,44 @@ def test_time_means_take_the_top_interval_through_the_heat_balance_below_a_smoot
     bottom = 10.0 + lfilter([1.0], [1.0, -0.5], rng.normal(0.0, 0.2, n))
     top = 10.0 + lfilter([1.0], [1.0, -0.995], rng.normal(0.0, 0.005, n))
     t = np.arange(1, n + 1) * 1e-4
-    avg = RunAverages(nz=4, heating=0.0, contrast=1.0)
-    for k in range(n):
-        avg.record(t[k], lambda k=k: dict(
-            nusselt_top=top[k], nusselt_bottom=bottom[k], vrms=100.0 + bottom[k],
-            surface_vrms=1.0, mean_temperature=0.8, interior_temperature=0.9,
-            lid_thickness=0.2, temperature_profile=np.full(4, 0.5),
-            viscosity_profile=np.ones(4)))
+    avg = _feed(RunAverages(nz=4, heating=0.0, contrast=1.0), t, nusselt_top=top,
+                nusselt_bottom=bottom, vrms=100.0 + bottom)
     est, _ = avg.estimates()
     b, tp = est["nusselt_bottom"], est["nusselt_top"]
     assert b.interval == "autocorrelation" and b.reliable
     assert tp.interval == "heat-balance" and tp.reliable
     assert tp.ci95 == pytest.approx(abs(tp.mean - b.mean) + b.ci95, rel=1e-12)
+
+
+def test_a_creeping_heat_content_is_weighed_against_the_requested_precision():
+    # RunAverages fed stationary walls (AR(1), Nu 3.3) and a heat content creeping at a
+    # planted rate r (the storage term of the balance: Nu_top = Nu_bottom - r at H = 0,
+    # dT = 1).  Hand formula of convsim.run.averages: the allowed rate is
+    # DRIFT_SHARE p Nu_min dT = 0.5 x 0.02 x 3.3 = 0.033.  A creep at half of it settles with
+    # p = 2 % and not without a precision (Geweke's strict test); one at 1.5 x does not settle.
+    from scipy.signal import lfilter
+    from convsim.run.averages import DRIFT_SHARE, RunAverages, storage_allowance
+    rng = np.random.default_rng(5)
+    n = 1800
+    bottom = 3.3 + lfilter([1.0], [1.0, -0.5], rng.normal(0.0, 0.05, n))
+    top = 3.3 + lfilter([1.0], [1.0, -0.5], rng.normal(0.0, 0.05, n))
+    noise = rng.normal(0.0, 1e-6, n)
+    t = np.arange(1, n + 1) * 1e-4
+    allowed = 0.5 * 0.02 * 3.3
+
+    def settled(rate, precision):
+        avg = _feed(RunAverages(nz=4, heating=0.0, contrast=1.0, precision=precision), t,
+                    nusselt_top=top - rate, nusselt_bottom=bottom, vrms=100.0 + bottom,
+                    mean_temperature=0.8 + rate * t + noise)
+        return avg.spin_up()[1]
+
+    assert settled(0.0, 0.02) and settled(0.0, 0.0)
+    assert settled(0.5 * allowed, 0.02) and not settled(0.5 * allowed, 0.0)
+    assert not settled(1.5 * allowed, 0.02)
+    # the allowance itself: the smaller wall mean over the second half, times the contrast
+    half = n // 2
+    nu_min = min(np.mean(top[half:] - 0.1), np.mean(bottom[half:]))
+    assert storage_allowance(top - 0.1, bottom, 0.02, 2.0) == pytest.approx(
+        DRIFT_SHARE * 0.02 * nu_min * 2.0, rel=1e-12)
+    assert storage_allowance(top, bottom, 0.0, 1.0) == 0.0             # no precision asked
+    assert storage_allowance(top, bottom, 0.02, float("nan")) == 0.0   # a fixed-flux wall

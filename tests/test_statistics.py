@@ -130,3 +130,36 @@ def test_wall_interval_through_the_heat_balance_covers_the_long_run_mean():
     # a reliable interval of its own is kept; no balance with a fixed-flux wall (dT NaN)
     assert balanced_walls(est, 1.0, 2.0)["nusselt_bottom"] == est["nusselt_bottom"]
     assert balanced_walls(est, 0.0, float("nan")) == est
+
+
+def test_a_drift_within_the_allowed_rate_passes_and_a_faster_one_does_not():
+    # Two columns over t = 0..40: a stationary AR(1) (tau 19) and a "heat content" of small
+    # AR(1) noise (sd of the segment means ~1e-3) plus a planted linear drift r t.  With an
+    # allowed rate r_a for the second column (eq. 2a of convsim.run.statistics: Geweke's
+    # difference of the first 10 % and last 50 % reduced by r_a times the distance of their
+    # mid times, ~0.7 x 40 = 28 here), a drift at r_a / 2 (difference 0.5 r_a 28 = 0.014,
+    # 13 sd) passes, where Geweke's own test (no drift allowed) fails it; a drift at 2 r_a
+    # (excess 0.028, 25 sd) fails.  The drift is planted, so its rate is known exactly.
+    t = np.arange(4000) * 0.01
+    r_a = 1e-3
+
+    def verdicts(rate, rates):
+        out = []
+        for s in range(40):
+            y = np.column_stack([ar1(s, t.size, 0.9),
+                                 ar1(s + 500, t.size, 0.9, mean=0.8, sigma=0.002) + rate * t])
+            out.append(st.spin_up_time(t, y, drift_rates=rates)[1])
+        return np.mean(out)
+
+    assert verdicts(0.0, [0.0, r_a]) >= 0.95 and verdicts(0.0, None) >= 0.95
+    assert verdicts(0.5 * r_a, [0.0, r_a]) >= 0.95
+    assert verdicts(0.5 * r_a, None) <= 0.05            # the strict test: any drift fails
+    assert verdicts(2.0 * r_a, [0.0, r_a]) <= 0.05
+    assert verdicts(-2.0 * r_a, [0.0, r_a]) <= 0.05     # a fall as well as a rise
+    # a drift allowed to one column is not allowed to another
+    y = np.column_stack([ar1(1, t.size, 0.9, mean=0.8, sigma=0.002) + 0.5 * r_a * t,
+                         ar1(2, t.size, 0.9)])
+    assert not st.spin_up_time(t, y, drift_rates=[0.0, r_a])[1]
+    # the mid points of Geweke's parts: A = samples 0..9 (mid 4.5), B = 50..99 (mid 74.5)
+    part_a, part_b, apart = st.geweke_parts(100)
+    assert (part_a, part_b, apart) == (slice(0, 10), slice(50, 100), 70.0)

@@ -5,8 +5,9 @@ the time, the scalar ``QUANTITIES`` and the horizontally averaged temperature
 and viscosity profiles.  From the buffer:
 
 - the spin-up ends at the latest MSER truncation of Nu top, Nu bottom and vrms,
-  and the series counts as settled when those pass the drift test
-  (``statistics.spin_up_time``); every quantity is averaged from that time on
+  and the series counts as settled when those and the heat content (mean
+  temperature) pass the drift test (``statistics.spin_up_time``; the heat content
+  weighed against the requested precision, below); every quantity is averaged from that time on
   (``from_time``), its time mean weighted by the step lengths and its 95 %
   half-width ``ci95`` from the integrated autocorrelation time;
 - ``settled`` says how the run ended: ``steady`` (the steady-state rule fired:
@@ -46,6 +47,27 @@ in 70 % of 400 seeds), while the bound through the fast wall covered it in 98 %
 (tests/test_statistics.py).  The heat balance then holds by construction;
 the precision rule, asking the half-width |gap| + ci95 to be small, bounds the gap itself.
 
+The drift of the heat content weighed against the precision (``storage_allowance``).  The
+heat content creeps for a long time after Nu and vrms have settled (64 x 32 cells, aspect 2,
+contrast 1e5, Ra_bottom 1e7: the mean temperature rose 0.3 % over t 0.68..1.2 while the
+bottom Nu fluctuated by 2.6 %), and Geweke's test, which asks for no drift at all, then calls
+the run unsettled however long it runs.  What a creep of the heat content does to the Nu
+means is the storage term of the balance above: with the mean temperature <T> changing at
+rate r (E = A <T>),
+
+    <Nu_top> - <Nu_bottom> - H / dT = -r / dT,
+
+so a creep at |r| <= s p Nu_min dT moves the gap between the wall means by at most s p
+relative, p = ``stop.mean_precision``, Nu_min the smaller |time mean| of the two walls over
+the record's second half, s = ``DRIFT_SHARE`` = 1/2: the storage may take half of the
+requested half-width, the other half is left to the sampling error.  The heat-content
+column then passes the drift test while its creep cannot be told from one of that rate
+(``statistics.spin_up_time(drift_rates=)``, eq. 2a there) and takes no part in the MSER cut;
+Nu and vrms keep the strict test.  Without a requested precision (p = 0) or without a
+fixed wall contrast (a fixed-flux wall: no Nu scale of the storage) the allowance is 0 and
+the test is Geweke's, as before.  The precision rule's own half-width through the balance
+(|gap| + ci95) still counts the gap the creep makes.
+
 The mean-precision stop rule (``precision_met``) asks for a statistically
 steady series and both Nu means known to a relative half-width of ``stop.mean_precision``; the
 rule (``run.stops.MeanPrecision``) asks every 100 steps, so that it costs
@@ -64,7 +86,8 @@ from convsim.model import lid
 from convsim.run import statistics as st
 
 __all__ = ["RunAverages", "QUANTITIES", "SETTLED_WORDS", "step_quantities", "balanced_walls",
-           "run_statistics", "lid_report", "heat_balance", "finish_statistics", "wall_contrast"]
+           "run_statistics", "lid_report", "heat_balance", "finish_statistics", "wall_contrast",
+           "storage_allowance", "DRIFT_SHARE"]
 
 #: scalar quantities averaged over time, with their long names (units: see README)
 QUANTITIES = {
@@ -79,6 +102,7 @@ QUANTITIES = {
 SPIN_UP_COLUMNS = ("nusselt_top", "nusselt_bottom", "vrms", "mean_temperature")
 WALLS = ("nusselt_top", "nusselt_bottom")
 SETTLED_WORDS = ("steady", "statistically-steady", "unfinished")
+DRIFT_SHARE = 0.5    # share of the requested half-width the heat-content creep may take
 CAPACITY = 2048
 
 
@@ -124,6 +148,17 @@ def balanced_walls(est: dict, heating: float, contrast: float) -> dict:
     return out
 
 
+def storage_allowance(nu_top, nu_bottom, precision: float, contrast: float) -> float:
+    """The rate |d<T>/dt| of the mean temperature (dT per d^2/kappa) that the drift test lets
+    pass: DRIFT_SHARE p Nu_min dT (module docstring), Nu_min the smaller |mean| of the two
+    wall series over their second half; 0 without a precision or a fixed wall contrast."""
+    if not (precision > 0.0 and math.isfinite(contrast) and contrast != 0.0):
+        return 0.0
+    half = len(nu_top) // 2
+    nu_min = min(abs(float(np.mean(nu_top[half:]))), abs(float(np.mean(nu_bottom[half:]))))
+    return DRIFT_SHARE * precision * nu_min * abs(contrast) if math.isfinite(nu_min) else 0.0
+
+
 class RunAverages:
     """Records a run's quantities every step and turns them into time means.
 
@@ -134,12 +169,16 @@ class RunAverages:
     heating, contrast : float
         Internal heating H and wall temperature contrast dT (NaN: fixed flux, no balance
         of the means), for the heat balance of the means.
+    precision : float
+        The requested relative half-width of the Nu means (``stop.mean_precision``; 0: none),
+        against which the drift of the heat content is weighed (module docstring).
     """
 
     def __init__(self, nz: int, heating: float = 0.0, contrast: float = 1.0,
-                 capacity: int = CAPACITY):
+                 capacity: int = CAPACITY, precision: float = 0.0):
         self.nz = int(nz)
         self.heating, self.contrast = float(heating), float(contrast)
+        self.precision = float(precision)
         self.names = tuple(QUANTITIES)
         self.buffer = st.SeriesBuffer(1 + len(self.names) + 2 * self.nz, capacity)
 
@@ -187,7 +226,10 @@ class RunAverages:
         if t.size < 4 * st.MSER_BATCH:
             return (float(t[0]) if t.size else math.nan), False
         y = np.column_stack([scalars[n] for n in SPIN_UP_COLUMNS])
-        return st.spin_up_time(t, y)
+        allowed = storage_allowance(scalars["nusselt_top"], scalars["nusselt_bottom"],
+                                    self.precision, self.contrast)
+        rates = [allowed if n == "mean_temperature" else 0.0 for n in SPIN_UP_COLUMNS]
+        return st.spin_up_time(t, y, drift_rates=rates)
 
     def estimates(self) -> tuple[dict, bool]:
         """({quantity: Estimate}, settled) from the end of the spin-up; the wall Nu intervals

@@ -147,7 +147,8 @@ class Simulation:
                                                   cfg.output.snapshot_steps),
                         series=Series(cfg.output.series_every, keep_all=self.keep_series),
                         averages=RunAverages(self.grid.nz, self.model.internal_heating,
-                                             wall_contrast(self.model)),
+                                             wall_contrast(self.model),
+                                             precision=cfg.stop.mean_precision),
                         wall0=time.perf_counter(),
                         phase=dict(advect=0.0, diffuse=0.0, stokes=0.0, factor=0.0, diagnose=0.0))
         for rule in p.rules:

@@ -31,6 +31,21 @@ drifting.  The retained part must also pass the drift test of Geweke (1992, in
 Bayesian Statistics 4, 169-193): the means of its first 10 % and last 50 %
 agree within |z| < 3 (``geweke_z``); otherwise ``settled`` is False.
 
+A drift of allowed size (``spin_up_time(..., drift_rates=)``)
+--------------------------------------------------------------
+Geweke's test asks for no drift at all, however small.  Some columns may drift
+by a known harmless amount: a run's heat content may creep while the wall Nu
+means it moves stay well inside the requested precision (the caller derives the
+allowed rate r_a, ``convsim.run.averages``).  For such a column the test is
+Geweke's, shifted by the drift allowed between the two parts,
+
+    z_a = max(|mean_A - mean_B| - r_a (c_B - c_A), 0) / sqrt(s_A^2 + s_B^2),   (2a)
+
+c_A, c_B the mid times of the two parts: the column passes while its drift cannot
+be told from one of rate r_a (|z_a| < 3); r_a = 0 is Geweke's test itself.  A
+column with r_a > 0 takes no part in the MSER cut either: a steady creep within
+the allowance has its minimum of eq. (2) at the middle of every record.
+
 Interval of the mean (``mean_interval``)
 ----------------------------------------
 The variance of the mean of N correlated samples is (sigma^2 / N) tau, with the
@@ -60,7 +75,8 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["Estimate", "time_mean", "uniform_resample", "autocorrelation",
-           "integrated_time", "mean_interval", "mser_truncation", "geweke_z", "spin_up_time",
+           "integrated_time", "mean_interval", "mser_truncation", "geweke_z", "geweke_parts",
+           "spin_up_time",
            "estimate", "SeriesBuffer", "WINDOW_C", "MIN_TAUS", "MSER_BATCH"]
 
 WINDOW_C = 5.0       # Sokal's window constant, eq. (3)
@@ -213,45 +229,60 @@ def mser_truncation(y, batch: int = MSER_BATCH) -> tuple[int, bool]:
     return offset + d * batch, d < half
 
 
-def geweke_z(y, first: float = 0.1, last: float = 0.5) -> float:
+def geweke_parts(n: int, first: float = 0.1, last: float = 0.5) -> tuple[slice, slice, float]:
+    """The two parts of Geweke's test in a series of n samples, and the distance between
+    their mid points in samples: (A, B, c_B - c_A)."""
+    na, nb = max(int(first * n), 2), max(int(last * n), 2)
+    return slice(0, na), slice(n - nb, n), (n - nb + 0.5 * (nb - 1)) - 0.5 * (na - 1)
+
+
+def geweke_z(y, first: float = 0.1, last: float = 0.5, allowed: float = 0.0) -> float:
     """Geweke's (1992) drift statistic of an equally spaced series.
 
     z = (mean_A - mean_B) / sqrt(s_A^2 + s_B^2), A the first 10 % and B the last
     50 % of the series, s^2 the variance of each mean with its autocorrelation,
     eq. (3)-(4).  |z| of a stationary series is below 3 with probability 0.997.
+    ``allowed`` (units of y): a difference of the means that counts as no drift,
+    eq. (2a): |mean_A - mean_B| is reduced by it, not below 0 (sign kept).
     """
     y = np.asarray(y, float)
-    n = y.size
-    a, b = y[: max(int(first * n), 2)], y[n - max(int(last * n), 2):]
+    part_a, part_b, _ = geweke_parts(y.size, first, last)
+    a, b = y[part_a], y[part_b]
     var = 0.0
     for part in (a, b):
         v = float(np.var(part, ddof=1))
         var += v * integrated_time(part) / part.size if v > 0 else 0.0
     diff = float(a.mean() - b.mean())
+    diff = math.copysign(max(abs(diff) - max(allowed, 0.0), 0.0), diff)
     if var == 0.0:
         return 0.0 if diff == 0.0 else math.inf
     return diff / math.sqrt(var)
 
 
-def spin_up_time(t, y, batch: int = MSER_BATCH) -> tuple[float, bool]:
+def spin_up_time(t, y, batch: int = MSER_BATCH, drift_rates=None) -> tuple[float, bool]:
     """End of the spin-up of a series sampled at times t, and whether it has settled.
 
     The truncation is MSER (eq. 2) on the uniform resample; y may hold several
     columns, and the latest truncation over the columns counts.  The series has
     settled when every column's truncation lies in the first half and the kept
     part passes Geweke's test, |z| < ``GEWEKE_LIMIT`` (``geweke_z``).
-    Returns (time, settled).
+    ``drift_rates``: one allowed rate |dy/dt| per column (units of y per unit of t;
+    None or 0: no drift allowed); a column with a positive rate is left out of the cut
+    and tested by eq. (2a).  Returns (time, settled).
     """
     tu, yu = uniform_resample(t, y)
     cols = yu.reshape(yu.shape[0], -1)
+    rates = np.zeros(cols.shape[1]) if drift_rates is None else np.asarray(drift_rates, float)
     index, settled = 0, True
-    for j in range(cols.shape[1]):
+    for j in np.flatnonzero(~(rates > 0)):
         d, ok = mser_truncation(cols[:, j], batch)
         index, settled = max(index, d), settled and ok
     index = min(index, tu.size - 1)
-    if settled:
-        settled = all(abs(geweke_z(cols[index:, j])) < GEWEKE_LIMIT
-                      for j in range(cols.shape[1]) if tu.size - index >= 20)
+    if settled and tu.size - index >= 20:
+        spacing = (tu[-1] - tu[0]) / (tu.size - 1)
+        apart = geweke_parts(tu.size - index)[2] * spacing
+        settled = all(abs(geweke_z(cols[index:, j], allowed=max(rates[j], 0.0) * apart))
+                      < GEWEKE_LIMIT for j in range(cols.shape[1]))
     return float(tu[index]), settled
 
 
