@@ -78,3 +78,19 @@ def test_an_unfinished_coarse_run_leaves_the_config_start(coarse_runs, end):
     coarse_runs["end"] = end
     assert sequence.coarse_temperature(parse_config(STATISTICAL, source="test"),
                                        Grid(32, 16, 2.0)) is None
+
+
+@pytest.mark.parametrize("case", ["1a", "1b"])
+def test_a_sequenced_published_case_has_its_flow_on_its_coarse_grid(case_config, case):
+    """The premise of ``start.coarse_grid`` in the published steady cases (DEVELOPERS.md, "Grid
+    sequencing for the steady cases"): the coarse grid already has the published steady flow,
+    its top Nusselt number within 1 % of the published value (Blankenbach et al. 1989, quoted
+    from memory in convsim/studies/published.py), so every finer grid starts in its basin."""
+    from convsim import api
+    from convsim.studies.published import PUBLISHED
+    n = case_config(case).start.coarse_grid
+    assert n > 0
+    result = api.run(case_config(case, f"domain.nx={n}", f"domain.nz={n}"))
+    published = next(v.value for q, v in PUBLISHED[case].items() if q.startswith("nusselt"))
+    assert result.status == "steady"
+    assert abs(result.nusselt_top / published - 1.0) < 0.01
