@@ -94,3 +94,29 @@ def test_a_sequenced_published_case_has_its_flow_on_its_coarse_grid(case_config,
     published = next(v.value for q, v in PUBLISHED[case].items() if q.startswith("nusselt"))
     assert result.status == "steady"
     assert abs(result.nusselt_top / published - 1.0) < 0.01
+
+
+@pytest.mark.parametrize("source, target", [((16, 16, 1.0, 0.0), (24, 24, 1.0, 0.0)),
+                                            ((32, 16, 2.0, 1.0), (64, 32, 2.0, 1.0)),
+                                            ((12, 10, 1.5, 0.0), (7, 9, 1.0, 0.5))])
+def test_cell_interpolation_is_scipys_bilinear_interpolation(source, target):
+    """interpolate_cells (numpy) against the reference library: scipy's
+    RegularGridInterpolator (linear) on the same clipped target points, on a random field,
+    across grids of other sizes, aspects and refined rows; and exact for a bilinear
+    function a + b x + c z + d x z inside the source centres (calculus)."""
+    from scipy.interpolate import RegularGridInterpolator
+    from convsim.model.grid import interpolate_cells
+    src, dst = (Grid(nx, nz, aspect, wall_refinement=beta) for nx, nz, aspect, beta
+                in (source, target))
+    field = np.random.default_rng(7).standard_normal(src.cell_shape)
+    xs = src.x_cell * (dst.aspect / (src.x_cell[-1] + 0.5 * (src.x_cell[1] - src.x_cell[0])))
+    zs = src.z_cell
+    Z, X = np.meshgrid(np.clip(dst.z_cell, zs[0], zs[-1]), np.clip(dst.x_cell, xs[0], xs[-1]),
+                       indexing="ij")
+    reference = RegularGridInterpolator((zs, xs), field)(np.stack([Z.ravel(), X.ravel()], 1))
+    np.testing.assert_allclose(interpolate_cells(src.x_cell, src.z_cell, field, dst),
+                               reference.reshape(dst.cell_shape), rtol=0, atol=1e-13)
+    XS, ZS = np.meshgrid(xs, zs)
+    bilinear = interpolate_cells(src.x_cell, src.z_cell, 0.3 + 0.2 * XS - 0.7 * ZS + 0.5 * XS * ZS,
+                                 dst)
+    np.testing.assert_allclose(bilinear, 0.3 + 0.2 * X - 0.7 * Z + 0.5 * X * Z, atol=1e-14)
