@@ -79,7 +79,8 @@ def record_sequence(n: int, contrast: float, steps: int, coarse):
 
 def pcg(A, b, precondition, x0, max_iterations, rtol=RTOL):
     """Preconditioned CG to rtol (convsim's own); returns (x, iterations, converged)."""
-    return _pcg(A, b, precondition, x0, rtol, max_iterations)
+    run = _pcg(A, b, precondition, x0, rtol, max_iterations)
+    return run.x, run.iterations, run.converged
 
 
 def factor_policy(mats, rhss, limit, amortised=False, floor=False, rtol=RTOL, extrapolate=False):

@@ -193,6 +193,12 @@ class Numerics:
         "that stops at steady state (stop.steady), 1e-6 otherwise (1.9x faster steps at "
         "contrast 1e5 and 256 x 256, Nu and vrms unchanged to 1e-10; see DEVELOPERS.md)",
         default=0.0, ge=0.0, le=1.0e-3)
+    flow_error_tolerance: float = _key(
+        "each step's variable-viscosity flow solve also stops when its conjugate gradients "
+        "estimate the flow's relative error in the dissipation norm, sqrt(r M^-1 r / b psi), "
+        "at or below this (one solve per step when psi extrapolated in time is close); "
+        "0: automatic, 1e-6 for a run that follows the flow in time, off for one that stops at "
+        "steady state (stop.steady)", default=0.0, ge=0.0, le=1.0e-3)
     nonlinear_solver: str = _key(
         "strain-rate-dependent (yielding) viscosity: iteration of the nonlinear Stokes problem, "
         "Picard or Newton (Picard steps until the residual is below 1e-2, then Newton with a "

@@ -277,6 +277,9 @@ DIAGNOSTICS = {d.name: d for d in (
                lambda s: int(s.solve.iterations), of_state=False, dtype="i8"),
     Diagnostic("stokes_residual", "1", "relative residual ||b - A psi|| / ||b|| of the Stokes "
                "solve", lambda s: float(s.solve.residual), of_state=False),
+    Diagnostic("stokes_flow_error", "1", "conjugate gradients' estimate of the flow's relative "
+               "error in the dissipation norm, sqrt(r M^-1 r / b psi) (0: not estimated)",
+               lambda s: float(s.solve.flow_error), of_state=False),
     Diagnostic("nonlinear_iterations", "1", "Picard/Newton steps of a strain-rate law's Stokes "
                "iteration (0: linear law)", lambda s: int(s.solve.nonlinear_iterations),
                of_state=False, dtype="i8"),

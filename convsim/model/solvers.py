@@ -69,6 +69,9 @@ class StokesProblem:
     tolerance : float
         Relative residual ||b - A x|| / ||b|| a factor-based solve must reach (the CG target of
         the lagged factor, the refinement target of a fresh one).
+    flow_error_tolerance : float
+        The lagged factor's CG also stops once its estimate of the relative error of x in
+        the dissipation norm is at most this (``convsim.model.linsolve._pcg``); 0: off.
     """
 
     operator: StokesOperator
@@ -77,6 +80,7 @@ class StokesProblem:
     strain_viscosity: Callable | None = None
     nonlinear: tuple = ("newton", 1e-8, 50)
     tolerance: float = 1e-10
+    flow_error_tolerance: float = 0.0
 
     def weights(self, T: np.ndarray) -> np.ndarray:
         """The viscosity weights of A(eta(T)) (``StokesOperator.viscosity_weights``)."""
@@ -229,7 +233,8 @@ class LaggedCGStokes(FactoredStokes):
         StokesSolver.__init__(self, problem)
         self.backend = backend or available_factorizers()[0]
         self._lagged = LaggedFactorSolver(make_factorizer(self.backend), "adaptive",
-                                          rtol=problem.tolerance)
+                                          rtol=problem.tolerance,
+                                          error_rtol=problem.flow_error_tolerance)
 
 
 #: Every Stokes solver by name, in the order 'auto' prefers them.

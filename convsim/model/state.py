@@ -5,7 +5,8 @@ Plain data (arrays and numbers), so that a run continues bit for bit from it:
 restart group and ``from_record`` reads it back.  Record keys, for every
 advected field f (see ``convsim.model.fields``): ``f`` (f^n), ``previous_f``
 (f^{n-1}), ``previous_explicit_f`` (N_f^{n-1}); then ``psi``, ``time``,
-``step``, ``previous_dt``, ``previous_psi`` (psi^{n-1}) and the Stokes solver's cache
+``step``, ``previous_dt``, ``previous_psi`` (psi^{n-1}), ``earlier_psi`` (psi^{n-2}),
+``earlier_dt`` (t_{n-1} - t_{n-2}) and the Stokes solver's cache
 as ``solver_*`` (opaque here: only the solver reads it).
 """
 
@@ -41,6 +42,10 @@ class ModelState:
         The Stokes solver's cache (``StokesSolver.state()``).
     previous_psi : ndarray or None
         Streamfunction at t_{n-1} (the start of the next flow solve is extrapolated from it).
+    earlier_psi : ndarray or None
+        Streamfunction at t_{n-2} (for the quadratic extrapolation of the flow).
+    earlier_dt : float
+        t_{n-1} - t_{n-2} (0: none).
     """
 
     time: float
@@ -52,6 +57,8 @@ class ModelState:
     previous_dt: float = 0.0
     solver: dict = field(default_factory=dict)
     previous_psi: np.ndarray | None = None
+    earlier_psi: np.ndarray | None = None
+    earlier_dt: float = 0.0
 
     @property
     def temperature(self) -> np.ndarray:
@@ -68,7 +75,8 @@ def to_record(state: ModelState) -> dict:
         out[f"previous_explicit_{name}"] = (None if state.previous_explicit is None
                                             else state.previous_explicit[name])
     out.update(psi=state.psi, time=state.time, step=state.step, previous_dt=state.previous_dt,
-               previous_psi=state.previous_psi)
+               previous_psi=state.previous_psi, earlier_psi=state.earlier_psi,
+               earlier_dt=state.earlier_dt)
     out.update({f"solver_{k}": v for k, v in state.solver.items()})
     return out
 
@@ -104,4 +112,6 @@ def from_record(record: dict, names) -> ModelState:
         previous={n: np.array(v) for n, v in previous.items()} if history else None,
         previous_explicit={n: np.array(v) for n, v in explicit.items()} if history else None,
         previous_dt=float(record["previous_dt"]), solver=solver,
-        previous_psi=None if (p := record.get("previous_psi")) is None else np.array(p))
+        previous_psi=None if (p := record.get("previous_psi")) is None else np.array(p),
+        earlier_psi=None if (e := record.get("earlier_psi")) is None else np.array(e),
+        earlier_dt=float(record.get("earlier_dt", 0.0)))

@@ -100,11 +100,27 @@ def imex_coefficients(scheme: str, dt: float, previous_dt: float, has_history: b
 
 
 def flow_guess(state: ModelState, dt: float) -> np.ndarray:
-    """Start of the next flow solve: psi^n + dt (psi^n - psi^(n-1)) / dt_(n-1), linear in time
-    (psi^n alone when the state has no flow history)."""
-    if state.previous_psi is None or state.previous_dt <= 0.0:
+    """Start of the next flow solve: psi extrapolated in time to t_n + dt.
+
+    With psi at t_n, t_(n-1), t_(n-2) (steps h1 = t_n - t_(n-1), h2 = t_(n-1) - t_(n-2)):
+    the quadratic through the three (Lagrange form),
+
+        psi^n (dt + h1)(dt + h1 + h2) / (h1 (h1 + h2)) - psi^(n-1) dt (dt + h1 + h2) / (h1 h2)
+        + psi^(n-2) dt (dt + h1) / (h2 (h1 + h2)),
+
+    (3, -3, 1 for equal steps: error O(dt^3)); with two, the line through them; with one,
+    psi^n itself.
+    """
+    h1 = state.previous_dt
+    if state.previous_psi is None or h1 <= 0.0:
         return state.psi
-    return state.psi + (dt / state.previous_dt) * (state.psi - state.previous_psi)
+    h2 = state.earlier_dt
+    if state.earlier_psi is None or h2 <= 0.0:
+        return state.psi + (dt / h1) * (state.psi - state.previous_psi)
+    span = h1 + h2
+    return ((dt + h1) * (dt + span) / (h1 * span) * state.psi
+            - dt * (dt + span) / (h1 * h2) * state.previous_psi
+            + dt * (dt + h1) / (h2 * span) * state.earlier_psi)
 
 
 class Model:
@@ -134,8 +150,11 @@ class Model:
         Advected fields besides the temperature (a dye), each with its ``start``.
     stokes_tolerance : float
         Relative residual of every factor-based flow solve (``StokesProblem.tolerance``).
-        A step's solve starts from psi extrapolated linearly in time from the last two
-        steps, so a looser target costs fewer CG iterations.
+        A step's solve starts from psi extrapolated in time from the last three steps
+        (``flow_guess``), so a looser target costs fewer CG iterations.
+    flow_error_tolerance : float
+        The lagged-factor CG also stops when its estimate of the flow's relative error in the
+        dissipation norm is at most this (``StokesProblem.flow_error_tolerance``); 0: off.
     """
 
     def __init__(self, grid: Grid, rayleigh: float, thermal: ThermalBoundaries,
@@ -145,7 +164,7 @@ class Model:
                  cfl: float = 0.4, max_dt: float = 1e-2, stokes_solver: str = "auto",
                  factor_reuse: str = "adaptive", time_scale_fraction: float = 0.04,
                  nonlinear: tuple = ("newton", 1e-8, 50), fields=(),
-                 stokes_tolerance: float = 1e-10):
+                 stokes_tolerance: float = 1e-10, flow_error_tolerance: float = 0.0):
         self.grid, self.rayleigh, self.thermal, self.law = grid, float(rayleigh), thermal, law
         self.internal_heating = float(internal_heating)
         self.limiter, self.time_scheme = advection_limiter, time_scheme
@@ -168,7 +187,8 @@ class Model:
         problem = StokesProblem(
             self.stokes, self.viscosities, uniform=law.is_constant,
             strain_viscosity=self.viscosity_of_strain if law.needs_strain_rate else None,
-            nonlinear=self.nonlinear, tolerance=float(stokes_tolerance))
+            nonlinear=self.nonlinear, tolerance=float(stokes_tolerance),
+            flow_error_tolerance=float(flow_error_tolerance))
         self.flow_solver = make_stokes_solver(stokes_solver, problem, factor_reuse)
         self.stokes_solver = self.flow_solver.name
 
@@ -339,7 +359,8 @@ class Model:
                                     else None, dt)
         new = ModelState(time=state.time + dt, step=state.step + 1, fields=fields, psi=psi_new,
                          previous=state.fields, previous_explicit=N, previous_dt=dt,
-                         solver=self.flow_solver.state(), previous_psi=state.psi)
+                         solver=self.flow_solver.state(), previous_psi=state.psi,
+                         earlier_psi=state.previous_psi, earlier_dt=state.previous_dt)
         report = self.report(new, dt, heat_rate, rejections, solve)
         timings["diagnose"] = time.perf_counter() - t0
         report.seconds = timings

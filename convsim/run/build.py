@@ -52,6 +52,21 @@ def stokes_tolerance(config: Config) -> float:
     return STEADY_RUN_STOKES_TOLERANCE if config.stop.steady else TIME_DEPENDENT_STOKES_TOLERANCE
 
 
+#: The automatic flow-error target (numerics.flow_error_tolerance = 0) of a run that follows the
+#: flow in time: each step's flow to 1e-6 of its dissipation norm (velocity error ~1e-7 at contrast
+#: 1e5, far below the step's own error; DEVELOPERS.md, "Flow-solve targets").  A run that stops
+#: at steady state keeps the residual target alone (its steady test wants the tight flow).
+TIME_DEPENDENT_FLOW_ERROR = 1e-6
+
+
+def flow_error_tolerance(config: Config) -> float:
+    """numerics.flow_error_tolerance, or the automatic choice when it is 0 (off for a run that
+    stops at steady state)."""
+    if config.numerics.flow_error_tolerance > 0.0:
+        return config.numerics.flow_error_tolerance
+    return 0.0 if config.stop.steady else TIME_DEPENDENT_FLOW_ERROR
+
+
 def build_model(config: Config, grid: Grid | None = None) -> Model:
     """The ``Model`` a config describes (``grid`` overrides [domain], for convergence studies)."""
     b, n = config.boundaries, config.numerics
@@ -63,7 +78,8 @@ def build_model(config: Config, grid: Grid | None = None) -> Model:
                  limiter, n.time_scheme, n.cfl, n.max_dt, n.stokes_solver, n.factor_reuse,
                  n.time_scale_fraction,
                  (n.nonlinear_solver, n.nonlinear_tolerance, n.nonlinear_max_iterations),
-                 fields=build_tracers(config, grid), stokes_tolerance=stokes_tolerance(config))
+                 fields=build_tracers(config, grid), stokes_tolerance=stokes_tolerance(config),
+                 flow_error_tolerance=flow_error_tolerance(config))
 
 
 def build_tracers(config: Config, grid: Grid) -> tuple:

@@ -6,7 +6,7 @@ import pytest
 import scipy.sparse as sp
 
 from convsim.errors import SolverError
-from convsim.model.linsolve import (FACTORIZERS, LaggedFactorSolver, available_factorizers,
+from convsim.model.linsolve import (FACTORIZERS, LaggedFactorSolver, _pcg, available_factorizers,
                                     make_factorizer, solve_spd)
 
 
@@ -53,3 +53,44 @@ def test_lagged_factor_preconditions_cg_on_a_nearby_matrix_and_refactors_when_fa
     always = LaggedFactorSolver(make_factorizer("superlu"), "always")
     always.solve(A0, b, weights=np.array([0.0]))
     assert always.solve(near, b, weights=np.array([0.01]))[1].refactored
+
+
+def _energy_error(A, x_exact, x):
+    """||x* - x||_A / ||x*||_A by dense algebra."""
+    e = x_exact - x
+    return float(np.sqrt(e @ (A @ e) / (x_exact @ (A @ x_exact))))
+
+
+def test_cg_error_estimate_is_the_dissipation_norm_error_when_preconditioned_exactly():
+    """With M = A (the factor of A itself) r . M^-1 r = ||x* - x||_A^2 exactly, so the estimate
+    sqrt(r . M^-1 r / b . x) is the relative A-norm error up to b . x vs ||x*||_A^2 (first
+    order in the error): checked against dense algebra (numpy)."""
+    rng = np.random.default_rng(3)
+    A = _poisson(10)
+    x_exact = rng.normal(size=A.shape[0])
+    b = A @ x_exact
+    factor = make_factorizer("superlu")
+    factor.factor(A)
+    guess = x_exact + 1e-3 * rng.normal(size=A.shape[0])
+    run = _pcg(A, b, factor.solve, guess, 1e-16, 1, error_rtol=1.0)
+    assert run.iterations == 1 and run.converged
+    assert run.flow_error == pytest.approx(_energy_error(A, x_exact, guess), rel=1e-3)
+    assert _energy_error(A, x_exact, run.x) < 1e-12     # one step with M = A: the solution
+
+
+def test_lagged_factor_cg_stops_at_the_requested_flow_error():
+    """The factor of a nearby matrix: CG stops once its estimate is <= error_rtol, one update
+    later; the true relative A-norm error (dense algebra) is then below the target, reached
+    in fewer iterations than the residual target 1e-14 alone needs."""
+    rng = np.random.default_rng(4)
+    A0, A = _poisson(12), _poisson(12, 0.3)
+    x_exact = rng.normal(size=A.shape[0])
+    b = A @ x_exact
+    factor = make_factorizer("superlu")
+    factor.factor(A0)
+    guess = x_exact + 1e-2 * rng.normal(size=A.shape[0])
+    by_error = _pcg(A, b, factor.solve, guess, 1e-14, 50, error_rtol=1e-6)
+    by_residual = _pcg(A, b, factor.solve, guess, 1e-14, 50)
+    assert by_error.converged and 0.0 < by_error.flow_error <= 1e-6
+    assert _energy_error(A, x_exact, by_error.x) <= 1e-6
+    assert by_error.iterations < by_residual.iterations

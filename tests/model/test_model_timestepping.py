@@ -44,47 +44,59 @@ def test_a_diffusing_field_decays_at_the_analytic_rate():
 
 
 def test_the_flow_solve_starts_from_psi_extrapolated_in_time():
-    """psi(t) = a + b t is continued exactly by the linear extrapolation (Taylor to first
-    order); with no flow history the guess is psi^n itself."""
+    """psi(t) = a + b t + c t^2 is continued exactly by the quadratic extrapolation through three
+    unequal steps (Lagrange interpolation is exact on polynomials of its degree); with two
+    states the linear one continues a + b t exactly; with no flow history the guess is psi^n."""
     from convsim.model.state import ModelState
     from convsim.model.timestepping import flow_guess
     rng = np.random.default_rng(2)
-    a, b = rng.standard_normal((5, 6)), rng.standard_normal((5, 6))
-    t_old, t_now, dt = 0.30, 0.32, 0.015
-    state = ModelState(time=t_now, step=2, fields={}, psi=a + b * t_now, previous_dt=t_now - t_old,
-                       previous_psi=a + b * t_old)
-    np.testing.assert_allclose(flow_guess(state, dt), a + b * (t_now + dt), atol=1e-13)
+    a, b, c = (rng.standard_normal((5, 6)) for _ in range(3))
+    t_first, t_old, t_now, dt = 0.27, 0.30, 0.32, 0.015
+
+    def psi(t, curved=True):
+        return a + b * t + (c * t * t if curved else 0.0)
+
+    state = ModelState(time=t_now, step=3, fields={}, psi=psi(t_now), previous_dt=t_now - t_old,
+                       previous_psi=psi(t_old), earlier_psi=psi(t_first),
+                       earlier_dt=t_old - t_first)
+    np.testing.assert_allclose(flow_guess(state, dt), psi(t_now + dt), atol=1e-12)
+    two = ModelState(time=t_now, step=2, fields={}, psi=psi(t_now, False),
+                     previous_dt=t_now - t_old, previous_psi=psi(t_old, False))
+    np.testing.assert_allclose(flow_guess(two, dt), psi(t_now + dt, False), atol=1e-13)
     fresh = ModelState(time=t_now, step=0, fields={}, psi=a)
     assert flow_guess(fresh, dt) is a
 
 
 def test_a_time_dependent_run_solves_the_flow_to_the_looser_automatic_tolerance():
     """stokes_tolerance = 0 (automatic): 1e-10 for a run that stops at steady state, 1e-6 for one
-    that follows the flow in time; every step's flow residual is below its target (reached with
-    fewer CG iterations at the looser one), and 15 steps
-    at the looser target give the same Nu and vrms as at 1e-10 to 1e-8 (the solve error,
-    ~1e-6 of the residual, stays far below the discretisation error; common practice)."""
+    that follows the flow in time, which also stops each solve at an estimated flow error of
+    1e-6 in the dissipation norm (flow_error_tolerance = 0: automatic).  Every step meets one of
+    its targets, with fewer CG iterations than at 1e-10, and 15 steps give the same Nu and
+    vrms as at 1e-10 to 1e-7 (measured: 2e-11 and 1.3e-8; the solve error stays orders below
+    the discretisation error, ~1e-2 on this grid: common practice)."""
     from convsim.config import Config
-    from convsim.run.build import build_model, stokes_tolerance
+    from convsim.run.build import build_model, flow_error_tolerance, stokes_tolerance
     base = Config().replace(domain__nx=24, domain__nz=24, physics__rayleigh=1e3,
                             viscosity__law="frank-kamenetskii", viscosity__thermal_contrast=1e4,
                             start__kind="one-cell")
-    assert stokes_tolerance(base) == 1e-10
+    assert stokes_tolerance(base) == 1e-10 and flow_error_tolerance(base) == 0.0
     timed = base.replace(stop__steady=False)
-    assert stokes_tolerance(timed) == 1e-6
+    assert stokes_tolerance(timed) == 1e-6 and flow_error_tolerance(timed) == 1e-6
     results = {}
-    for name, cfg in (("loose", timed), ("tight", timed.replace(numerics__stokes_tolerance=1e-10))):
+    tight_cfg = timed.replace(numerics__stokes_tolerance=1e-10,
+                              numerics__flow_error_tolerance=1e-15)
+    for name, cfg in (("loose", timed), ("tight", tight_cfg)):
         model = build_model(cfg)
         X, Z = model.grid.cell_mesh()
         state = model.initial_state(1.0 - Z + 0.05 * np.cos(np.pi * X) * np.sin(np.pi * Z))
-        residuals, iterations = [], 0
+        iterations = 0
         for _ in range(15):
             state, report = model.step(state)
-            residuals.append(report.stokes_residual)
+            assert (report.stokes_residual <= stokes_tolerance(cfg)
+                    or 0.0 < report.stokes_flow_error <= flow_error_tolerance(cfg))
             iterations += report.stokes_iterations
-        assert max(residuals) <= stokes_tolerance(cfg)
         results[name] = report, iterations
     (loose, loose_iterations), (tight, tight_iterations) = results["loose"], results["tight"]
     assert loose_iterations < tight_iterations      # the looser target is what is solved to
-    assert loose.nusselt_top == pytest.approx(tight.nusselt_top, rel=1e-8)
-    assert loose.vrms == pytest.approx(tight.vrms, rel=1e-8)
+    assert loose.nusselt_top == pytest.approx(tight.nusselt_top, rel=1e-7)
+    assert loose.vrms == pytest.approx(tight.vrms, rel=1e-7)
