@@ -81,7 +81,7 @@ def read_run(path: str | Path, snapshot: int = -1, *, restart: bool = False) -> 
         state = {}
         if restart and "restart" in f:
             g = f["restart"]
-            state = {k: g[k][:] for k in g}
+            state = {k: g[k][()] for k in g}      # [()]: arrays and scalars alike
             state.update({k: g.attrs[k] for k in g.attrs})
         attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
         return RunFile(path=path, attrs=attrs, x=f["x"][:], z=f["z"][:], x_node=f["x_node"][:],

@@ -11,8 +11,8 @@ name raises ``SolverError`` listing the valid ones.
 
 ``LaggedFactorSolver`` reuses an old factor as the preconditioner of conjugate
 gradients while the viscosity changes slowly, and refactors when the iteration
-count says the old factor no longer pays (a deterministic rule, so a restarted
-run repeats the uninterrupted one bit for bit).
+counts say the old factor no longer pays (deterministic rules on counts, kept in the
+solver's state, so a restarted run repeats the uninterrupted one bit for bit).
 """
 
 from __future__ import annotations
@@ -113,6 +113,10 @@ def limit_blas_threads(n: int | None = None):
 FACTORIZERS = {"superlu": SuperLUFactorizer, "cholmod": CholmodFactorizer}
 #: Iterative-refinement steps at most after a direct solve whose residual is above rtol.
 MAX_REFINEMENTS = 3
+#: A refactorisation costs about this many triangular solves with the factor (CHOLMOD, contrast
+#: 1e5, measured: 20 at 64^2, 10 at 128^2 and 256^2, 12 at 512^2): the budget of the
+#: amortised refactor rule of ``LaggedFactorSolver``.
+REFACTOR_IN_SOLVES = 10
 
 
 def available_factorizers() -> list[str]:
@@ -162,9 +166,11 @@ class LaggedFactorSolver:
     """Solve A(eta) x = b for a sequence of slowly changing matrices.
 
     With ``policy = 'always'`` every new matrix is factorised.  With ``'adaptive'``
-    the last factor preconditions conjugate gradients on the new matrix; when CG
-    needs more than ``max_iterations`` iterations to reach ``rtol`` the matrix is
-    refactorised and solved directly.  A direct solve is checked: while its relative
+    the last factor preconditions conjugate gradients on the new matrix; the matrix is
+    refactorised and solved directly when CG needs more than ``max_iterations``
+    iterations, or when the iterations the factor's age has added (each solve's count
+    above that of the first solve on the factor, summed) reach the cost of a refactor,
+    ``REFACTOR_IN_SOLVES`` (rent or buy: at most twice the best cost in hindsight).  A direct solve is checked: while its relative
     residual exceeds ``rtol`` (a factor that lost digits, at large viscosity contrasts),
     up to ``MAX_REFINEMENTS`` steps of iterative refinement x += A^-1 (b - A x) follow.
 
@@ -191,10 +197,13 @@ class LaggedFactorSolver:
         self.factorizer, self.policy = factorizer, policy
         self.rtol, self.max_iterations, self.error_rtol = rtol, max_iterations, error_rtol
         self.factored_weights = None     # the viscosity weights of the current factor
+        self.first_iterations = -1       # CG iterations of the first solve on it (-1: none yet)
+        self.stale_iterations = 0        # iterations above that, summed over later solves
 
     def refactor(self, A: sp.spmatrix, weights: np.ndarray | None = None) -> float:
         t0 = time.perf_counter()
         self.factored_weights = None
+        self.first_iterations, self.stale_iterations = -1, 0
         self.factorizer.factor(A)       # may raise ArithmeticError (not positive definite)
         self.factored_weights = None if weights is None else weights.copy()
         return time.perf_counter() - t0
@@ -202,7 +211,8 @@ class LaggedFactorSolver:
     def solve(self, A: sp.spmatrix, b: np.ndarray, x0: np.ndarray | None = None,
               weights: np.ndarray | None = None) -> tuple[np.ndarray, SolveReport]:
         report = SolveReport()
-        if self.factored_weights is None or self.policy == "always":
+        if (self.factored_weights is None or self.policy == "always"
+                or self.stale_iterations >= REFACTOR_IN_SOLVES):
             report.factor_seconds = self.refactor(A, weights)
             report.refactored = True
         elif weights is not None and np.array_equal(weights, self.factored_weights):
@@ -214,6 +224,7 @@ class LaggedFactorSolver:
             report.solve_seconds = time.perf_counter() - t0
             report.iterations, report.flow_error = run.iterations, run.flow_error
             if run.converged:
+                self._count(run.iterations)
                 report.residual = _relative_residual(A, b, run.x)   # the true one
                 return run.x, report
             report.factor_seconds = self.refactor(A, weights)
@@ -227,6 +238,23 @@ class LaggedFactorSolver:
             report.residual = _relative_residual(A, b, x)
         report.solve_seconds += time.perf_counter() - t0
         return x, report
+
+
+    def _count(self, iterations: int) -> None:
+        """Book a converged CG solve against the factor's age (the amortised refactor rule)."""
+        if self.first_iterations < 0:
+            self.first_iterations = iterations
+        else:
+            self.stale_iterations += max(iterations - self.first_iterations, 0)
+
+    def counts(self) -> dict:
+        """The refactor rule's counts as plain numbers (for a bit-for-bit restart)."""
+        return {"first_iterations": self.first_iterations,
+                "stale_iterations": self.stale_iterations}
+
+    def restore_counts(self, counts: dict) -> None:
+        self.first_iterations = int(counts.get("first_iterations", -1))
+        self.stale_iterations = int(counts.get("stale_iterations", 0))
 
 
 def _relative_residual(A, b, x) -> float:

@@ -17,7 +17,8 @@ and is looked up by name (the ``solve_ivp(method=...)`` pattern of SciPy):
   top and bottom only (``TransformSolver``);
 - ``cholmod``, ``superlu``: a fresh factor of A(eta(T)) at every new viscosity;
 - ``lagged-cg``: the last factor preconditions conjugate gradients while it pays, and
-  is renewed when CG needs more than 6 iterations (``LaggedFactorSolver``), over the
+  is renewed when CG needs more than 6 iterations or the iterations its age added reach
+  the cost of a refactor (``LaggedFactorSolver``), over the
   fastest available factor back end (or the one named by ``backend``).
 
 ``make_stokes_solver("auto", problem)`` picks the transform solver where it applies,
@@ -204,13 +205,18 @@ class FactoredStokes(StokesSolver):
 
     def state(self) -> dict:
         w = self._lagged.factored_weights
-        return {} if w is None else {"factor_weights": w}
+        if w is None:
+            return {}
+        counts = {f"factor_{k}": np.asarray(v) for k, v in self._lagged.counts().items()}
+        return {"factor_weights": w, **counts}
 
     def restore(self, state: dict) -> None:
         w = state.get("factor_weights")
         if w is not None:
             w = np.asarray(w, dtype=float)
             self._lagged.refactor(self.problem.operator.matrix_from_weights(w), w)
+            self._lagged.restore_counts({k[len("factor_"):]: state[k] for k in state
+                                         if k.startswith("factor_") and k != "factor_weights"})
 
 
 class CholmodStokes(FactoredStokes):
@@ -222,7 +228,7 @@ class SuperLUStokes(FactoredStokes):
 
 
 class LaggedCGStokes(FactoredStokes):
-    """The last factor preconditions CG; refactor when CG needs more than 6 iterations.
+    """The last factor preconditions CG; refactored by the rules of ``LaggedFactorSolver``.
 
     Options: ``backend`` ('cholmod', 'superlu'; default the fastest available).
     """

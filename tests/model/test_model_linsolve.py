@@ -94,3 +94,33 @@ def test_lagged_factor_cg_stops_at_the_requested_flow_error():
     assert by_error.converged and 0.0 < by_error.flow_error <= 1e-6
     assert _energy_error(A, x_exact, by_error.x) <= 1e-6
     assert by_error.iterations < by_residual.iterations
+
+
+def test_a_drifting_matrix_is_refactored_when_the_added_iterations_pay_for_a_factor():
+    """The amortised rule (rent or buy, common practice): a matrix drifting away from its factor
+    costs more CG iterations each solve; once the iterations above the first solve's count,
+    summed, reach REFACTOR_IN_SOLVES, the next solve refactors (before the 6-iteration limit
+    would).  Answers against a dense solve (numpy); the bookkeeping re-done by hand."""
+    from convsim.model import linsolve
+    rng = np.random.default_rng(5)
+    b = rng.normal(size=144)
+    solver = LaggedFactorSolver(make_factorizer("superlu"), "adaptive", rtol=1e-10)
+    first, extra, refactor_steps = -1, 0, []
+    for k in range(40):
+        shift = 0.002 * k
+        A = _poisson(12, shift)
+        due = extra >= linsolve.REFACTOR_IN_SOLVES
+        x, rep = solver.solve(A, b, weights=np.array([shift]))
+        exact = np.linalg.solve(A.toarray(), b)
+        assert np.abs(x - exact).max() <= 1e-8 * np.abs(exact).max()
+        assert not due or rep.refactored
+        if rep.refactored:
+            refactor_steps.append(k)
+            first, extra = -1, 0
+        elif first < 0:
+            first = rep.iterations
+        else:
+            extra += max(rep.iterations - first, 0)
+        assert rep.iterations <= solver.max_iterations
+    assert len(refactor_steps) >= 3          # the first factor and at least two renewals
+    assert solver.counts() == {"first_iterations": first, "stale_iterations": extra}

@@ -141,3 +141,35 @@ def test_every_config_choice_names_a_registered_solver():
     from convsim.config import Numerics
     choices = {f.name: f for f in dataclasses.fields(Numerics)}["stokes_solver"].metadata["choices"]
     assert set(choices) <= {"auto", *SOLVERS}
+
+
+def test_a_restored_solver_makes_the_same_refactor_decisions_bit_for_bit():
+    """state() / restore() carry the factor and the refactor rule's counts: a solver rebuilt
+    from the state of another, mid-way through a drifting sequence, repeats its answers and
+    refactors bit for bit (what a restart needs)."""
+    if "cholmod" not in available_factorizers():
+        pytest.fail("cholmod back end missing: install the test extras")
+    g = Grid(16, 16)
+    law = ViscosityLaw(name="frank-kamenetskii", thermal_contrast=1e4)
+    problem = _problem(g, law)
+    X, Z = g.cell_mesh()
+
+    def temperature(k):
+        return 1.0 - Z + 0.1 * np.cos(np.pi * X) * np.sin(np.pi * Z) * (1.0 + 0.002 * k)
+
+    running = make_stokes_solver("lagged-cg", problem)
+    restored, refactors = None, 0
+    for k in range(30):
+        T = temperature(k)
+        x, rep = running.solve(T, problem.operator.rhs(T, RA))
+        if k == 16:
+            restored = make_stokes_solver("lagged-cg", problem)
+            restored.restore(running.state())
+            assert running.state()["factor_stale_iterations"] > 0     # mid-way: counts matter
+        elif restored is not None:
+            y, rep_restored = restored.solve(T, problem.operator.rhs(T, RA))
+            assert np.array_equal(x, y)
+            assert (rep.refactored, rep.iterations) == (rep_restored.refactored,
+                                                        rep_restored.iterations)
+            refactors += rep.refactored
+    assert refactors >= 1          # the amortised rule renewed the factor after the restore

@@ -60,6 +60,8 @@ def test_the_flow_solve_starts_from_psi_extrapolated_in_time():
                        previous_psi=psi(t_old), earlier_psi=psi(t_first),
                        earlier_dt=t_old - t_first)
     np.testing.assert_allclose(flow_guess(state, dt), psi(t_now + dt), atol=1e-12)
+    line = psi(t_now) + dt / (t_now - t_old) * (psi(t_now) - psi(t_old))   # order 1 asked for
+    np.testing.assert_allclose(flow_guess(state, dt, order=1), line, atol=1e-13)
     two = ModelState(time=t_now, step=2, fields={}, psi=psi(t_now, False),
                      previous_dt=t_now - t_old, previous_psi=psi(t_old, False))
     np.testing.assert_allclose(flow_guess(two, dt), psi(t_now + dt, False), atol=1e-13)
