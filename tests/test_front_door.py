@@ -161,6 +161,37 @@ def test_progress_measures_time_or_decades_of_residual():
     steady.on_finish(None)
 
 
+class _Stream:
+    def __init__(self, terminal):
+        self.terminal, self.text = terminal, []
+
+    def isatty(self):
+        return self.terminal
+
+    def write(self, text):
+        self.text.append(text)
+
+    def flush(self):
+        pass
+
+
+@pytest.mark.parametrize("terminal", [False, True])
+def test_progress_silent_off_a_terminal_as_tqdm_would_be(monkeypatch, terminal):
+    """Without ``always``, the bar follows tqdm's documented rule for ``disable=None`` (no
+    bar when the stream is not a terminal), decided without building a bar (nor importing
+    tqdm) off a terminal; on a terminal the bar is drawn as before."""
+    from convsim.config import parse_config
+    from convsim.run.progress import ProgressDisplay
+    stream = _Stream(terminal)
+    monkeypatch.setattr("sys.stderr", stream)
+    display = ProgressDisplay(parse_config({"stop": {"steady_tolerance": 1e-6}}))
+    display.on_start(None, False)
+    display.on_step(_Report(50, 0.0, 1e-3))
+    assert (display.bar is not None) == terminal
+    display.on_finish(None)
+    assert bool("".join(stream.text)) == terminal
+
+
 def test_time_dependent_answers_are_time_means_with_intervals():
     """A statistically steady run: the physical answers are its time means, the half-widths
     scaled by the same factors (hand calculation with TESSALY's scales)."""

@@ -12,7 +12,9 @@ What it measures depends on the stop rule of the config:
 
 The display is an observer (see ``convsim.run.controller.Observer``); it writes to stderr
 through tqdm and is silent when stderr is not a terminal (``disable=None``) unless
-``always`` is set (notebooks set it: Jupyter's output is not a terminal).
+``always`` is set (notebooks set it: Jupyter's output is not a terminal).  A silent display
+does not import tqdm at all (``tqdm.auto`` costs about 30 ms of a run's start-up, and a run
+piped into a file or a script never shows the bar).
 """
 
 from __future__ import annotations
@@ -52,8 +54,16 @@ class ProgressDisplay:
         self.bar = tqdm(total=total, desc=desc, bar_format=fmt, disable=self.disable,
                         leave=False, mininterval=0.5, dynamic_ncols=True, file=sys.stderr)
 
+    def _silent(self) -> bool:
+        """tqdm's own rule for ``disable=None``: no bar when stderr is not a terminal."""
+        if self.disable is None:
+            self.disable = True if not _is_terminal(sys.stderr) else None
+        return self.disable is True
+
     def on_start(self, simulation, resumed):
         self.wall0 = time.perf_counter()
+        if self._silent():
+            return
         if self.end_time > 0:
             self._open(self.end_time, "time")
 
@@ -66,6 +76,8 @@ class ProgressDisplay:
         return min(max(done, 0.0), self.bar.total)
 
     def on_step(self, report):
+        if self._silent():
+            return
         if self.steps0 == 0:
             self.steps0 = max(report.step - 1, 0)
         residual = report.tendency_max / max(abs(report.nusselt_top), 1.0)
@@ -89,3 +101,11 @@ class ProgressDisplay:
     def on_finish(self, result):
         if self.bar is not None:
             self.bar.close()
+
+
+def _is_terminal(stream) -> bool:
+    isatty = getattr(stream, "isatty", None)
+    try:
+        return bool(isatty()) if isatty is not None else True
+    except ValueError:          # a closed stream
+        return False
