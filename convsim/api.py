@@ -20,6 +20,7 @@ from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable
 from convsim.files.reader import read_run, read_series
 from convsim.files.xdmf import sidecar_path, write_xdmf
+from convsim.allocator import fix_mmap_threshold
 from convsim.threads import limit_threads
 
 __all__ = ["load_config", "run", "open_run", "start_temperature", "check_restart_config"]
@@ -137,6 +138,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         config has a [body] table; ``result.to_xarray()`` gives an ``xarray.Dataset``.
     """
     limit_threads(threads)
+    fix_mmap_threshold()
     if not isinstance(config, Config):
         config = load_config(config)
     scales = None
