@@ -74,29 +74,54 @@ class CholmodFactorizer:
 
         The lower triangle in compressed-column order is the upper triangle of the
         symmetric A in CSR order, so a refactor only gathers A's values at fixed
-        positions into the kept matrix (no triplet lists, no re-sorting).
+        positions into the kept matrix (no triplet lists, no re-sorting).  The pattern
+        is recognised by identity first (the Stokes operator hands out the same index
+        arrays every time), by value otherwise; the temporaries of a new pattern are
+        freed before the numeric factorisation, the largest allocation of a run.
         """
-        cvx = self._cvxopt
         A = sp.csr_matrix(A)
         A.sort_indices()
-        if self._pattern is None or not (np.array_equal(A.indptr, self._pattern[0])
-                                         and np.array_equal(A.indices, self._pattern[1])):
-            rows = np.repeat(np.arange(A.shape[0], dtype=np.int64), np.diff(A.indptr))
-            upper = A.indices >= rows
-            self._upper = np.flatnonzero(upper)
-            self._matrix = cvx.spmatrix(cvx.matrix(A.data[self._upper]),
-                                        cvx.matrix(A.indices[upper].astype(np.int64)),
-                                        cvx.matrix(rows[upper]), size=A.shape)
-            self._symbolic = self._cholmod.symbolic(self._matrix, uplo="L")
-            self._pattern = (A.indptr.copy(), A.indices.copy())
+        if not self._same_pattern(A):
+            self._analyse(A)
         else:
-            self._matrix.V = cvx.matrix(A.data[self._upper])
+            self._matrix.V = self._cvxopt.matrix(A.data[self._upper])
         self._cholmod.numeric(self._matrix, self._symbolic)
+
+    def _same_pattern(self, A: sp.csr_matrix) -> bool:
+        if self._pattern is None:
+            return False
+        indptr, indices = self._pattern
+        if _same_memory(A.indptr, indptr) and _same_memory(A.indices, indices):
+            return True
+        return np.array_equal(A.indptr, indptr) and np.array_equal(A.indices, indices)
+
+    def _analyse(self, A: sp.csr_matrix) -> None:
+        """The kept lower-triangle matrix and the symbolic analysis of a new pattern."""
+        cvx = self._cvxopt
+        self._matrix = self._symbolic = None
+        rows = np.repeat(np.arange(A.shape[0], dtype=np.int32), np.diff(A.indptr))
+        upper = np.flatnonzero(A.indices >= rows).astype(np.int32)
+        columns = cvx.matrix(rows[upper].astype(np.int64))
+        del rows
+        self._upper = upper
+        self._matrix = cvx.spmatrix(cvx.matrix(A.data[upper]),
+                                    cvx.matrix(A.indices[upper].astype(np.int64)),
+                                    columns, size=A.shape)
+        del columns
+        self._symbolic = self._cholmod.symbolic(self._matrix, uplo="L")
+        self._pattern = (A.indptr, A.indices)
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         x = self._cvxopt.matrix(np.ascontiguousarray(b, dtype=float))
         self._cholmod.solve(self._symbolic, x)
         return np.array(x).ravel()
+
+
+def _same_memory(a: np.ndarray, b: np.ndarray) -> bool:
+    """Whether two arrays are views of the same elements (b is kept alive by the caller, so
+    its address cannot have been reused by another array)."""
+    return (a.dtype == b.dtype and a.shape == b.shape and a.strides == b.strides
+            and a.__array_interface__["data"][0] == b.__array_interface__["data"][0])
 
 
 def limit_blas_threads(n: int | None = None):

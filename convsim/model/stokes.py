@@ -64,8 +64,11 @@ __all__ = ["StokesOperator", "TransformSolver", "buoyancy_rhs", "face_velocities
 class _Rows:
     """Rows of a difference operator as padded (row, column, value) arrays."""
 
-    cols: np.ndarray   # (nrows, width) unknown index or -1
+    cols: np.ndarray   # (nrows, width) unknown index or -1, int32
     vals: np.ndarray   # (nrows, width)
+
+    def __post_init__(self):
+        object.__setattr__(self, "cols", np.asarray(self.cols, dtype=np.int32))
 
     def matrix(self, n_unknowns: int) -> sp.csr_matrix:
         rows = np.repeat(np.arange(self.cols.shape[0]), self.cols.shape[1])
@@ -90,7 +93,7 @@ def _row_pairs(cols, vals, first_row, n, pattern):
     v = np.repeat(vals, width, axis=1) * np.tile(vals, (1, width))
     r = np.repeat(np.arange(first_row, first_row + nr, dtype=np.int64), width * width)
     keep = ((a >= 0) & (b >= 0) & (v != 0)).ravel()
-    key = a.ravel()[keep] * n + b.ravel()[keep]
+    key = a.ravel()[keep].astype(np.int64) * n + b.ravel()[keep]
     return np.searchsorted(pattern, key), r[keep], v.ravel()[keep]
 
 
@@ -311,9 +314,12 @@ class StokesOperator:
         """A from viscosity weights (``viscosity_weights``).
 
         A is linear in the weights, so this also gives dA for a change of the weights.
+        Every A shares the operator's index arrays (sorted, no duplicates; so the
+        factoriser recognises the pattern without comparing it): change only ``A.data``
+        in place, never ``A.indices`` or ``A.indptr``.
         """
         n = self.n_unknowns
-        return sp.csr_matrix((self.value_map @ weights, self._indices.copy(), self._indptr.copy()),
+        return sp.csr_matrix((self.value_map @ weights, self._indices, self._indptr),
                              shape=(n, n))
 
     # -- vectors ----------------------------------------------------------------------------
