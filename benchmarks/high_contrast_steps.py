@@ -9,7 +9,7 @@ benchmarks/stokes_policies.py), interpolated to each grid and stepped 10 times t
 From that one state, ``--steps`` steps are run with each pair of targets
 ``numerics.stokes_tolerance:numerics.flow_error_tolerance`` (relative residual of the flow
 solve : CG's estimated relative error in the dissipation norm, 0 = off; the lagged-factor CG
-starts from psi extrapolated in time; 1e-6:1e-6 is what a time-following run does by
+starts from psi extrapolated in time; 1e-6:1e-5 is what a time-following run does by
 default).  Printed per pair: steps per second, mean CG iterations and refactorisations per
 step after three untimed steps (a new model's first factor is start-up; one CG iteration
 costs one triangular solve of the factor, timed and printed beside), and how far Nu (top) and vrms after the last step are from those of the first pair

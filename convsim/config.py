@@ -197,7 +197,7 @@ class Numerics:
         "each step's variable-viscosity flow solve also stops when its conjugate gradients "
         "estimate the flow's relative error in the dissipation norm, sqrt(r M^-1 r / b psi), "
         "at or below this (one solve per step when psi extrapolated in time is close); "
-        "0: automatic, 1e-6 for a run that follows the flow in time, off for one that stops at "
+        "0: automatic, 1e-5 for a run that follows the flow in time, off for one that stops at "
         "steady state (stop.steady)", default=0.0, ge=0.0, le=1.0e-3)
     nonlinear_solver: str = _key(
         "strain-rate-dependent (yielding) viscosity: iteration of the nonlinear Stokes problem, "

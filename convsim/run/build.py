@@ -53,10 +53,11 @@ def stokes_tolerance(config: Config) -> float:
 
 
 #: The automatic flow-error target (numerics.flow_error_tolerance = 0) of a run that follows the
-#: flow in time: each step's flow to 1e-6 of its dissipation norm (velocity error ~1e-7 at contrast
-#: 1e5, far below the step's own error; DEVELOPERS.md, "Flow-solve targets").  A run that stops
+#: flow in time: each step's flow to 1e-5 of its dissipation norm, as CG estimates it (Nu and vrms
+#: after 40 steps at contrast 1e5 within 6e-10 of the 1e-10 solve, far below the step's own error;
+#: DEVELOPERS.md, "Flow-solve targets").  A run that stops
 #: at steady state keeps the residual target alone (its steady test wants the tight flow).
-TIME_DEPENDENT_FLOW_ERROR = 1e-6
+TIME_DEPENDENT_FLOW_ERROR = 1e-5
 
 
 def flow_error_tolerance(config: Config) -> float:

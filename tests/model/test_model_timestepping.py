@@ -72,9 +72,9 @@ def test_the_flow_solve_starts_from_psi_extrapolated_in_time():
 def test_a_time_dependent_run_solves_the_flow_to_the_looser_automatic_tolerance():
     """stokes_tolerance = 0 (automatic): 1e-10 for a run that stops at steady state, 1e-6 for one
     that follows the flow in time, which also stops each solve at an estimated flow error of
-    1e-6 in the dissipation norm (flow_error_tolerance = 0: automatic).  Every step meets one of
-    its targets, with fewer CG iterations than at 1e-10, and 15 steps give the same Nu and
-    vrms as at 1e-10 to 1e-7 (measured: 2e-11 and 1.3e-8; the solve error stays orders below
+    1e-5 in the dissipation norm (flow_error_tolerance = 0: automatic).  Every step meets one of
+    its targets, with fewer CG iterations than at 1e-10 (36 against 81), and 15 steps give the
+    same Nu and vrms as at 1e-10 to 1e-7 (measured: 6e-11 and 4.9e-9; the solve error stays orders below
     the discretisation error, ~1e-2 on this grid: common practice)."""
     from convsim.config import Config
     from convsim.run.build import build_model, flow_error_tolerance, stokes_tolerance
@@ -83,7 +83,7 @@ def test_a_time_dependent_run_solves_the_flow_to_the_looser_automatic_tolerance(
                             start__kind="one-cell")
     assert stokes_tolerance(base) == 1e-10 and flow_error_tolerance(base) == 0.0
     timed = base.replace(stop__steady=False)
-    assert stokes_tolerance(timed) == 1e-6 and flow_error_tolerance(timed) == 1e-6
+    assert stokes_tolerance(timed) == 1e-6 and flow_error_tolerance(timed) == 1e-5
     results = {}
     tight_cfg = timed.replace(numerics__stokes_tolerance=1e-10,
                               numerics__flow_error_tolerance=1e-15)
