@@ -20,7 +20,7 @@ from convsim.run.layer import resolve
 from convsim.files.runfile import RunFileObserver, RunFileWriter, check_writable
 from convsim.files.reader import read_run, read_series
 from convsim.files.xdmf import sidecar_path, write_xdmf
-from convsim.allocator import fix_mmap_threshold
+from convsim.allocator import release_freed_memory
 from convsim.threads import limit_threads
 
 __all__ = ["load_config", "run", "open_run", "start_temperature", "check_restart_config"]
@@ -138,7 +138,6 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
         config has a [body] table; ``result.to_xarray()`` gives an ``xarray.Dataset``.
     """
     limit_threads(threads)
-    fix_mmap_threshold()
     if not isinstance(config, Config):
         config = load_config(config)
     scales = None
@@ -155,6 +154,7 @@ def run(config: Config | str | Path, output: str | Path | None = None, *,
     if output is not None:
         observers.insert(0, RunFileObserver(writer))
     model = build_model(config, grid)
+    release_freed_memory()           # the operator build's temporaries, before the factor
     sim = Simulation(config, model, start_temperature(config, model.grid), observers,
                      keep_series=output is None)
     result = sim.run(resume)

@@ -24,6 +24,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as sla
 
+from convsim.allocator import release_freed_memory
 from convsim.errors import SolverError
 from convsim.model.choices import FACTOR_REUSE
 from convsim.threads import reapply_limit
@@ -77,7 +78,8 @@ class CholmodFactorizer:
         positions into the kept matrix (no triplet lists, no re-sorting).  The pattern
         is recognised by identity first (the Stokes operator hands out the same index
         arrays every time), by value otherwise; the temporaries of a new pattern are
-        freed before the numeric factorisation, the largest allocation of a run.
+        freed, and the freed heap handed back to the system (``convsim.allocator``), before
+        the numeric factorisation, the largest allocation of a run.
         """
         A = sp.csr_matrix(A)
         A.sort_indices()
@@ -110,6 +112,7 @@ class CholmodFactorizer:
         del columns
         self._symbolic = self._cholmod.symbolic(self._matrix, uplo="L")
         self._pattern = (A.indptr, A.indices)
+        release_freed_memory()      # this and the build's temporaries, before the factor
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         x = self._cvxopt.matrix(np.ascontiguousarray(b, dtype=float))
