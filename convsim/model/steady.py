@@ -51,14 +51,20 @@ class NewtonReport:
 
 
 def steady_residual(model, T: np.ndarray, psi_guess=None):
-    """F(T) of equation (1), shape (nz, nx), and the streamfunction of T (NaN where T is unusable)."""
+    """F(T) of equation (1), shape (nz, nx), and the streamfunction of T (NaN where T is unusable).
+
+    A trial T of the Newton iteration may lie far outside [0, 1], where an exponential
+    viscosity law overflows: such a T is judged by its non-finite residual, so the
+    floating-point warnings of the evaluation are not shown.
+    """
     if not np.all(np.isfinite(T)):
         return np.full_like(T, np.nan), psi_guess
     try:
-        psi, _ = model.solve_flow(T, psi_guess)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            psi, _ = model.solve_flow(T, psi_guess)
+            return model.explicit_term(T, psi) + model.diffusion.apply(T), psi
     except ArithmeticError:
         return np.full_like(T, np.nan), psi_guess
-    return model.explicit_term(T, psi) + model.diffusion.apply(T), psi
 
 
 def newton_steady(model, T0: np.ndarray, psi0: np.ndarray, tolerance: float,
